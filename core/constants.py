@@ -1,0 +1,64 @@
+"""Physical and system constants used across acqplan.
+
+Every number here names its source. [pub] = read in the named public document,
+[mem] = recalled from the named standard, [calc] = derived from other values here.
+"""
+
+from __future__ import annotations
+
+import math
+
+# Speed of light in vacuum, m/s [pub: SI definition, also IS-GPS-200 Table 20-IV].
+SPEED_OF_LIGHT_M_S = 299_792_458.0
+
+# WGS-84 ellipsoid [pub: NIMA TR8350.2, Table 3.1].
+WGS84_A_M = 6_378_137.0
+WGS84_F = 1.0 / 298.257223563
+WGS84_B_M = WGS84_A_M * (1.0 - WGS84_F)
+WGS84_E2 = WGS84_F * (2.0 - WGS84_F)
+
+# GPS ICD constants [pub: IS-GPS-200 Table 20-IV / IS-GPS-800 Table 3.5-2].
+GPS_MU_M3_S2 = 3.986005e14
+EARTH_ROTATION_RAD_S = 7.2921151467e-5
+GPS_PI = 3.1415926535898          # the ICD's own value of pi, used for semicircles
+GPS_REFERENCE_INCLINATION_SC = 0.30   # SEM delta-i reference, semicircles [pub: ICD-GPS-240]
+QZSS_REFERENCE_INCLINATION_SC = 0.25  # QZSS almanac reference [pub: IS-QZSS-PNT]
+
+# Earth gravitational parameter used for the two-body acceleration of TLE orbits
+# (WGS-72, as SGP4 itself uses) [pub: AIAA 2006-6753, Table 1].
+WGS72_MU_M3_S2 = 3.986008e14
+
+# Time scales.
+SECONDS_PER_DAY = 86_400.0
+SECONDS_PER_WEEK = 604_800.0
+HALF_WEEK_S = 302_400.0
+WEEKS_PER_ROLLOVER = 1024
+UNIX_JD = 2_440_587.5                # Julian date of 1970-01-01T00:00 UTC
+GPS_EPOCH_UNIX_S = 315_964_800.0     # 1980-01-06T00:00:00 UTC as POSIX seconds
+
+# GPS - UTC in whole seconds, in force from the given UTC instant (POSIX seconds)
+# [pub: IERS Bulletin C leap-second list; GPS = TAI - 19 s].
+GPS_UTC_LEAP_TABLE: tuple[tuple[float, int], ...] = (
+    (315_964_800.0, 0),    # 1980-01-06
+    (362_793_600.0, 1),    # 1981-07-01
+    (394_329_600.0, 2),    # 1982-07-01
+    (425_865_600.0, 3),    # 1983-07-01
+    (489_024_000.0, 4),    # 1985-07-01
+    (567_993_600.0, 5),    # 1988-01-01
+    (631_152_000.0, 6),    # 1990-01-01
+    (662_688_000.0, 7),    # 1991-01-01
+    (709_948_800.0, 8),    # 1992-07-01
+    (741_484_800.0, 9),    # 1993-07-01
+    (773_020_800.0, 10),   # 1994-07-01
+    (820_454_400.0, 11),   # 1996-01-01
+    (867_715_200.0, 12),   # 1997-07-01
+    (915_148_800.0, 13),   # 1999-01-01
+    (1_136_073_600.0, 14),  # 2006-01-01
+    (1_230_768_000.0, 15),  # 2009-01-01
+    (1_341_100_800.0, 16),  # 2012-07-01
+    (1_435_708_800.0, 17),  # 2015-07-01
+    (1_483_228_800.0, 18),  # 2017-01-01
+)
+
+TWO_PI = 2.0 * math.pi
+DEG = math.pi / 180.0
