@@ -1,0 +1,264 @@
+"""Tests of core.detection: square-law detector statistics and serial-search time."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from core import detection as det
+from core.errors import InputError
+
+
+def _binomial_ok(hits: int, trials: int, p: float, conf: float = 1 - 1e-5) -> bool:
+    """Is a hit count inside the two-sided binomial interval of probability p?"""
+    lo, hi = stats.binom.interval(conf, trials, p)
+    return lo <= hits <= hi
+
+
+def _square_law_mc(snr: float, n_nc: int, trials: int, rng) -> np.ndarray:
+    """Numpy-only square-law detector: z = sqrt(snr) e^{j phi} + n, E|n|^2 = 1, S = sum |z|^2."""
+    noise = (rng.standard_normal((trials, n_nc)) + 1j * rng.standard_normal((trials, n_nc)))
+    noise *= math.sqrt(0.5)
+    phase = rng.uniform(0, 2 * np.pi, (trials, 1))     # carrier phase unknown, fixed per cell
+    z = math.sqrt(snr) * np.exp(1j * phase) + noise
+    return np.sum(np.abs(z) ** 2, axis=1)
+
+
+# --------------------------------------------------------------------------- thresholds
+
+def test_threshold_n1_is_minus_log_pfa():
+    # N = 1: |n|^2 with E|n|^2 = 1 is exponential(1): P(S > t) = exp(-t) [standard result].
+    for pfa in (1e-2, 1e-3, 1e-8):
+        assert det.threshold_for_pfa(pfa, 1) == pytest.approx(-math.log(pfa), rel=1e-12)
+
+
+def test_threshold_and_false_alarm_invert_each_other():
+    pfa = np.array([[1e-2, 1e-4], [1e-6, 1e-9]])
+    n = np.array([1, 20])
+    thr = det.threshold_for_pfa(pfa, n)
+    assert thr.shape == (2, 2)
+    np.testing.assert_allclose(det.false_alarm_probability(thr, n), pfa, rtol=1e-9)
+
+
+@pytest.mark.parametrize("n_nc", [1, 10])
+def test_threshold_against_numpy_monte_carlo(n_nc):
+    rng = np.random.default_rng(100 + n_nc)
+    pfa, trials = 0.01, 200_000
+    s = _square_law_mc(0.0, n_nc, trials, rng)
+    hits = int(np.count_nonzero(s > det.threshold_for_pfa(pfa, n_nc)))
+    assert _binomial_ok(hits, trials, pfa), hits
+
+
+@pytest.mark.parametrize("n_nc, snr_db", [(1, 8.0), (10, 0.0), (10, 2.0)])
+def test_detection_probability_against_numpy_monte_carlo(n_nc, snr_db):
+    rng = np.random.default_rng(200 + n_nc + int(snr_db))
+    trials = 60_000
+    snr = 10 ** (snr_db / 10)
+    thr = det.threshold_for_pfa(1e-3, n_nc)
+    pd = det.detection_probability(snr, n_nc, thr)
+    assert 0.2 < pd < 0.99          # informative region
+    hits = int(np.count_nonzero(_square_law_mc(snr, n_nc, trials, rng) > thr))
+    assert _binomial_ok(hits, trials, pd), (hits / trials, pd)
+
+
+def test_detection_probability_without_signal_is_pfa():
+    thr = det.threshold_for_pfa(1e-4, 5)
+    assert det.detection_probability(0.0, 5, thr) == pytest.approx(1e-4, rel=1e-9)
+
+
+# --------------------------------------------------------------------------- required SNR
+
+@pytest.mark.parametrize("n_nc, expected_db", [(1, 14.2), (10, 6.1)])
+def test_required_snr_richards_figure(n_nc, expected_db):
+    # [pub: Richards, Fundamentals of Radar Signal Processing, Fig. 6.11]: square-law,
+    # steady target, Pfa 1e-8, Pd 0.9; read off a figure, so 0.15 dB tolerance.
+    assert det.required_snr_db(1e-8, 0.9, n_nc) == pytest.approx(expected_db, abs=0.15)
+
+
+@pytest.mark.parametrize("n_nc, expected_db", [(1, 10.76), (10, 3.36)])
+def test_required_snr_scipy_values(n_nc, expected_db):
+    # [calc with scipy] domain-notes 6: Pfa 1e-3, Pd 0.9.
+    assert det.required_snr_db(1e-3, 0.9, n_nc) == pytest.approx(expected_db, abs=0.005)
+
+
+def test_required_snr_round_trip_and_vectorized():
+    pfa = np.array([1e-3, 1e-6, 1e-10])[:, None]
+    pd = np.array([0.5, 0.9, 0.99])[None, :]
+    snr_db = det.required_snr_db(pfa, pd, 4)
+    assert snr_db.shape == (3, 3)
+    got = det.detection_probability(10 ** (snr_db / 10), 4, det.threshold_for_pfa(pfa, 4))
+    np.testing.assert_allclose(got, np.broadcast_to(pd, (3, 3)), rtol=1e-9)
+    # more pulses -> less per-pulse SNR needed
+    assert det.required_snr_db(1e-6, 0.9, 100) < det.required_snr_db(1e-6, 0.9, 10)
+
+
+def test_sensitivity_is_snr_plus_30_at_1ms():
+    # domain-notes 6: at Tc = 1 ms, C/N0 [dB-Hz] = SNR [dB] + 30; losses add.
+    snr = det.required_snr_db(1e-3, 0.9, 1)
+    assert det.sensitivity_dbhz(1e-3, 0.9, 1, 1e-3) == pytest.approx(snr + 30.0, abs=1e-9)
+    assert det.sensitivity_dbhz(1e-3, 0.9, 1, 1e-3, 2.5) == pytest.approx(snr + 32.5, abs=1e-9)
+    assert det.sensitivity_dbhz(1e-3, 0.9, 1, 10e-3) == pytest.approx(snr + 20.0, abs=1e-9)
+
+
+def test_coherent_snr_and_pd_at_cn0():
+    # [pub: Kaplan & Hegarty eqs. 5.52-5.53] SNR = C/N0 Tc: 40 dB-Hz, 1 ms -> 10 dB.
+    assert det.coherent_snr_linear(40.0, 1e-3) == pytest.approx(10.0)
+    assert det.coherent_snr_linear(40.0, 1e-3, 3.0) == pytest.approx(10 * 10 ** -0.3)
+    cn0 = np.array([[30.0, 35.0, 40.0], [38.0, 42.0, 45.0]])
+    pd = det.detection_probability_at_cn0(cn0, 1e-3, 1, 1e-3)
+    assert pd.shape == (2, 3) and np.all(np.diff(pd[0]) > 0)
+    need = det.sensitivity_dbhz(1e-3, 0.9, 1, 1e-3)
+    assert det.detection_probability_at_cn0(need, 1e-3, 1, 1e-3) == pytest.approx(0.9, rel=1e-9)
+
+
+@pytest.mark.parametrize("call, field", [
+    (lambda: det.required_snr_db(0.1, 0.05, 1), "pd"),
+    (lambda: det.required_snr_db(0.0, 0.9, 1), "pfa"),
+    (lambda: det.required_snr_db(1e-3, 1.0, 1), "pd"),
+    (lambda: det.threshold_for_pfa(1e-3, 2.5), "n_noncoherent"),
+    (lambda: det.threshold_for_pfa(1e-3, 0), "n_noncoherent"),
+    (lambda: det.sensitivity_dbhz(1e-3, 0.9, 1, 0.0), "coherent_s"),
+    (lambda: det.detection_probability(-1.0, 1, 3.0), "snr_linear"),
+])
+def test_detection_rejects_bad_input(call, field):
+    with pytest.raises(InputError) as err:
+        call()
+    assert err.value.field == field
+
+
+# --------------------------------------------------------------------------- elevation
+
+def test_cn0_elevation_model():
+    z, m = 48.0, 38.0
+    assert det.cn0_at_elevation_dbhz(90.0, z, m, 10.0) == pytest.approx(z)
+    assert det.cn0_at_elevation_dbhz(10.0, z, m, 10.0) == pytest.approx(m)
+    # documented model: linear in sin(el); with a 0 deg mask, sin 30 deg = 1/2 -> midpoint
+    assert det.cn0_at_elevation_dbhz(30.0, z, m, 0.0) == pytest.approx(0.5 * (z + m))
+    el = np.array([[-5.0, 5.0, 15.0], [40.0, 70.0, 90.0]])
+    got = det.cn0_at_elevation_dbhz(el, z, m, 10.0)
+    assert got.shape == (2, 3)
+    assert got[0, 0] == pytest.approx(m) and got[0, 1] == pytest.approx(m)   # clipped
+    assert np.all(np.diff(got.ravel()[1:]) >= 0)
+    nan = det.cn0_at_elevation_dbhz(el, z, m, 10.0, below_mask_nan=True)
+    assert np.isnan(nan[0, 0]) and np.isnan(nan[0, 1]) and not np.isnan(nan[0, 2])
+    with pytest.raises(InputError):
+        det.cn0_at_elevation_dbhz(30.0, z, m, 90.0)
+
+
+# --------------------------------------------------------------------------- serial search
+
+def _formula(q, td, pd, pfa, pen):
+    """The published form, restated [mem: Polydoros & Weber 1984; Holmes]."""
+    k = pen / td
+    return (2 + (2 - pd) * (q - 1) * (1 + k * pfa)) / (2 * pd) * td
+
+
+def test_mean_search_time_limits():
+    # q = 1: one position, found after a geometric number of dwells: td / Pd.
+    assert det.mean_search_time_s(1, 2e-3, 0.8, 0.1, 1.0) == pytest.approx(2e-3 / 0.8)
+    # Pd = 1, Pfa = 0: (q + 1) td / 2 (domain-notes 6)
+    for q in (2, 17, 2046):
+        assert det.mean_search_time_s(q, 1e-3, 1.0, 0.0, 5.0) == pytest.approx((q + 1) * 1e-3 / 2)
+
+
+def test_mean_search_time_vectorized():
+    q = np.array([[10, 100], [1000, 5000]])
+    pd = np.array([0.5, 0.9])
+    got = det.mean_search_time_s(q, 1e-3, pd, 1e-3, 0.5)
+    assert got.shape == (2, 2)
+    assert got[1, 0] == pytest.approx(_formula(1000, 1e-3, 0.5, 1e-3, 0.5))
+
+
+def _loop_search(q, pd, pfa, td, pen, rng) -> float:
+    """Literal cell-by-cell serial search (one run), for checking the vectorized simulator."""
+    signal = int(rng.integers(q))
+    t, cell = 0.0, 0
+    while True:
+        t += td
+        if cell == signal:
+            if rng.random() < pd:
+                return t
+        elif rng.random() < pfa:
+            t += pen
+        cell = (cell + 1) % q
+
+
+def test_simulation_matches_formula():
+    rng = np.random.default_rng(11)
+    for q, pd, pfa, td, pen in [(50, 0.7, 0.05, 1e-3, 0.1), (400, 0.95, 1e-3, 4e-3, 1.0),
+                                (1, 0.6, 0.5, 1e-3, 1.0)]:
+        t = det.simulate_serial_search(q, pd, pfa, td, pen, 200_000, rng)
+        sem = t.std() / math.sqrt(t.size)
+        assert abs(t.mean() - _formula(q, td, pd, pfa, pen)) < 5 * sem, (q, pd)
+
+
+def test_simulation_limit_pd1_pfa0():
+    rng = np.random.default_rng(12)
+    t = det.simulate_serial_search(20, 1.0, 0.0, 1e-3, 9.9, 50_000, rng)
+    # signal position uniform in 0..19, found on the first pass: times 1..20 dwells
+    np.testing.assert_allclose(np.unique(np.round(t / 1e-3)), np.arange(1, 21))
+    assert abs(t.mean() - 21 * 1e-3 / 2) < 5 * t.std() / math.sqrt(t.size)
+
+
+def test_simulation_matches_literal_cell_by_cell_search():
+    q, pd, pfa, td, pen = 12, 0.6, 0.1, 1e-3, 5e-3
+    rng = np.random.default_rng(13)
+    loop = np.array([_loop_search(q, pd, pfa, td, pen, rng) for _ in range(4000)])
+    vec = det.simulate_serial_search(q, pd, pfa, td, pen, 40_000, rng)
+    # same distribution: two-sample Kolmogorov-Smirnov, and the means against the formula
+    assert stats.ks_2samp(loop, vec).pvalue > 1e-4
+    mean = _formula(q, td, pd, pfa, pen)
+    assert abs(loop.mean() - mean) < 5 * loop.std() / math.sqrt(loop.size)
+
+
+def test_simulation_accepts_per_run_parameters():
+    rng = np.random.default_rng(14)
+    n = 100_000
+    pd = np.where(np.arange(n) % 2 == 0, 0.5, 0.9)
+    q = np.where(np.arange(n) % 2 == 0, 30, 300)
+    t = det.simulate_serial_search(q, pd, 0.01, 1e-3, 0.2, n, rng)
+    for sel, qq, p in ((slice(0, None, 2), 30, 0.5), (slice(1, None, 2), 300, 0.9)):
+        ts = t[sel]
+        assert abs(ts.mean() - _formula(qq, 1e-3, p, 0.01, 0.2)) < 5 * ts.std() / math.sqrt(ts.size)
+    with pytest.raises(InputError):
+        det.simulate_serial_search(np.array([10, 20, 30]), 0.9, 0.0, 1e-3, 0.0, 4, rng)
+    with pytest.raises(InputError):
+        det.simulate_serial_search(10, 0.0, 0.0, 1e-3, 0.0, 4, rng)
+
+
+# --------------------------------------------------------------------------- positions
+
+def test_search_positions():
+    p = det.search_positions(2046, 20, 1, False, 1e-4)
+    assert (p.positions, p.cells_per_position, p.total_cells) == (40920, 1, 40920)
+    assert p.pfa_position == pytest.approx(1e-4)
+    p = det.search_positions(2046, 20, 10, False, 1e-4)
+    assert p.positions == 205 * 20 and p.cells_per_position == 10   # ceil(204.6) = 205
+    assert p.pfa_position == pytest.approx(1 - (1 - 1e-4) ** 10, rel=1e-12)
+    p = det.search_positions(2046, 20, 1, True, 1e-6)
+    assert p.positions == 20 and p.cells_per_position == 2046
+    assert p.pfa_position == pytest.approx(1 - (1 - 1e-6) ** 2046, rel=1e-9)
+    # more correlators than cells: one dwell per bin
+    assert det.search_positions(8, 5, 16).positions == 5
+    assert det.search_positions(8, 5, 16).pfa_position is None
+    # tiny per-cell Pfa keeps its precision
+    assert det.search_positions(1, 1, 1, False, 1e-15).pfa_position == pytest.approx(1e-15)
+    v = det.search_positions(np.array([[14, 2046], [100, 7]]), 11, 4, False, 1e-3)
+    np.testing.assert_array_equal(v.positions, np.array([[4, 512], [25, 2]]) * 11)
+
+
+def test_search_cost_combines_positions_and_time():
+    c = det.search_cost(freq_bins=20, code_cells=2046, correlators_per_channel=1,
+                        parallel_code_search=True, coherent_s=1e-3, noncoherent=5,
+                        pfa_cell=1e-6, pd=0.9, penalty_s=0.5)
+    pfa_pos = 1 - (1 - 1e-6) ** 2046
+    assert c.positions == 20 and c.dwell_s == pytest.approx(5e-3)
+    assert c.pfa_position == pytest.approx(pfa_pos, rel=1e-9)
+    assert c.expected_search_s == pytest.approx(_formula(20, 5e-3, 0.9, pfa_pos, 0.5), rel=1e-12)
+    pd = np.array([[0.5, 0.9], [0.99, 0.7]])
+    c = det.search_cost(20, 2046, 4, False, 1e-3, 1, 1e-4, pd, 0.1)
+    assert c.expected_search_s.shape == (2, 2)
+    assert c.to_dict()["positions"] == 512 * 20
