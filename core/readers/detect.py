@@ -1,0 +1,125 @@
+"""Open orbit files of any supported kind: the reader is chosen from the content.
+
+Recognition, in this order (file names and extensions are not used):
+
+* YUMA: a line ``**** Week N almanac for PRN-XX ****``;
+* TLE: a line starting ``1 `` of at least 69 columns followed by a line starting ``2 ``;
+* SEM: first line ``<count> <title>``, second line ``<week> <toa>``, then a PRN.
+
+Reference time (the planned start; a timezone-aware datetime or UTC POSIX seconds) places
+the 10-bit almanac weeks in their 1024-week era (:func:`core.timeutil.resolve_week`) and
+sets ``OrbitFileInfo.age_s``. Without it, almanac weeks are taken as written (no rollover
+added) and a warning says so and lists the other possible eras; the computer clock is
+never used.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Mapping
+from datetime import datetime
+from pathlib import Path
+
+from ..errors import InputError, OrbitFormatError
+from ..orbits import OrbitSet
+from .identity import glonass_k_warning
+from .mapping import as_mapping
+from .sem import is_sem, parse_sem
+from .tle import is_tle, parse_tle, with_reference
+from .yuma import is_yuma, parse_yuma, reference_to_unix_s
+
+MappingArg = str | Path | Mapping[int, tuple[str, int | None]] | None
+
+_COMPRESSED = ((b"\x1f\x8b", "gzip"), (b"\x1f\x9d", "Unix compress (.Z)"),
+               (b"PK\x03\x04", "zip"), (b"BZh", "bzip2"), (b"\xfd7zXZ", "xz"))
+
+
+def detect_format(text: str) -> str | None:
+    """'YUMA', 'TLE' or 'SEM' from the text, or None when it is none of them."""
+    if is_yuma(text):
+        return "YUMA"
+    if is_tle(text):
+        return "TLE"
+    if is_sem(text):
+        return "SEM"
+    return None
+
+
+def read_text(path: str | Path) -> str:
+    """The file's text; every problem reading it is an OrbitFormatError naming the file."""
+    p = Path(path)
+    src = str(p)
+    try:
+        data = p.read_bytes()
+    except FileNotFoundError:
+        raise OrbitFormatError("file not found", file=src) from None
+    except IsADirectoryError:
+        raise OrbitFormatError("is a folder, not an orbit file", file=src) from None
+    except PermissionError:
+        raise OrbitFormatError("no permission to read the file", file=src) from None
+    except OSError as exc:
+        raise OrbitFormatError(f"cannot read the file ({exc.strerror or exc})", file=src) from None
+    if not data.strip():
+        raise OrbitFormatError("the file is empty", file=src)
+    for magic, kind in _COMPRESSED:
+        if data.startswith(magic):
+            raise OrbitFormatError(f"this is a {kind} compressed file; decompress it first",
+                                   file=src)
+    if b"\x00" in data:
+        raise OrbitFormatError("binary data, not a text orbit file", file=src)
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        # Names are the only free text; keep going with a one-byte-per-character decoding.
+        return data.decode("latin-1")
+
+
+def parse_orbits(text: str, source: str, reference_time: datetime | float | None = None,
+                 mapping: MappingArg = None, *, strict: bool = True,
+                 k_warning: bool = True) -> OrbitSet:
+    """Parse orbit text of any supported format (see :func:`load_orbits`)."""
+    reference_unix_s = reference_to_unix_s(reference_time)
+    fmt = detect_format(text)
+    if fmt == "YUMA":
+        return parse_yuma(text, source, reference_unix_s)
+    if fmt == "SEM":
+        return parse_sem(text, source, reference_unix_s)
+    if fmt == "TLE":
+        return with_reference(parse_tle(text, source, mapping, strict=strict,
+                                        k_warning=k_warning), reference_unix_s)
+    if not text.strip():
+        raise OrbitFormatError("the file is empty", file=source)
+    raise OrbitFormatError("not a YUMA, SEM or TLE orbit file (no YUMA record header, no TLE "
+                           "line pair, no SEM header)", file=source, line=1, field="format")
+
+
+def load_orbits(path: str | Path, reference_time: datetime | float | None = None,
+                mapping: MappingArg = None, *, strict: bool = True) -> OrbitSet:
+    """Read one YUMA, SEM or TLE file into an OrbitSet.
+
+    ``reference_time``: the planned start (aware datetime or UTC POSIX seconds), used to
+    resolve 10-bit almanac weeks and to compute the data age. ``mapping``: a mapping file
+    path or a dict {catalogue number: (sat_id, glonass_k)}, applied to TLE records.
+    ``strict``: TLE records with a bad checksum or field raise (True) or are skipped with a
+    warning (False). Errors are :class:`OrbitFormatError` (file problems) or
+    :class:`InputError` (a bad argument).
+    """
+    table = as_mapping(mapping)
+    return parse_orbits(read_text(path), str(path), reference_time, table, strict=strict)
+
+
+def load_orbit_files(paths: Iterable[str | Path],
+                     reference_time: datetime | float | None = None,
+                     mapping: MappingArg = None, *, strict: bool = True) -> OrbitSet:
+    """Read several orbit files and merge them (OrbitSet.merge: a repeated ID gets '#2')."""
+    path_list = list(paths)
+    if not path_list:
+        raise InputError("no orbit files given", field="paths")
+    table = as_mapping(mapping)
+    reference_unix_s = reference_to_unix_s(reference_time)
+    sets = [parse_orbits(read_text(p), str(p), reference_unix_s, table, strict=strict,
+                         k_warning=False) for p in path_list]
+    merged = OrbitSet().merge(*sets)
+    kw = glonass_k_warning(merged.entries)
+    if kw:
+        merged.warnings.append(kw)
+    return merged
