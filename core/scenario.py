@@ -1,0 +1,905 @@
+"""Scenario files: what to plan, where, when, for which receiver (TOML).
+
+A scenario is read with :mod:`tomllib` and written back with ``tomli_w``. Every key is
+described by one :class:`KeyRule` in :data:`KEY_RULES` (type, unit, default, allowed range);
+``docs/scenario-keys.md`` documents the same keys for users.
+
+Validation collects every bad field and raises one :class:`ScenarioValidationError` (a
+:class:`~core.errors.ScenarioError`) whose ``problems`` list holds one ScenarioError per
+field, each with ``field`` (dotted key such as ``search.coherent_ms``), ``file`` and, when
+the key can be found in the file text, ``line``. Unknown keys are errors (typo protection),
+with a "did you mean" hint.
+
+Orbit file names are stored as written (relative names are relative to the scenario
+file's folder); :meth:`Scenario.resolved_orbit_files` gives absolute paths.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import numbers
+import os
+import re
+import tempfile
+import tomllib
+from collections.abc import Mapping
+from dataclasses import dataclass, field, replace
+from datetime import UTC, date, datetime, time
+from pathlib import Path
+from typing import Any
+from zoneinfo import ZoneInfo, ZoneInfoNotFoundError, available_timezones
+
+import tomli_w
+
+from .errors import InputError, ScenarioError
+from .signals import SIGNALS, Signal
+from .timeutil import TimeGrid, iso_z, parse_iso_utc, time_grid
+
+FORMAT_VERSION = 1
+MAX_WINDOW_S = 7 * 86_400.0      # longest planning window accepted (7 days)
+PRIORITIES = ("elevation", "rising")
+# Keys allowed inside [search.per_signal.<SIGNAL-ID>] tables.
+PER_SIGNAL_KEYS = ("coherent_ms", "noncoherent")
+
+
+class _Required:
+    def __repr__(self) -> str:
+        return "REQUIRED"
+
+
+REQUIRED: Any = _Required()
+
+
+@dataclass(frozen=True)
+class KeyRule:
+    """One scenario key: where it lives, what it holds, its default and allowed range."""
+
+    section: str                 # "" for top-level keys
+    key: str
+    kind: str                    # number, integer, bool, text, choice, time, zone, path, paths, signals
+    default: Any = REQUIRED      # REQUIRED: must be given; None: optional, absent means "not set"
+    lo: float | None = None
+    hi: float | None = None
+    unit: str = ""
+    choices: tuple[str, ...] = ()
+    doc: str = ""
+
+    @property
+    def dotted(self) -> str:
+        return f"{self.section}.{self.key}" if self.section else self.key
+
+    @property
+    def required(self) -> bool:
+        return self.default is REQUIRED
+
+
+def _r(section: str, key: str, kind: str, default: Any = REQUIRED, lo: float | None = None,
+       hi: float | None = None, unit: str = "", choices: tuple[str, ...] = (), doc: str = "") -> KeyRule:
+    return KeyRule(section, key, kind, default, lo, hi, unit, choices, doc)
+
+
+KEY_RULES: tuple[KeyRule, ...] = (
+    _r("", "name", "text", "Untitled scenario", doc="title shown in the window and on reports"),
+    _r("", "format_version", "integer", FORMAT_VERSION, 1, FORMAT_VERSION,
+       doc="version of this file layout; written by acqplan"),
+    _r("orbits", "files", "paths", (), doc="almanac/TLE files, relative to the scenario file"),
+    _r("orbits", "mapping", "path", None, doc="GLONASS mapping file (catalogue number, ID, channel k)"),
+    _r("site", "lat_deg", "number", REQUIRED, -90.0, 90.0, "deg", doc="geodetic latitude, WGS-84"),
+    _r("site", "lon_deg", "number", REQUIRED, -180.0, 180.0, "deg", doc="longitude, east positive"),
+    _r("site", "height_m", "number", 0.0, -500.0, 20_000.0, "m", doc="height above the WGS-84 ellipsoid"),
+    _r("site", "horizontal_uncertainty_km", "number", 30.0, 0.0, 20_000.0, "km",
+       doc="how far the true position may be from lat/lon"),
+    _r("site", "vertical_uncertainty_m", "number", 500.0, 0.0, 20_000.0, "m",
+       doc="how far the true height may be from height_m"),
+    _r("time", "start", "time", REQUIRED, doc="start of the planning window, ISO 8601 UTC"),
+    _r("time", "end", "time", REQUIRED, doc="end of the window; after start, at most 7 days later"),
+    _r("time", "step_s", "number", 60.0, 1.0, 3600.0, "s", doc="time step of the plan"),
+    _r("time", "uncertainty_s", "number", 2.0, 0.0, 86_400.0, "s",
+       doc="how far the receiver's clock may be from true time"),
+    _r("time", "timezone", "zone", "UTC", doc="IANA zone for local-time display, e.g. Europe/Zurich"),
+    _r("receiver", "signals", "signals", ("GPS-L1CA",), doc="signals to search, see the list below"),
+    _r("receiver", "channels", "integer", 12, 1, 256, doc="search channels working at the same time"),
+    _r("receiver", "oscillator_offset_ppb", "number", 0.0, -50_000.0, 50_000.0, "ppb",
+       doc="known frequency offset of the reference oscillator"),
+    _r("receiver", "oscillator_uncertainty_ppb", "number", 500.0, 0.0, 50_000.0, "ppb",
+       doc="unknown part of the oscillator offset (+-)"),
+    _r("receiver", "max_horizontal_speed_m_s", "number", 0.0, 0.0, 1000.0, "m/s",
+       doc="largest horizontal speed of the receiver"),
+    _r("receiver", "max_vertical_speed_m_s", "number", 0.0, 0.0, 500.0, "m/s",
+       doc="largest vertical speed of the receiver"),
+    _r("receiver", "correlators_per_channel", "integer", 1, 1, 1_000_000,
+       doc="code offsets one channel tests in one dwell"),
+    _r("receiver", "parallel_code_search", "bool", False,
+       doc="true: each dwell covers a whole code period (e.g. FFT search)"),
+    _r("search", "coherent_ms", "number", 1.0, 1.0, 1000.0, "ms", doc="coherent integration time"),
+    _r("search", "noncoherent", "integer", 5, 1, 1000, doc="coherent blocks summed non-coherently"),
+    _r("search", "max_frequency_loss_db", "number", 1.0, 0.1, 3.0, "dB",
+       doc="largest loss allowed at the edge of a frequency bin (sets the bin width)"),
+    _r("search", "code_step_chips", "number", 0.5, 0.05, 1.0, "chips", doc="code-phase step"),
+    _r("search", "false_alarm_per_cell", "number", 1e-4, 1e-12, 0.1,
+       doc="false-alarm probability per search cell"),
+    _r("search", "false_alarm_penalty_s", "number", 0.1, 0.0, 600.0, "s",
+       doc="time lost to reject one false alarm"),
+    _r("search", "fine_time_uncertainty_us", "number", None, 0.0, 100_000.0, "us",
+       doc="fine time assistance: narrows the code window; absent = no fine time"),
+    _r("search", "first_fix_satellites", "integer", 4, 1, 64,
+       doc="satellites needed for the first fix"),
+    _r("search", "ephemeris_wait_s", "number", 30.0, 0.0, 3600.0, "s",
+       doc="time from acquisition to a usable ephemeris"),
+    _r("search", "orbit_margin_hz", "number", None, 0.0, 10_000.0, "Hz",
+       doc="override of the Doppler margin for orbit-data error; absent = from the data's age"),
+    _r("search", "priority", "choice", "elevation", choices=PRIORITIES,
+       doc="order of the search: highest first, or rising satellites first"),
+    _r("search", "monte_carlo_runs", "integer", 500, 1, 100_000, doc="simulated acquisitions"),
+    _r("search", "seed", "integer", 1, 0, 2**63 - 1, doc="random seed of the simulation"),
+    _r("signal", "cn0_zenith_dbhz", "number", 45.0, 10.0, 60.0, "dB-Hz", doc="C/N0 at 90 deg elevation"),
+    _r("signal", "cn0_at_mask_dbhz", "number", 35.0, 10.0, 60.0, "dB-Hz",
+       doc="C/N0 at the elevation mask; not above cn0_zenith_dbhz"),
+    _r("signal", "extra_loss_db", "number", 0.0, 0.0, 50.0, "dB",
+       doc="extra attenuation (foliage, car body, indoor)"),
+    _r("mask", "elevation_deg", "number", 5.0, -5.0, 60.0, "deg", doc="elevation mask"),
+)
+
+RULES_BY_DOTTED: dict[str, KeyRule] = {r.dotted: r for r in KEY_RULES}
+SECTIONS: tuple[str, ...] = ("orbits", "site", "time", "receiver", "search", "signal", "mask")
+_SECTION_KEYS: dict[str, tuple[str, ...]] = {
+    s: tuple(r.key for r in KEY_RULES if r.section == s) for s in ("", *SECTIONS)}
+_PER_SIGNAL_RULES = {k: RULES_BY_DOTTED[f"search.{k}"] for k in PER_SIGNAL_KEYS}
+
+
+# ---------------------------------------------------------------------------------------
+# The scenario as frozen dataclasses
+
+@dataclass(frozen=True)
+class OrbitSpec:
+    files: tuple[str, ...] = ()
+    mapping: str | None = None
+
+
+@dataclass(frozen=True)
+class SiteSpec:
+    lat_deg: float
+    lon_deg: float
+    height_m: float = 0.0
+    horizontal_uncertainty_km: float = 30.0
+    vertical_uncertainty_m: float = 500.0
+
+
+@dataclass(frozen=True)
+class TimeSpec:
+    start: datetime             # timezone-aware, UTC
+    end: datetime
+    step_s: float = 60.0
+    uncertainty_s: float = 2.0
+    timezone: str = "UTC"
+
+    @property
+    def start_unix_s(self) -> float:
+        return self.start.timestamp()
+
+    @property
+    def end_unix_s(self) -> float:
+        return self.end.timestamp()
+
+    @property
+    def duration_s(self) -> float:
+        return self.end_unix_s - self.start_unix_s
+
+    @property
+    def tzinfo(self) -> ZoneInfo:
+        return ZoneInfo(self.timezone)
+
+    def grid(self) -> TimeGrid:
+        """The plan's instants, start to end inclusive, every step_s."""
+        return time_grid(self.start, self.end, self.step_s)
+
+
+@dataclass(frozen=True)
+class ReceiverSpec:
+    signals: tuple[str, ...] = ("GPS-L1CA",)
+    channels: int = 12
+    oscillator_offset_ppb: float = 0.0
+    oscillator_uncertainty_ppb: float = 500.0
+    max_horizontal_speed_m_s: float = 0.0
+    max_vertical_speed_m_s: float = 0.0
+    correlators_per_channel: int = 1
+    parallel_code_search: bool = False
+
+    def signal_objects(self) -> tuple[Signal, ...]:
+        return tuple(SIGNALS[s] for s in self.signals)
+
+
+@dataclass(frozen=True)
+class SignalOverride:
+    """Per-signal values that replace the [search] ones (None = use [search])."""
+
+    coherent_ms: float | None = None
+    noncoherent: int | None = None
+
+
+@dataclass(frozen=True)
+class SearchSpec:
+    coherent_ms: float = 1.0
+    noncoherent: int = 5
+    max_frequency_loss_db: float = 1.0
+    code_step_chips: float = 0.5
+    false_alarm_per_cell: float = 1e-4
+    false_alarm_penalty_s: float = 0.1
+    fine_time_uncertainty_us: float | None = None
+    first_fix_satellites: int = 4
+    ephemeris_wait_s: float = 30.0
+    orbit_margin_hz: float | None = None
+    priority: str = "elevation"
+    monte_carlo_runs: int = 500
+    seed: int = 1
+    per_signal: tuple[tuple[str, SignalOverride], ...] = ()
+
+    def integration_for(self, signal_id: str) -> tuple[float, int]:
+        """(coherent_ms, noncoherent) for one signal: the per-signal override, else [search]."""
+        over = dict(self.per_signal).get(signal_id.strip().upper(), SignalOverride())
+        coh = self.coherent_ms if over.coherent_ms is None else over.coherent_ms
+        nc = self.noncoherent if over.noncoherent is None else over.noncoherent
+        return coh, nc
+
+
+@dataclass(frozen=True)
+class SignalSpec:
+    cn0_zenith_dbhz: float = 45.0
+    cn0_at_mask_dbhz: float = 35.0
+    extra_loss_db: float = 0.0
+
+
+@dataclass(frozen=True)
+class MaskSpec:
+    elevation_deg: float = 5.0
+
+
+_SECTION_CLASSES: dict[str, type] = {
+    "orbits": OrbitSpec, "site": SiteSpec, "time": TimeSpec, "receiver": ReceiverSpec,
+    "search": SearchSpec, "signal": SignalSpec, "mask": MaskSpec,
+}
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """A validated scenario. ``path`` and ``base_dir`` do not take part in ``==``."""
+
+    site: SiteSpec
+    time: TimeSpec
+    name: str = "Untitled scenario"
+    orbits: OrbitSpec = OrbitSpec()
+    receiver: ReceiverSpec = ReceiverSpec()
+    search: SearchSpec = SearchSpec()
+    signal: SignalSpec = SignalSpec()
+    mask: MaskSpec = MaskSpec()
+    path: Path | None = field(default=None, compare=False)
+    base_dir: Path = field(default_factory=Path.cwd, compare=False)
+
+    # -- convenience
+    @property
+    def start_unix_s(self) -> float:
+        return self.time.start_unix_s
+
+    @property
+    def end_unix_s(self) -> float:
+        return self.time.end_unix_s
+
+    def resolved_orbit_files(self) -> list[Path]:
+        """Absolute paths of the orbit files (relative names are taken from base_dir)."""
+        return [_resolve(self.base_dir, f) for f in self.orbits.files]
+
+    def resolved_mapping(self) -> Path | None:
+        return None if self.orbits.mapping is None else _resolve(self.base_dir, self.orbits.mapping)
+
+    def missing_orbit_files(self) -> list[Path]:
+        """Orbit and mapping files that do not exist (empty when all are there)."""
+        paths = self.resolved_orbit_files()
+        m = self.resolved_mapping()
+        if m is not None:
+            paths.append(m)
+        return [p for p in paths if not p.is_file()]
+
+    # -- conversion
+    def to_dict(self) -> dict[str, Any]:
+        """Plain nested dict in file layout (TOML-ready: times as ISO text, None left out)."""
+        out: dict[str, Any] = {"name": self.name, "format_version": FORMAT_VERSION}
+        for section in SECTIONS:
+            spec = getattr(self, section)
+            table: dict[str, Any] = {}
+            for key in _SECTION_KEYS[section]:
+                value = _to_file_value(getattr(spec, key))
+                if value is not None:
+                    table[key] = value
+            if section == "search" and self.search.per_signal:
+                per: dict[str, Any] = {}
+                for sid, over in self.search.per_signal:
+                    sub = {k: _to_file_value(getattr(over, k)) for k in PER_SIGNAL_KEYS
+                           if getattr(over, k) is not None}
+                    per[sid] = sub
+                table["per_signal"] = per
+            out[section] = table
+        return out
+
+    @classmethod
+    def from_dict(cls, d: Mapping[str, Any], base_dir: str | os.PathLike[str] | None = None,
+                  path: str | os.PathLike[str] | None = None) -> Scenario:
+        """Validate a nested dict (file layout) and build the Scenario.
+
+        Raises :class:`ScenarioValidationError` listing every bad field.
+        """
+        return _build(d, base_dir=base_dir, path=path, text=None)
+
+    def with_changes(self, **updates: Any) -> Scenario:
+        """A validated copy with some values changed.
+
+        Each keyword is a section name with a dict of keys to change (or a whole spec
+        object), or ``name=``. Example: ``sc.with_changes(search={"coherent_ms": 8})``.
+        """
+        d = self.to_dict()
+        for key, value in updates.items():
+            if key in ("name", "format_version"):
+                d[key] = value
+            elif key in SECTIONS:
+                if isinstance(value, _SECTION_CLASSES[key]):
+                    d[key] = _spec_to_table(key, value)
+                elif isinstance(value, Mapping):
+                    d[key] = {**d.get(key, {}), **value}
+                else:
+                    raise TypeError(f"with_changes({key}=...) needs a dict or a {_SECTION_CLASSES[key].__name__}")
+            else:
+                raise TypeError(f"with_changes: no section '{key}'")
+        return _build(d, base_dir=self.base_dir, path=self.path, text=None)
+
+    def validated(self) -> Scenario:
+        """Re-check a scenario built by hand (dataclass constructors do not validate)."""
+        return _build(self.to_dict(), base_dir=self.base_dir, path=self.path, text=None)
+
+
+def _spec_to_table(section: str, spec: Any) -> dict[str, Any]:
+    sc = Scenario(site=SiteSpec(0.0, 0.0), time=TimeSpec(datetime(2000, 1, 1, tzinfo=UTC),
+                                                          datetime(2000, 1, 2, tzinfo=UTC)))
+    return replace(sc, **{section: spec}).to_dict()[section]
+
+
+def _resolve(base_dir: Path, name: str) -> Path:
+    p = Path(name).expanduser()
+    return p if p.is_absolute() else (Path(base_dir) / p).resolve()
+
+
+def _to_file_value(v: Any) -> Any:
+    if v is None:
+        return None
+    if isinstance(v, bool):
+        return v
+    if isinstance(v, datetime):
+        return iso_z(v.timestamp())
+    if isinstance(v, float):
+        # Whole numbers are written without ".0"; loading turns them back into floats.
+        return int(v) if v.is_integer() and abs(v) < 1e15 else v
+    if isinstance(v, tuple):
+        return list(v)
+    return v
+
+
+# ---------------------------------------------------------------------------------------
+# Errors
+
+class ScenarioValidationError(ScenarioError):
+    """One or more scenario fields are bad. ``problems`` holds one ScenarioError per field."""
+
+    def __init__(self, problems: list[ScenarioError], *, file: str | None = None):
+        self.problems = list(problems)
+        if len(self.problems) == 1:
+            p = self.problems[0]
+            super().__init__(p.message, file=p.file or file, line=p.line, field=p.field)
+        else:
+            lines = [f"{len(self.problems)} problems in the scenario:"]
+            for p in self.problems:
+                lines.append("  - " + _locate_without_file(p))
+            super().__init__("\n".join(lines), file=file)
+
+
+def _locate_without_file(p: ScenarioError) -> str:
+    where = []
+    if p.line is not None:
+        where.append(f"line {p.line}")
+    if p.field:
+        where.append(f"field '{p.field}'")
+    return (", ".join(where) + ": " + p.message) if where else p.message
+
+
+# ---------------------------------------------------------------------------------------
+# Locating keys in the file text (for line numbers)
+
+_HEADER_RE = re.compile(r"^\s*\[\s*([^\[\]]+?)\s*\]\s*(#.*)?$")
+_KEY_RE = re.compile(r"^\s*((?:[A-Za-z0-9_\-]+|\"[^\"]*\"|'[^']*')(?:\s*\.\s*(?:[A-Za-z0-9_\-]+|\"[^\"]*\"|'[^']*'))*)\s*=")
+
+
+def _split_key(text: str) -> list[str]:
+    parts = re.findall(r"\"[^\"]*\"|'[^']*'|[A-Za-z0-9_\-]+", text)
+    return [p[1:-1] if p[:1] in "\"'" else p for p in parts]
+
+
+class _Locator:
+    """Maps dotted keys and table headers to 1-based line numbers of a TOML text."""
+
+    def __init__(self, text: str | None):
+        self.keys: dict[str, int] = {}
+        self.tables: dict[str, int] = {}
+        if not text:
+            return
+        table: list[str] = []
+        for n, line in enumerate(text.splitlines(), start=1):
+            h = _HEADER_RE.match(line)
+            if h:
+                table = _split_key(h.group(1))
+                self.tables.setdefault(".".join(table), n)
+                continue
+            k = _KEY_RE.match(line)
+            if k:
+                self.keys.setdefault(".".join([*table, *_split_key(k.group(1))]), n)
+
+    def line_of(self, dotted: str) -> int | None:
+        if dotted in self.keys:
+            return self.keys[dotted]
+        if dotted in self.tables:
+            return self.tables[dotted]
+        # A missing key: point at its table header, if there is one.
+        head = dotted.rpartition(".")[0]
+        while head:
+            if head in self.tables:
+                return self.tables[head]
+            head = head.rpartition(".")[0]
+        return None
+
+
+# ---------------------------------------------------------------------------------------
+# Validation
+
+def _show(v: Any) -> str:
+    """A value as the user wrote it (TOML spelling)."""
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, str):
+        return repr(v)
+    if isinstance(v, datetime | date | time):
+        return v.isoformat()
+    if isinstance(v, Mapping):
+        return "a table"
+    if isinstance(v, list | tuple):
+        return "[" + ", ".join(_show(x) for x in v) + "]"
+    return repr(v)
+
+
+def _type_name(v: Any) -> str:
+    if isinstance(v, bool):
+        return "a boolean"
+    if isinstance(v, str):
+        return "text"
+    if isinstance(v, numbers.Integral):
+        return "a whole number"
+    if isinstance(v, numbers.Real):
+        return "a number"
+    if isinstance(v, Mapping):
+        return "a table"
+    if isinstance(v, list | tuple):
+        return "a list"
+    if isinstance(v, datetime):
+        return "a date-time"
+    if isinstance(v, date):
+        return "a date"
+    if isinstance(v, time):
+        return "a time of day"
+    return type(v).__name__
+
+
+def _fmt_bound(x: float) -> str:
+    if isinstance(x, int) or float(x).is_integer():
+        return f"{int(x):,}".replace(",", "_") if abs(x) >= 1_000_000 else str(int(x))
+    return f"{x:g}"
+
+
+def _range_text(rule: KeyRule) -> str:
+    unit = f" {rule.unit}" if rule.unit else ""
+    return f"{_fmt_bound(rule.lo)} to {_fmt_bound(rule.hi)}{unit}"
+
+
+class _Checker:
+    def __init__(self, file: str | None, locator: _Locator):
+        self.file = file
+        self.loc = locator
+        self.problems: list[ScenarioError] = []
+
+    def add(self, dotted: str, message: str) -> None:
+        self.problems.append(ScenarioError(message, file=self.file, line=self.loc.line_of(dotted),
+                                           field=dotted))
+
+    # Each check returns the converted value or _BAD.
+    def number(self, rule: KeyRule, dotted: str, v: Any) -> Any:
+        if isinstance(v, bool) or not isinstance(v, numbers.Real):
+            hint = " (write it without quotes)" if isinstance(v, str) else ""
+            self.add(dotted, f"{_show(v)} is {_type_name(v)}; a number is needed, "
+                             f"{_range_text(rule)}{hint}")
+            return _BAD
+        x = float(v)
+        if not math.isfinite(x):
+            self.add(dotted, f"{_show(v)} is not a finite number; allowed {_range_text(rule)}")
+            return _BAD
+        if not rule.lo <= x <= rule.hi:
+            self.add(dotted, f"{_show(v)} is outside the allowed range {_range_text(rule)}")
+            return _BAD
+        return x
+
+    def integer(self, rule: KeyRule, dotted: str, v: Any) -> Any:
+        if isinstance(v, bool) or not isinstance(v, numbers.Real):
+            hint = " (write it without quotes)" if isinstance(v, str) else ""
+            self.add(dotted, f"{_show(v)} is {_type_name(v)}; a whole number is needed, "
+                             f"{_range_text(rule)}{hint}")
+            return _BAD
+        if not isinstance(v, numbers.Integral):
+            if not (math.isfinite(float(v)) and float(v).is_integer()):
+                self.add(dotted, f"{_show(v)} is not a whole number; allowed {_range_text(rule)}")
+                return _BAD
+        n = int(v)
+        if not rule.lo <= n <= rule.hi:
+            self.add(dotted, f"{_show(v)} is outside the allowed range {_range_text(rule)}")
+            return _BAD
+        return n
+
+    def boolean(self, rule: KeyRule, dotted: str, v: Any) -> Any:
+        if not isinstance(v, bool):
+            self.add(dotted, f"{_show(v)} is {_type_name(v)}; write true or false (no quotes)")
+            return _BAD
+        return v
+
+    def text(self, rule: KeyRule, dotted: str, v: Any) -> Any:
+        if not isinstance(v, str):
+            self.add(dotted, f"{_show(v)} is {_type_name(v)}; text in quotes is needed")
+            return _BAD
+        s = v.strip()
+        if not s:
+            self.add(dotted, "is empty; give some text")
+            return _BAD
+        if len(s) > 200:
+            self.add(dotted, f"is {len(s)} characters long; at most 200 are allowed")
+            return _BAD
+        return s
+
+    def choice(self, rule: KeyRule, dotted: str, v: Any) -> Any:
+        allowed = ", ".join(f"'{c}'" for c in rule.choices)
+        if not isinstance(v, str):
+            self.add(dotted, f"{_show(v)} is {_type_name(v)}; one of {allowed} is needed")
+            return _BAD
+        s = v.strip().lower()
+        if s not in rule.choices:
+            self.add(dotted, f"{_show(v)} is not one of {allowed}")
+            return _BAD
+        return s
+
+    def when(self, rule: KeyRule, dotted: str, v: Any) -> Any:
+        if isinstance(v, datetime):
+            return v.replace(tzinfo=UTC) if v.tzinfo is None else v.astimezone(UTC)
+        if isinstance(v, str):
+            try:
+                return parse_iso_utc(v, field=dotted)
+            except InputError:
+                self.add(dotted, f"{_show(v)} is not an ISO 8601 time such as 2027-05-18T04:00:00Z")
+                return _BAD
+        extra = " (give a time of day too, e.g. 2027-05-18T04:00:00Z)" if isinstance(v, date | time) else ""
+        self.add(dotted, f"{_show(v)} is {_type_name(v)}; an ISO 8601 UTC time is needed{extra}")
+        return _BAD
+
+    def zone(self, rule: KeyRule, dotted: str, v: Any) -> Any:
+        if not isinstance(v, str):
+            self.add(dotted, f"{_show(v)} is {_type_name(v)}; an IANA time zone name such as "
+                             "'Europe/Zurich' is needed")
+            return _BAD
+        s = v.strip()
+        try:
+            if not s:
+                raise ValueError("empty")
+            ZoneInfo(s)
+        except (ZoneInfoNotFoundError, ValueError, OSError):
+            close = difflib.get_close_matches(s, sorted(available_timezones()), n=1)
+            hint = f"; did you mean '{close[0]}'?" if close else ""
+            self.add(dotted, f"{_show(v)} is not a known IANA time zone (e.g. 'Europe/Zurich', 'UTC'){hint}")
+            return _BAD
+        return s
+
+    def path(self, rule: KeyRule, dotted: str, v: Any) -> Any:
+        if not isinstance(v, str):
+            self.add(dotted, f"{_show(v)} is {_type_name(v)}; a file name in quotes is needed")
+            return _BAD
+        if not v.strip():
+            self.add(dotted, "is empty; give a file name")
+            return _BAD
+        return v.strip()
+
+    def paths(self, rule: KeyRule, dotted: str, v: Any) -> Any:
+        if not isinstance(v, list | tuple):
+            self.add(dotted, f"{_show(v)} is {_type_name(v)}; a list of file names is needed, "
+                             'e.g. ["almanac.txt", "gnss.tle"]')
+            return _BAD
+        out: list[str] = []
+        ok = True
+        for i, item in enumerate(v, start=1):
+            if not isinstance(item, str) or not item.strip():
+                what = "empty" if isinstance(item, str) else _type_name(item)
+                self.add(dotted, f"entry {i} ({_show(item)}) is {what}; a file name in quotes is needed")
+                ok = False
+            elif item.strip() in out:
+                self.add(dotted, f"entry {i} ({_show(item)}) is listed twice")
+                ok = False
+            else:
+                out.append(item.strip())
+        return tuple(out) if ok else _BAD
+
+    def signals(self, rule: KeyRule, dotted: str, v: Any) -> Any:
+        known = ", ".join(SIGNALS)
+        if not isinstance(v, list | tuple):
+            self.add(dotted, f"{_show(v)} is {_type_name(v)}; a list of signal IDs is needed, "
+                             f'e.g. ["GPS-L1CA"]; known: {known}')
+            return _BAD
+        if not v:
+            self.add(dotted, f"is empty; give at least one signal of: {known}")
+            return _BAD
+        out: list[str] = []
+        ok = True
+        for i, item in enumerate(v, start=1):
+            sid = item.strip().upper() if isinstance(item, str) else None
+            if sid is None or sid not in SIGNALS:
+                close = difflib.get_close_matches(sid or "", list(SIGNALS), n=1) if sid else []
+                hint = f"; did you mean '{close[0]}'?" if close else ""
+                self.add(dotted, f"entry {i} ({_show(item)}) is not a known signal{hint}; known: {known}")
+                ok = False
+            elif sid in out:
+                self.add(dotted, f"entry {i} ({_show(item)}) is listed twice")
+                ok = False
+            else:
+                out.append(sid)
+        return tuple(out) if ok else _BAD
+
+    def check(self, rule: KeyRule, dotted: str, v: Any) -> Any:
+        method = {
+            "number": self.number, "integer": self.integer, "bool": self.boolean,
+            "text": self.text, "choice": self.choice, "time": self.when, "zone": self.zone,
+            "path": self.path, "paths": self.paths, "signals": self.signals,
+        }[rule.kind]
+        return method(rule, dotted, v)
+
+    def unknown(self, dotted: str, key: str, known: tuple[str, ...], what: str,
+                where: str = "") -> None:
+        close = difflib.get_close_matches(key, known, n=1)
+        hint = f"did you mean '{close[0]}'? " if close else ""
+        place = f" in {where}" if where else ""
+        self.add(dotted, f"unknown {what} '{key}'{place}; {hint}known: {', '.join(known)}")
+
+
+class _Bad:
+    def __repr__(self) -> str:
+        return "BAD"
+
+
+_BAD: Any = _Bad()
+
+
+def _build(d: Mapping[str, Any], *, base_dir: Any, path: Any, text: str | None) -> Scenario:
+    file = str(path) if path is not None else None
+    chk = _Checker(file, _Locator(text))
+    if not isinstance(d, Mapping):
+        raise ScenarioValidationError([ScenarioError(
+            f"a scenario must be a table of sections, not {_type_name(d)}", file=file)], file=file)
+
+    values: dict[str, dict[str, Any]] = {s: {} for s in ("", *SECTIONS)}
+    tables: dict[str, Mapping[str, Any]] = {"": {k: v for k, v in d.items() if k not in SECTIONS}}
+
+    for key, v in d.items():
+        if key in SECTIONS:
+            if not isinstance(v, Mapping):
+                chk.add(key, f"{_show(v)} is {_type_name(v)}; [{key}] must be a table of keys")
+                tables[key] = {}
+            else:
+                tables[key] = v
+        elif key not in _SECTION_KEYS[""]:
+            kind = "section" if isinstance(v, Mapping) else "key"
+            chk.unknown(key, key, (*_SECTION_KEYS[""], *SECTIONS), kind)
+
+    per_signal: list[tuple[str, SignalOverride]] = []
+    for section in ("", *SECTIONS):
+        table = tables.get(section, {})
+        for rule in (r for r in KEY_RULES if r.section == section):
+            if rule.key not in table:
+                if rule.required:
+                    example = {"time": "2027-05-18T04:00:00Z"}.get(rule.kind, "...")
+                    chk.add(rule.dotted, f"is missing; this key is required in [{section}] "
+                                         f"(e.g. {rule.key} = {example})")
+                    values[section][rule.key] = _BAD
+                else:
+                    values[section][rule.key] = rule.default
+                continue
+            values[section][rule.key] = chk.check(rule, rule.dotted, table[rule.key])
+        if section == "":
+            continue
+        for key, v in table.items():
+            if key in _SECTION_KEYS[section]:
+                continue
+            if section == "search" and key == "per_signal":
+                per_signal = _check_per_signal(chk, v)
+                continue
+            known = _SECTION_KEYS[section] + (("per_signal",) if section == "search" else ())
+            chk.unknown(f"{section}.{key}", key, known, "key", f"[{section}]")
+
+    # Cross-field checks (only when both values are good).
+    t = values["time"]
+    if t["start"] is not _BAD and t["end"] is not _BAD:
+        span = t["end"].timestamp() - t["start"].timestamp()
+        if span <= 0:
+            chk.add("time.end", f"{iso_z(t['end'].timestamp())} is not after start "
+                                f"{iso_z(t['start'].timestamp())}")
+        elif span > MAX_WINDOW_S:
+            chk.add("time.end", f"{iso_z(t['end'].timestamp())} is {span / 86400:.2f} days after start; "
+                                "the window may be at most 7 days")
+    s = values["signal"]
+    if (s["cn0_zenith_dbhz"] is not _BAD and s["cn0_at_mask_dbhz"] is not _BAD
+            and s["cn0_at_mask_dbhz"] > s["cn0_zenith_dbhz"]):
+        chk.add("signal.cn0_at_mask_dbhz",
+                f"{_show(tables['signal'].get('cn0_at_mask_dbhz', s['cn0_at_mask_dbhz']))} dB-Hz is above "
+                f"cn0_zenith_dbhz = {s['cn0_zenith_dbhz']:g} dB-Hz; C/N0 at the mask may not exceed "
+                "the zenith value")
+
+    if chk.problems:
+        raise ScenarioValidationError(chk.problems, file=file)
+
+    values["search"]["per_signal"] = tuple(per_signal)
+    specs = {sec: _SECTION_CLASSES[sec](**values[sec]) for sec in SECTIONS}
+    if path is not None:
+        path = Path(path)
+    if base_dir is None:
+        base_dir = path.resolve().parent if path is not None else Path.cwd()
+    return Scenario(name=values[""]["name"], path=path, base_dir=Path(base_dir), **specs)
+
+
+def _check_per_signal(chk: _Checker, v: Any) -> list[tuple[str, SignalOverride]]:
+    out: list[tuple[str, SignalOverride]] = []
+    if not isinstance(v, Mapping):
+        chk.add("search.per_signal", f"{_show(v)} is {_type_name(v)}; a table of signal tables is "
+                                     "needed, e.g. [search.per_signal.BDS-B1I]")
+        return out
+    for sid_raw, sub in v.items():
+        dotted = f"search.per_signal.{sid_raw}"
+        sid = str(sid_raw).strip().upper()
+        if sid not in SIGNALS:
+            close = difflib.get_close_matches(sid, list(SIGNALS), n=1)
+            hint = f"; did you mean '{close[0]}'?" if close else ""
+            chk.add(dotted, f"'{sid_raw}' is not a known signal{hint}; known: {', '.join(SIGNALS)}")
+            continue
+        if not isinstance(sub, Mapping):
+            chk.add(dotted, f"{_show(sub)} is {_type_name(sub)}; a table with "
+                            f"{' and/or '.join(PER_SIGNAL_KEYS)} is needed")
+            continue
+        got: dict[str, Any] = {}
+        ok = True
+        for key, val in sub.items():
+            if key not in PER_SIGNAL_KEYS:
+                chk.unknown(f"{dotted}.{key}", key, PER_SIGNAL_KEYS, "key", f"[{dotted}]")
+                ok = False
+                continue
+            conv = chk.check(_PER_SIGNAL_RULES[key], f"{dotted}.{key}", val)
+            if conv is _BAD:
+                ok = False
+            got[key] = conv
+        if any(sid == have for have, _ in out):
+            chk.add(dotted, f"'{sid_raw}' is given twice (signal IDs ignore case)")
+            continue
+        if ok:
+            out.append((sid, SignalOverride(**got)))
+    return sorted(out, key=lambda item: item[0])
+
+
+# ---------------------------------------------------------------------------------------
+# Files
+
+def load_scenario(path: str | os.PathLike[str], *, check_files: bool = True) -> Scenario:
+    """Read and validate a scenario file.
+
+    With ``check_files`` (default) a missing orbit or mapping file is one more problem.
+    Raises :class:`ScenarioError` (a :class:`ScenarioValidationError` for bad fields).
+    """
+    p = Path(path)
+    file = str(p)
+    try:
+        raw = p.read_bytes()
+    except OSError as exc:
+        raise ScenarioError(f"cannot read the scenario file: {exc.strerror or exc}", file=file) from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise ScenarioError(f"the file is not UTF-8 text (byte {exc.start})", file=file) from None
+    try:
+        d = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        m = re.search(r"line (\d+)", str(exc))
+        raise ScenarioError(f"not valid TOML: {exc}", file=file,
+                            line=int(m.group(1)) if m else None) from None
+    sc = _build(d, base_dir=p.resolve().parent, path=p, text=text)
+    if check_files:
+        loc = _Locator(text)
+        problems = []
+        for f, resolved in zip(sc.orbits.files, sc.resolved_orbit_files()):
+            if not resolved.is_file():
+                problems.append(ScenarioError(f"orbit file '{f}' not found (looked for {resolved})",
+                                              file=file, line=loc.line_of("orbits.files"),
+                                              field="orbits.files"))
+        m_path = sc.resolved_mapping()
+        if m_path is not None and not m_path.is_file():
+            problems.append(ScenarioError(f"mapping file '{sc.orbits.mapping}' not found "
+                                          f"(looked for {m_path})", file=file,
+                                          line=loc.line_of("orbits.mapping"), field="orbits.mapping"))
+        if problems:
+            raise ScenarioValidationError(problems, file=file)
+    return sc
+
+
+def _rebase(name: str, old_dir: Path, new_dir: Path) -> str:
+    """A relative orbit file name re-expressed for a scenario saved in another folder."""
+    p = Path(name).expanduser()
+    if p.is_absolute():
+        return name
+    if Path(old_dir).resolve() == Path(new_dir).resolve():
+        return name
+    target = (Path(old_dir) / p).resolve()
+    try:
+        return Path(os.path.relpath(target, Path(new_dir).resolve())).as_posix()
+    except ValueError:            # another drive (Windows)
+        return str(target)
+
+
+def scenario_to_toml(scenario: Scenario) -> str:
+    """The TOML text :func:`save_scenario` writes."""
+    head = ("# acqplan scenario. Keys, units and allowed ranges: docs/scenario-keys.md\n"
+            "# Relative file names are relative to this file's folder.\n\n")
+    return head + tomli_w.dumps(scenario.to_dict())
+
+
+def save_scenario(scenario: Scenario, path: str | os.PathLike[str]) -> Scenario:
+    """Write the scenario atomically (temporary file in the same folder, then rename).
+
+    Relative orbit file names are rewritten so they still point at the same files from
+    the new folder. Returns the scenario as saved (``path`` and ``base_dir`` updated).
+    """
+    p = Path(path)
+    folder = p.resolve().parent
+    orbits = replace(scenario.orbits,
+                     files=tuple(_rebase(f, scenario.base_dir, folder) for f in scenario.orbits.files),
+                     mapping=(None if scenario.orbits.mapping is None
+                              else _rebase(scenario.orbits.mapping, scenario.base_dir, folder)))
+    saved = replace(scenario, orbits=orbits, path=p, base_dir=folder)
+    data = scenario_to_toml(saved).encode("utf-8")
+    try:
+        mode = p.stat().st_mode & 0o777 if p.exists() else 0o644
+        fd, tmp = tempfile.mkstemp(dir=folder, prefix=f".{p.name}.", suffix=".tmp")
+    except OSError as exc:
+        raise ScenarioError(f"cannot write in {folder}: {exc.strerror or exc}", file=str(p)) from None
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.chmod(tmp, mode)
+        os.replace(tmp, p)
+    except OSError as exc:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise ScenarioError(f"cannot save the scenario: {exc.strerror or exc}", file=str(p)) from None
+    return saved
+
+
+__all__ = [
+    "FORMAT_VERSION", "KEY_RULES", "KeyRule", "MAX_WINDOW_S", "MaskSpec", "OrbitSpec",
+    "PER_SIGNAL_KEYS", "PRIORITIES", "REQUIRED", "ReceiverSpec", "Scenario",
+    "ScenarioValidationError", "SearchSpec", "SignalOverride", "SignalSpec", "SiteSpec",
+    "TimeSpec", "load_scenario", "save_scenario", "scenario_to_toml",
+]
