@@ -22,7 +22,7 @@ import numpy as np
 from .almanac_model import AlmanacArrays, almanac_ecef
 from .constants import EARTH_ROTATION_RAD_S, GPS_MU_M3_S2, SPEED_OF_LIGHT_M_S, WGS72_MU_M3_S2
 from .errors import ComputationError, InputError
-from .geodesy import Site, enu_to_az_el_range
+from .geodesy import Site
 from .orbits import OrbitSet
 from .sgp4_model import sgp4_ecef, sgp4_error_text
 from .signals import DEFAULT_SIGNAL_FOR_SYSTEM, SIGNALS, get_signal
@@ -126,29 +126,38 @@ def _mu_for(orbits: OrbitSet) -> np.ndarray:
 
 
 def _geometry(pos: np.ndarray, vel: np.ndarray, mu: np.ndarray, site: Site, wavelength: np.ndarray):
-    """Line-of-sight quantities from Earth-fixed states (S, T, 3)."""
-    rho = pos - site.ecef_m
-    rng = np.sqrt(np.einsum("stk,stk->st", rho, rho))
-    los = rho / rng[..., None]
-    rr = np.einsum("stk,stk->st", los, vel)
+    """Line-of-sight quantities from Earth-fixed states (S, T, 3), component-wise."""
+    sx, sy, sz = site.ecef_m
+    px, py, pz = pos[..., 0], pos[..., 1], pos[..., 2]
+    vx, vy, vz = vel[..., 0], vel[..., 1], vel[..., 2]
+    dx, dy, dz = px - sx, py - sy, pz - sz
+    rng = np.sqrt(dx * dx + dy * dy + dz * dz)
+    inv = 1.0 / rng
+    lx, ly, lz = dx * inv, dy * inv, dz * inv
+    rr = lx * vx + ly * vy + lz * vz
     # Earth-fixed acceleration of a two-body orbit: gravity less Coriolis and centrifugal
     # terms (J2 neglected: < 6e-5 m/s^2, i.e. < 3e-4 Hz/s at L1).
-    r_norm = np.sqrt(np.einsum("stk,stk->st", pos, pos))
+    r2 = px * px + py * py + pz * pz
+    k = mu[:, None] / (r2 * np.sqrt(r2))
     w = EARTH_ROTATION_RAD_S
-    acc = -(mu[:, None] / r_norm**3)[..., None] * pos
-    acc[..., 0] += 2.0 * w * vel[..., 1] + w * w * pos[..., 0]
-    acc[..., 1] += -2.0 * w * vel[..., 0] + w * w * pos[..., 1]
-    v2 = np.einsum("stk,stk->st", vel, vel)
-    racc = (v2 + np.einsum("stk,stk->st", rho, acc)) / rng - rr * rr / rng
-    enu = rho @ site.enu_rotation.T
-    az, el, _ = enu_to_az_el_range(enu)
-    up = site.enu_rotation[2]
-    sin_el = los @ up
-    d_sin_el = (vel @ up - sin_el * rr) / rng
-    cos_el = np.sqrt(np.clip(1.0 - sin_el * sin_el, 1e-300, None))
-    el_rate = np.degrees(d_sin_el / cos_el)
+    ax = -k * px + 2.0 * w * vy + w * w * px
+    ay = -k * py - 2.0 * w * vx + w * w * py
+    az_ = -k * pz
+    v2 = vx * vx + vy * vy + vz * vz
+    racc = (v2 + dx * ax + dy * ay + dz * az_ - rr * rr) * inv
+    rot = site.enu_rotation
+    e = rot[0, 0] * lx + rot[0, 1] * ly
+    n = rot[1, 0] * lx + rot[1, 1] * ly + rot[1, 2] * lz
+    sin_el = rot[2, 0] * lx + rot[2, 1] * ly + rot[2, 2] * lz
+    horiz = np.sqrt(e * e + n * n)
+    azimuth = np.degrees(np.arctan2(e, n)) % 360.0
+    el = np.degrees(np.arctan2(sin_el, horiz))
+    up_v = rot[2, 0] * vx + rot[2, 1] * vy + rot[2, 2] * vz
+    d_sin_el = (up_v - sin_el * rr) * inv
+    el_rate = np.degrees(d_sin_el / np.maximum(horiz, 1e-12))
     lam = wavelength[:, None]
-    return dict(azimuth_deg=az, elevation_deg=el, range_m=rng, range_rate_m_s=rr,
+    los = np.stack((lx, ly, lz), axis=-1)
+    return dict(azimuth_deg=azimuth, elevation_deg=el, range_m=rng, range_rate_m_s=rr,
                 range_accel_m_s2=racc, doppler_hz=-rr / lam, doppler_rate_hz_s=-racc / lam,
                 elevation_rate_deg_s=el_rate, los_ecef=los)
 

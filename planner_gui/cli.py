@@ -131,7 +131,8 @@ def _load(args):
     end = parse_iso_utc(args.end, "--end")
     if end <= start:
         raise InputError(f"end {args.end} is not after start {args.start}", field="--end")
-    orbits = load_orbit_files(args.orbits, reference_time=start, mapping=args.mapping)
+    orbits = load_orbit_files(args.orbits, reference_time=start, mapping=args.mapping,
+                              strict=not args.skip_bad_records)
     return orbits, parse_site(args.site), start, end
 
 
@@ -282,6 +283,9 @@ def build_parser() -> argparse.ArgumentParser:
                         help="YUMA, SEM or TLE file (repeat to mix constellations)")
         sp.add_argument("--mapping", metavar="FILE",
                         help="optional catalogue-number -> ID (and GLONASS k) mapping file")
+        sp.add_argument("--skip-bad-records", action="store_true",
+                        help="skip TLE records with a bad checksum or field (with a warning) "
+                             "instead of stopping")
         sp.add_argument("--site", required=True, metavar="LAT,LON,HEIGHT_M",
                         help="receiver site, degrees and metres above the WGS-84 ellipsoid "
                              "(negative values work as typed: --site -33.92,-70.65,520)")

@@ -1,0 +1,577 @@
+"""The search plan: from a scenario to windows, bins, code windows, detection, channels.
+
+``make_plan(scenario)`` runs the whole chain; ``prepare_geometry(scenario)`` does the
+expensive part (orbit loading and propagation over the test window) once, so that a
+change of search parameters only (coherent time, accepted loss, Pfa, ...) re-plans with
+``make_plan(scenario, prepared=...)`` without propagating again.
+
+Chain, per satellite and grid time (arrays (S, T)):
+
+1. geometry (core.predict) and, for large time uncertainty, shifted predictions;
+2. Doppler windows for the first search (core.windows) with the orbit-data margin;
+3. bins (core.bins) for each signal's coherent time and the accepted loss;
+4. code-phase window and cells (core.codephase);
+5. C/N0 from the elevation model, less extra, frequency and code losses; Pd from the
+   square-law detector (core.detection); mean serial search time;
+6. the channel timeline (core.timeline) with "first" costs until the first acquisition
+   and "after" costs (oscillator known, windows narrowed) from then on, and a seeded
+   Monte Carlo for the TTFF figures.
+"""
+
+from __future__ import annotations
+
+import math
+import time as _time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import bins as binlib
+from . import codephase, detection
+from . import timeline as tl
+from .errors import ComputationError, InputError
+from .geodesy import Site
+from .orbit_margin import orbit_margin_hz, orbit_range_margin_m
+from .orbits import OrbitFileInfo, OrbitSet
+from .predict import Pass, Prediction, passes, predict
+from .scenario import Scenario
+from .signals import SIGNALS
+from .timeutil import TimeGrid, iso_z, time_grid
+from .windows import DopplerWindows, Uncertainty, doppler_windows, shifted_predictions
+
+ProgressFn = Callable[[float, str], None]
+CancelFn = Callable[[], bool]
+
+
+class PlanCancelled(Exception):
+    """Raised inside make_plan when the cancel callback returns True."""
+
+
+# --- geometry, computed once per orbit/site/time/signal/mask set ---------------------
+
+def geometry_key(sc: Scenario) -> tuple:
+    """Everything the propagation depends on; equal keys allow reuse."""
+    files = tuple(str(p) for p in sc.resolved_orbit_files())
+    mtimes = []
+    for p in sc.resolved_orbit_files() + ([sc.resolved_mapping()] if sc.resolved_mapping() else []):
+        try:
+            mtimes.append(p.stat().st_mtime_ns)
+        except OSError:
+            mtimes.append(None)
+    return (files, str(sc.resolved_mapping()), tuple(mtimes), sc.site.lat_deg, sc.site.lon_deg,
+            sc.site.height_m, sc.time.start_unix_s, sc.time.end_unix_s, sc.time.step_s,
+            sc.time.uncertainty_s, tuple(sc.receiver.signals), sc.mask.elevation_deg)
+
+
+@dataclass
+class PreparedGeometry:
+    key: tuple
+    orbits: OrbitSet
+    site: Site
+    grid: TimeGrid
+    prediction: Prediction
+    shifted: list[Prediction] | None
+    passes: list[Pass]
+    signal_ids: list[str]
+    visible: np.ndarray            # (S, T): above the mask, propagated, healthy
+    warnings: list[str]
+    propagate_s: float
+
+
+def _select_satellites(orbits: OrbitSet, signals: tuple[str, ...]) -> tuple[OrbitSet, dict[str, str], list[str]]:
+    by_system: dict[str, str] = {}
+    warnings: list[str] = []
+    for sid in signals:
+        sig = SIGNALS[sid]
+        if sig.system in by_system:
+            warnings.append(f"{sid} ignored: {by_system[sig.system]} is already the acquisition "
+                            f"signal of that system (one signal per system is planned)")
+            continue
+        by_system[sig.system] = sid
+    keep = [e.info.sat_id for e in orbits.entries if e.info.system in by_system]
+    if not keep:
+        systems = sorted({e.info.system for e in orbits.entries})
+        raise ComputationError(
+            f"no satellite in the orbit files belongs to the chosen signals "
+            f"({', '.join(signals)}); the files hold systems {', '.join(systems) or 'none'}")
+    return orbits.select(keep), by_system, warnings
+
+
+def prepare_geometry(sc: Scenario, progress: ProgressFn | None = None,
+                     cancel: CancelFn | None = None) -> PreparedGeometry:
+    from .readers import load_orbit_files
+
+    t0 = _time.perf_counter()
+    missing = sc.missing_orbit_files()
+    if missing:
+        raise InputError("orbit file not found (moved or deleted?)", file=str(missing[0]))
+    if not sc.orbits.files:
+        raise InputError("the scenario names no orbit file", field="orbits.files")
+    _report(progress, 0.02, "reading orbit files")
+    orbits = load_orbit_files(sc.resolved_orbit_files(), reference_time=sc.time.start_unix_s,
+                              mapping=sc.resolved_mapping())
+    orbits, by_system, warnings = _select_satellites(orbits, tuple(sc.receiver.signals))
+    site = Site(sc.site.lat_deg, sc.site.lon_deg, sc.site.height_m)
+    grid = time_grid(sc.time.start, sc.time.end, sc.time.step_s)
+    if len(grid) < 2:
+        raise InputError("the test window must hold at least two time steps", field="time.step_s")
+    _check_cancel(cancel)
+    _report(progress, 0.1, f"propagating {len(orbits)} satellites over {len(grid)} times")
+    pred = predict(orbits, site, grid, signals=by_system)
+    _check_cancel(cancel)
+    shifted = None
+    if sc.time.uncertainty_s > 0:
+        _report(progress, 0.35, "propagating shifted grids for the time uncertainty")
+        shifted = shifted_predictions(orbits, site, grid, sc.time.uncertainty_s, by_system)
+    _check_cancel(cancel)
+    _report(progress, 0.45, "finding passes")
+    mask = sc.mask.elevation_deg
+    healthy = np.array([e.info.healthy for e in orbits.entries])
+    visible = pred.valid & (pred.elevation_deg >= mask) & healthy[:, None]
+    found = passes(orbits, site, grid.start_unix_s, grid.end_unix_s, mask_deg=mask,
+                   prediction=pred)
+    unhealthy = [e.info.sat_id for e in orbits.entries if not e.info.healthy]
+    if unhealthy:
+        warnings.append(f"unhealthy, kept but not searched: {', '.join(unhealthy)}")
+    if not visible.any():
+        raise ComputationError(
+            f"no healthy satellite rises above the {mask:g} deg elevation mask during the test "
+            "window (check the site, the window and the orbit files' dates)")
+    return PreparedGeometry(geometry_key(sc), orbits, site, grid, pred, shifted, found,
+                            pred.signal_ids, visible, warnings + pred.warnings,
+                            _time.perf_counter() - t0)
+
+
+def _report(progress: ProgressFn | None, fraction: float, text: str) -> None:
+    if progress is not None:
+        progress(fraction, text)
+
+
+def _check_cancel(cancel: CancelFn | None) -> None:
+    if cancel is not None and cancel():
+        raise PlanCancelled()
+
+
+# --- results ----------------------------------------------------------------------------
+
+@dataclass
+class SearchSummary:
+    """The search that the channel timeline assigns to one satellite (its first search)."""
+
+    start_unix_s: float
+    state: str                       # "first" (oscillator unknown) or "after"
+    low_hz: float
+    high_hz: float
+    bin_width_hz: float
+    bins: int
+    bin_centres_hz: np.ndarray
+    code_window_chips: float
+    code_cells: int
+    cn0_dbhz: float
+    pd: float
+    dwell_s: float
+    expected_search_s: float
+    channel: int
+    acquired_unix_s: float | None
+
+    def to_dict(self) -> dict:
+        return {"start": iso_z(self.start_unix_s, 1), "state": self.state,
+                "low_hz": round(self.low_hz, 2), "high_hz": round(self.high_hz, 2),
+                "bin_width_hz": round(self.bin_width_hz, 3), "bins": int(self.bins),
+                "first_bin_hz": round(float(self.bin_centres_hz[0]), 2),
+                "last_bin_hz": round(float(self.bin_centres_hz[-1]), 2),
+                "code_window_chips": round(self.code_window_chips, 2),
+                "code_cells": int(self.code_cells), "cn0_dbhz": round(self.cn0_dbhz, 2),
+                "pd": round(self.pd, 4), "dwell_s": round(self.dwell_s, 6),
+                "expected_search_s": round(self.expected_search_s, 3), "channel": self.channel,
+                "acquired": None if self.acquired_unix_s is None else iso_z(self.acquired_unix_s, 1)}
+
+
+@dataclass
+class SatellitePlan:
+    sat_id: str
+    signal_id: str
+    system: str
+    carrier_hz: float
+    glonass_k: int | None
+    source_kind: str
+    data_age_s: float
+    healthy: bool
+    passes: list[Pass]
+    search: SearchSummary | None
+
+
+@dataclass
+class Plan:
+    """A complete search plan. Arrays are (S, T) over ``satellites`` x ``times``."""
+
+    scenario: Scenario
+    times: TimeGrid
+    satellites: list[SatellitePlan]
+    prediction: Prediction
+    visible: np.ndarray
+    windows_first: DopplerWindows
+    windows_after: DopplerWindows
+    bin_design: dict[str, binlib.BinDesign]          # per signal
+    bins_first: np.ndarray
+    bins_after: np.ndarray
+    code_window_first_chips: np.ndarray
+    code_window_after_chips: np.ndarray
+    code_cells_first: np.ndarray
+    code_cells_after: np.ndarray
+    cn0_dbhz: np.ndarray
+    pd_first: np.ndarray
+    pd_after: np.ndarray
+    expected_search_first_s: np.ndarray
+    expected_search_after_s: np.ndarray
+    sensitivity_dbhz: dict[str, float]               # C/N0 for Pd = 0.9, per signal
+    code_step_loss: codephase.CodeStepLoss
+    timeline: tl.Timeline
+    ttff: tl.TtffStats
+    first_acquired: str | None
+    orbit_files: list[OrbitFileInfo]
+    warnings: list[str]
+    compute_s: float = 0.0
+    propagate_s: float = 0.0
+    reused_geometry: bool = False
+    first_fix_unix_s: float | None = field(default=None)
+
+    @property
+    def ids(self) -> list[str]:
+        return [s.sat_id for s in self.satellites]
+
+    @property
+    def ttff_s(self) -> float | None:
+        return self.timeline.ttff_s
+
+    def index_at(self, unix_s: float) -> int:
+        """Grid index nearest an instant."""
+        return int(np.clip(np.searchsorted(self.times.unix_s, unix_s), 0, len(self.times) - 1))
+
+    def search_grid_at(self, k: int) -> list[dict]:
+        """For grid index k: per visible satellite, its current window and bin centres.
+
+        Satellites acquired by then use the narrowed ("after") window.
+        """
+        t = self.times.unix_s[k]
+        out = []
+        acq0 = min(self.timeline.acquisition_unix_s.values(), default=math.inf)
+        for s, sp in enumerate(self.satellites):
+            if not self.visible[s, k]:
+                continue
+            after = t >= acq0
+            w = self.windows_after if after else self.windows_first
+            lo, hi = float(w.low_hz[s, k]), float(w.high_hz[s, k])
+            width = self.bin_design[sp.signal_id].bin_width_hz
+            out.append({"id": sp.sat_id, "signal": sp.signal_id, "state": "after" if after else "first",
+                        "nominal_hz": float(w.nominal_hz[s, k]), "low_hz": lo, "high_hz": hi,
+                        "bin_width_hz": width, "bin_centres_hz": binlib.bin_centres(lo, hi, width),
+                        "elevation_deg": float(self.prediction.elevation_deg[s, k])})
+        return out
+
+    def summary_text(self) -> str:
+        n_vis = int(self.visible.any(axis=1).sum())
+        ff = "none in the window" if self.timeline.first_fix_unix_s is None else iso_z(self.timeline.first_fix_unix_s, 1)
+        lines = [f"plan '{self.scenario.name}': {n_vis} satellites in view, "
+                 f"{len(self.timeline.segments)} timeline segments",
+                 f"first fix {ff}; TTFF {_fmt_s(self.timeline.ttff_s)} expected, "
+                 f"median {_fmt_s(self.ttff.median_s)}, 95th percentile {_fmt_s(self.ttff.p95_s)} "
+                 f"({self.ttff.n_runs} Monte Carlo runs)",
+                 f"{len(self.warnings)} warning(s); computed in {self.compute_s:.2f} s"]
+        return "\n".join(lines)
+
+
+def _fmt_s(v: float | None) -> str:
+    if v is None or not math.isfinite(v):
+        return "n/a"
+    return f"{v:.1f} s"
+
+
+# --- the chain --------------------------------------------------------------------------
+
+def _uncertainty(sc: Scenario) -> Uncertainty:
+    return Uncertainty(horizontal_m=sc.site.horizontal_uncertainty_km * 1000.0,
+                       vertical_m=sc.site.vertical_uncertainty_m,
+                       time_s=sc.time.uncertainty_s,
+                       max_horizontal_speed_m_s=sc.receiver.max_horizontal_speed_m_s,
+                       max_vertical_speed_m_s=sc.receiver.max_vertical_speed_m_s,
+                       oscillator_offset_ppb=sc.receiver.oscillator_offset_ppb,
+                       oscillator_uncertainty_ppb=sc.receiver.oscillator_uncertainty_ppb)
+
+
+def _data_age_s(orbits: OrbitSet, at_unix_s: float) -> np.ndarray:
+    return np.array([at_unix_s - e.info.epoch_unix_s for e in orbits.entries])
+
+
+def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
+              progress: ProgressFn | None = None, cancel: CancelFn | None = None) -> Plan:
+    """The full plan. Pass ``prepared`` (from an earlier plan or prepare_geometry) to skip
+    propagation when only search parameters changed; it is rebuilt if it does not fit."""
+    t_start = _time.perf_counter()
+    reused = prepared is not None and prepared.key == geometry_key(sc)
+    if not reused:
+        prepared = prepare_geometry(sc, progress, cancel)
+    assert prepared is not None
+    g = prepared
+    pred, orbits, grid = g.prediction, g.orbits, g.grid
+    warnings = list(g.warnings)
+    n_s, n_t = pred.elevation_deg.shape
+    signals = [SIGNALS[s] for s in g.signal_ids]
+    _report(progress, 0.6, "computing Doppler windows")
+
+    # Orbit-data margin, per satellite at the window's middle age.
+    age = _data_age_s(orbits, 0.5 * (grid.start_unix_s + grid.end_unix_s))
+    kinds = [e.info.source_kind for e in orbits.entries]
+    if sc.search.orbit_margin_hz is not None:
+        margin = np.full(n_s, float(sc.search.orbit_margin_hz)) * pred.carrier_hz / 1575.42e6
+    else:
+        margin = np.array([float(orbit_margin_hz(k, a, f)) for k, a, f in zip(kinds, age, pred.carrier_hz)])
+    range_margin = np.array([float(orbit_range_margin_m(k, a)) for k, a in zip(kinds, age)])
+    unc = _uncertainty(sc)
+    w_first = doppler_windows(pred, unc, margin[:, None], shifted=g.shifted)
+
+    # Coherent integration per signal, checked against the signal.
+    design: dict[str, binlib.BinDesign] = {}
+    tc_s = np.zeros(n_s)
+    n_nc = np.zeros(n_s, dtype=int)
+    transition_db = np.zeros(n_s)
+    for sid in sorted(set(g.signal_ids)):
+        coh_ms, nc = sc.search.integration_for(sid)
+        chk = binlib.check_coherent_time(SIGNALS[sid], coh_ms / 1000.0)
+        if not chk.ok:
+            raise InputError("; ".join(chk.errors), field="search.coherent_ms")
+        warnings.extend(f"{sid}: {w}" for w in chk.warnings)
+        design[sid] = binlib.design_bins(coh_ms / 1000.0, sc.search.max_frequency_loss_db)
+        rows = [i for i, s in enumerate(g.signal_ids) if s == sid]
+        tc_s[rows] = coh_ms / 1000.0
+        n_nc[rows] = nc
+        transition_db[rows] = chk.transition_loss_db if chk.warnings else 0.0
+    width = np.array([design[s].bin_width_hz for s in g.signal_ids])[:, None]
+    half = width / 2.0
+    avg_freq_loss = np.array([design[s].average_loss_db for s in g.signal_ids])[:, None]
+
+    # Code phase.
+    step = sc.search.code_step_chips
+    code_loss = codephase.code_step_loss(step)
+    code_len = np.array([float(s.code_length_chips) for s in signals])[:, None]
+    chip_m = np.array([s.chip_length_m for s in signals])[:, None]
+    fine = sc.search.fine_time_uncertainty_us
+    if fine is None:
+        cw_first = np.broadcast_to(code_len, (n_s, n_t)).copy()
+        cw_after_base = cw_first.copy()
+    else:
+        budget = codephase.range_uncertainty_budget(
+            unc.horizontal_m, unc.vertical_m, pred.elevation_deg, fine * 1e-6,
+            pred.range_rate_m_s, fine * 1e-6)
+        non_clock = np.asarray(budget.position_m) + np.asarray(budget.satellite_motion_m) + range_margin[:, None]
+        cw_first = np.minimum(2.0 * (non_clock + np.asarray(budget.clock_m)) / chip_m, code_len)
+        cw_after_base = non_clock
+    cells_first = codephase.code_cells(cw_first, step)
+
+    # Detection.
+    mask = sc.mask.elevation_deg
+    cn0 = detection.cn0_at_elevation_dbhz(np.clip(pred.elevation_deg, -90, 90), sc.signal.cn0_zenith_dbhz,
+                                          sc.signal.cn0_at_mask_dbhz, mask)
+    cn0_eff = np.asarray(cn0) - sc.signal.extra_loss_db - avg_freq_loss - code_loss.average_loss_db - transition_db[:, None]
+    pfa = sc.search.false_alarm_per_cell
+    thr = detection.threshold_for_pfa(pfa, n_nc)[:, None]
+    snr = detection.coherent_snr_linear(cn0_eff, tc_s[:, None])
+    pd = np.asarray(detection.detection_probability(snr, n_nc[:, None], thr))
+    sens = {sid: float(detection.sensitivity_dbhz(pfa, 0.9, sc.search.integration_for(sid)[1],
+                                                  sc.search.integration_for(sid)[0] / 1000.0,
+                                                  sc.signal.extra_loss_db + design[sid].average_loss_db
+                                                  + code_loss.average_loss_db))
+            for sid in design}
+
+    def costs(windows: DopplerWindows, cells: np.ndarray):
+        nb = np.asarray(binlib.bin_count(windows.low_hz, windows.high_hz, width))
+        cost = detection.search_cost(nb, cells, sc.receiver.correlators_per_channel,
+                                     sc.receiver.parallel_code_search, tc_s[:, None], n_nc[:, None],
+                                     pfa, pd, sc.search.false_alarm_penalty_s)
+        return nb, cost
+
+    _report(progress, 0.7, "search costs")
+    bins_first, cost_first = costs(w_first, cells_first)
+
+    def timeline_inputs(w_after, cells_after, cost_after):
+        exp_first = np.where(g.visible, cost_first.expected_search_s, np.inf)
+        exp_after = np.where(g.visible, cost_after.expected_search_s, np.inf)
+        refined = {}
+        for p in g.passes:
+            refined.setdefault(p.sat_id, []).append((p.rise_unix_s, p.set_unix_s))
+        healthy_ids = {e.info.sat_id for e in orbits.entries if e.info.healthy}
+        refined = {k: v for k, v in refined.items() if k in healthy_ids}
+        for sid in pred.ids:
+            if sid not in healthy_ids:
+                refined[sid] = []
+        return tl.TimelineInputs(
+            times_unix_s=grid.unix_s, sat_ids=tuple(pred.ids), visible=g.visible,
+            priority=np.where(g.visible, pred.elevation_deg, -90.0),
+            expected_search_first_s=exp_first, expected_search_after_s=exp_after,
+            n_channels=sc.receiver.channels, first_fix_satellites=sc.search.first_fix_satellites,
+            ephemeris_wait_s=sc.search.ephemeris_wait_s,
+            q_first=np.asarray(cost_first.positions), q_after=np.asarray(cost_after.positions),
+            pd_first=pd, pd_after=pd,
+            pfa_position=np.asarray(cost_first.pfa_position),
+            dwell_s=np.broadcast_to((tc_s * n_nc)[:, None], (n_s, n_t)).copy(),
+            penalty_s=sc.search.false_alarm_penalty_s, set_unix_s=refined)
+
+    # Pass 1: who is acquired first (its search runs with "first" costs, so the after-
+    # costs do not change it); pass 2 with the after-windows that acquisition gives.
+    _check_cancel(cancel)
+    _report(progress, 0.75, "channel timeline")
+    first_tl = tl.expected_timeline(timeline_inputs(w_first, cells_first, cost_first))
+    first_id = min(first_tl.acquisition_unix_s, key=first_tl.acquisition_unix_s.get, default=None)
+    if first_id is not None:
+        s1 = pred.ids.index(first_id)
+        k1 = int(np.clip(np.searchsorted(grid.unix_s, first_tl.acquisition_unix_s[first_id]) - 1, 0, n_t - 1))
+        from .windows import windows_after_first_acquisition
+
+        w_after = windows_after_first_acquisition(w_first, pred.carrier_hz, s1, k1, float(half[s1, 0]))
+        if fine is None:
+            cw_after = cw_first
+        else:
+            own = cw_after_base[s1, k1] + 0.5 * step * chip_m[s1, 0]
+            cw_after = np.minimum(2.0 * (cw_after_base + own) / chip_m, code_len)
+    else:
+        w_after, cw_after = w_first, cw_first
+    cells_after = codephase.code_cells(cw_after, step)
+    bins_after, cost_after = costs(w_after, cells_after)
+    inputs = timeline_inputs(w_after, cells_after, cost_after)
+    timeline = tl.expected_timeline(inputs)
+    warnings.extend(timeline.warnings)
+    _check_cancel(cancel)
+    _report(progress, 0.85, "Monte Carlo of the time to first fix")
+    ttff = tl.monte_carlo_ttff(inputs, sc.search.monte_carlo_runs, sc.search.seed)
+    warnings.extend(ttff.warnings)
+
+    # Per-satellite search summaries from the timeline's first search of each satellite.
+    first_search: dict[str, tl.TimelineSegment] = {}
+    for seg in timeline.segments:
+        if seg.kind == "search" and seg.sat_id not in first_search:
+            first_search[seg.sat_id] = seg
+    sats: list[SatellitePlan] = []
+    ages = _data_age_s(orbits, grid.start_unix_s)
+    for s, e in enumerate(orbits.entries):
+        sid = e.info.sat_id
+        seg = first_search.get(sid)
+        summary = None
+        if seg is not None:
+            k = int(np.clip(np.searchsorted(grid.unix_s, seg.start_unix_s, side="right") - 1, 0, n_t - 1))
+            after = seg.search_state == "after"
+            w = w_after if after else w_first
+            lo, hi = float(w.low_hz[s, k]), float(w.high_hz[s, k])
+            centres = binlib.bin_centres(lo, hi, float(width[s, 0]))
+            cost = cost_after if after else cost_first
+            summary = SearchSummary(
+                start_unix_s=seg.start_unix_s, state=seg.search_state or "first", low_hz=lo, high_hz=hi,
+                bin_width_hz=float(width[s, 0]), bins=int(centres.size), bin_centres_hz=centres,
+                code_window_chips=float((cw_after if after else cw_first)[s, k]),
+                code_cells=int((cells_after if after else cells_first)[s, k]),
+                cn0_dbhz=float(np.asarray(cn0)[s, k]), pd=float(pd[s, k]),
+                dwell_s=float(tc_s[s] * n_nc[s]),
+                expected_search_s=float(np.asarray(cost.expected_search_s)[s, k]),
+                channel=seg.channel, acquired_unix_s=timeline.acquisition_unix_s.get(sid))
+        sats.append(SatellitePlan(sid, g.signal_ids[s], e.info.system, float(pred.carrier_hz[s]),
+                                  e.info.glonass_k, e.info.source_kind, float(ages[s]), e.info.healthy,
+                                  [p for p in g.passes if p.sat_id == sid], summary))
+    _report(progress, 1.0, "done")
+    plan = Plan(scenario=sc, times=grid, satellites=sats, prediction=pred, visible=g.visible,
+                windows_first=w_first, windows_after=w_after, bin_design=design,
+                bins_first=bins_first, bins_after=bins_after,
+                code_window_first_chips=cw_first, code_window_after_chips=cw_after,
+                code_cells_first=np.asarray(cells_first), code_cells_after=np.asarray(cells_after),
+                cn0_dbhz=np.asarray(cn0), pd_first=pd, pd_after=pd,
+                expected_search_first_s=np.asarray(cost_first.expected_search_s),
+                expected_search_after_s=np.asarray(cost_after.expected_search_s),
+                sensitivity_dbhz=sens, code_step_loss=code_loss, timeline=timeline, ttff=ttff,
+                first_acquired=first_id, orbit_files=list(orbits.files), warnings=_dedupe(warnings),
+                propagate_s=g.propagate_s, reused_geometry=reused,
+                first_fix_unix_s=timeline.first_fix_unix_s)
+    plan.compute_s = _time.perf_counter() - t_start
+    plan.prepared = g  # type: ignore[attr-defined]
+    return plan
+
+
+def _dedupe(items: list[str]) -> list[str]:
+    seen: set[str] = set()
+    return [x for x in items if not (x in seen or seen.add(x))]
+
+
+# --- serialisation ----------------------------------------------------------------------
+
+def _round(v, nd):
+    return None if v is None or not math.isfinite(v) else round(float(v), nd)
+
+
+def plan_to_json(plan: Plan) -> dict:
+    """The ``acqplan plan`` JSON schema."""
+    iso = plan.times.iso()
+    sats = []
+    for s, sp in enumerate(plan.satellites):
+        vis = np.nonzero(plan.visible[s])[0]
+        wf, wa = plan.windows_first, plan.windows_after
+        windows = [{"time": iso[k], "nominal_hz": round(float(wf.nominal_hz[s, k]), 2),
+                    "low_hz": round(float(wf.low_hz[s, k]), 2), "high_hz": round(float(wf.high_hz[s, k]), 2),
+                    "after_low_hz": round(float(wa.low_hz[s, k]), 2),
+                    "after_high_hz": round(float(wa.high_hz[s, k]), 2),
+                    "elevation_deg": round(float(plan.prediction.elevation_deg[s, k]), 3),
+                    "bins": int(plan.bins_first[s, k]), "bins_after": int(plan.bins_after[s, k])}
+                   for k in vis]
+        shares = {name: round(float(np.max(v[s, vis])), 3) if vis.size else None
+                  for name, v in wf.share_hz.items()}
+        sats.append({"id": sp.sat_id, "signal": sp.signal_id, "carrier_hz": sp.carrier_hz,
+                     "glonass_k": sp.glonass_k, "source": sp.source_kind,
+                     "data_age_days": round(sp.data_age_s / 86400.0, 3), "healthy": sp.healthy,
+                     "passes": [p.to_dict() for p in sp.passes],
+                     "window_terms_max_hz": shares,
+                     "windows": windows,
+                     "search": None if sp.search is None else sp.search.to_dict()})
+    return {
+        "scenario": plan.scenario.name,
+        "start": iso[0], "end": iso[-1], "step_s": plan.scenario.time.step_s,
+        "bin_design": {k: v.to_dict() for k, v in plan.bin_design.items()},
+        "sensitivity_dbhz_pd90": {k: round(v, 2) for k, v in plan.sensitivity_dbhz.items()},
+        "code_step_loss": plan.code_step_loss.to_dict(),
+        "satellites": sats,
+        "timeline": [{"channel": seg.channel, "id": seg.sat_id, "kind": seg.kind,
+                      "start": iso_z(seg.start_unix_s, 1), "end": iso_z(seg.end_unix_s, 1),
+                      "acquired": seg.acquired} for seg in plan.timeline.segments],
+        "acquisitions": {k: iso_z(v, 1) for k, v in plan.timeline.acquisition_unix_s.items()},
+        "first_acquired": plan.first_acquired,
+        "first_fix_time": None if plan.timeline.first_fix_unix_s is None else iso_z(plan.timeline.first_fix_unix_s, 1),
+        "ttff_s": _round(plan.timeline.ttff_s, 2),
+        "ttff_median_s": _round(plan.ttff.median_s, 2),
+        "ttff_p95_s": _round(plan.ttff.p95_s, 2),
+        "ttff_runs": plan.ttff.n_runs, "ttff_runs_without_fix": plan.ttff.n_no_fix,
+        "orbit_files": [{"path": f.path, "format": f.format, "satellites": f.n_satellites,
+                         "epoch": iso_z(f.epoch_unix_s, 0),
+                         "age_days": None if f.age_s is None else round(f.age_s / 86400.0, 2)}
+                        for f in plan.orbit_files],
+        "warnings": plan.warnings,
+    }
+
+
+SUMMARY_COLUMNS = ["id", "signal", "in_view", "max_el_deg", "search_start", "low_hz", "high_hz",
+                   "bin_width_hz", "bins", "code_cells", "cn0_dbhz", "pd", "expected_search_s",
+                   "channel", "acquired"]
+
+
+def plan_rows(plan: Plan) -> list[dict]:
+    """One row per satellite in view: the search summary (table and CSV output)."""
+    rows = []
+    for s, sp in enumerate(plan.satellites):
+        if not plan.visible[s].any():
+            continue
+        row = {"id": sp.sat_id, "signal": sp.signal_id,
+               "in_view": f"{100.0 * plan.visible[s].mean():.0f}%",
+               "max_el_deg": round(float(np.max(plan.prediction.elevation_deg[s][plan.visible[s]])), 1)}
+        if sp.search:
+            d = sp.search.to_dict()
+            row.update({"search_start": d["start"][11:21], "low_hz": d["low_hz"], "high_hz": d["high_hz"],
+                        "bin_width_hz": d["bin_width_hz"], "bins": d["bins"], "code_cells": d["code_cells"],
+                        "cn0_dbhz": d["cn0_dbhz"], "pd": d["pd"], "expected_search_s": d["expected_search_s"],
+                        "channel": d["channel"], "acquired": (d["acquired"] or "")[11:21]})
+        rows.append(row)
+    return rows

@@ -1,0 +1,194 @@
+"""The command line on the real public files and on bad input."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+from conftest import ORBIT_DATA, REPO, requires_orbit_data
+
+from planner_gui.cli import main
+
+# Dates near each real file's epoch, from ../shared/orbit-data/README.md (the planned
+# start is the reference that resolves 10-bit weeks).
+REAL_FILES = {
+    "yuma/gpstk_gps_almanac_week819.txt": "2015-05-06T12:00:00Z",
+    "yuma/gpstk_yuma377.txt": "2006-11-15T12:00:00Z",
+    "yuma/orekit_20160331_week866.alm": "2016-04-02T12:00:00Z",
+    "yuma/orekit_q2019034_qzss_week1015.alm": "2019-02-06T00:00:00Z",
+    "yuma/orekit_yuma_week862.txt": "2016-03-02T12:00:00Z",
+    "yuma/perylune_almanac.yuma.week0000.061440.txt": "2019-04-07T12:00:00Z",
+    "yuma/perylune_yuma_2019-11-29_week34.txt": "2019-12-02T12:00:00Z",
+    "sem/gpstk_sem387.txt": "2007-01-27T12:00:00Z",
+    "sem/orekit_current_week862.al3": "2016-03-02T12:00:00Z",
+    "sem/perylune_sem_2019-11-29_week34.txt": "2019-12-02T12:00:00Z",
+    "tle/orekit_3gps_2016-03-24.txt": "2016-03-25T00:00:00Z",
+    "tle/perylune_beidou_2020-04-01.txt": "2020-04-01T06:00:00Z",
+    "tle/perylune_galileo_2020-04-01.txt": "2020-04-01T06:00:00Z",
+    "tle/perylune_glo-ops_2020-04-01.txt": "2020-04-01T06:00:00Z",
+    "tle/perylune_gps-ops_2020-04-01.txt": "2020-04-01T06:00:00Z",
+    "tle/rtklib_TLE_GNSS_20121101.txt": "2012-11-01T00:00:00Z",
+    "tle/rtklib_tle_nav_2012-10-31.txt": "2012-10-31T00:00:00Z",
+    "tle/satkml_gps-ops_2014-10-29.txt": "2014-10-29T00:00:00Z",
+    "tle/sgp4_SGP4-VER.TLE": "2006-06-25T00:00:00Z",
+}
+NOT_ORBIT_FILES = ["tle/rtklib_TLE_GNSS_SATNO.txt", "tle/rtklib_prn_name.txt", "tle/sgp4_tcppver.out"]
+
+
+def run_cli(capsys, *argv):
+    code = main(list(argv))
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def _end(start: str, hours: int = 2) -> str:
+    from datetime import datetime, timedelta
+
+    d = datetime.fromisoformat(start.replace("Z", "+00:00")) + timedelta(hours=hours)
+    return d.strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+@requires_orbit_data
+@pytest.mark.parametrize("rel", sorted(REAL_FILES))
+def test_doppler_and_passes_on_every_real_file(capsys, rel):
+    start = REAL_FILES[rel]
+    extra = ["--skip-bad-records"] if rel.endswith("SGP4-VER.TLE") else []
+    code, out, err = run_cli(capsys, "doppler", "--orbits", str(ORBIT_DATA / rel), "--site",
+                             "-33.92,-70.65,520", "--start", start, "--end", _end(start),
+                             "--step", "600", "--mask", "-90", "--format", "json", *extra)
+    assert code == 0, err
+    doc = json.loads(out)
+    assert doc["satellites"], rel
+    for sat in doc["satellites"]:
+        assert set(sat) >= {"id", "signal", "samples"}
+        smp = sat["samples"][0]
+        assert set(smp) >= {"time", "azimuth_deg", "elevation_deg", "range_m", "range_rate_m_s",
+                            "doppler_hz"}
+        assert smp["time"].endswith("Z")
+    # --mask -90 keeps every sample of every propagated satellite: 13 steps in 2 h at 600 s.
+    assert max(len(s["samples"]) for s in doc["satellites"]) == 13
+    # QZSS serves East Asia and Oceania: look from Tokyo for that file.
+    site = "35.7,139.7,40" if "qzss" in rel else "47.4,8.5,420"
+    code, out, err = run_cli(capsys, "passes", "--orbits", str(ORBIT_DATA / rel), "--site",
+                             site, "--start", start, "--end", _end(start, 12),
+                             "--format", "csv", *extra)
+    assert code == 0, err
+    assert out.splitlines()[0].startswith("id,rise,culmination,set")
+    assert len(out.splitlines()) > 1
+
+
+@requires_orbit_data
+@pytest.mark.parametrize("rel", NOT_ORBIT_FILES)
+def test_files_that_are_not_orbits_give_one_line_and_exit_2(capsys, rel):
+    code, out, err = run_cli(capsys, "passes", "--orbits", str(ORBIT_DATA / rel), "--site",
+                             "47,8,0", "--start", "2020-01-01T00:00:00Z", "--end", "2020-01-01T06:00:00Z")
+    assert code == 2
+    assert len(err.strip().splitlines()) == 1
+    assert rel.split("/")[-1] in err and "line" in err
+
+
+@requires_orbit_data
+def test_mask_leaves_out_samples_below_it(capsys):
+    f = str(ORBIT_DATA / "tle" / "perylune_gps-ops_2020-04-01.txt")
+    args = ["doppler", "--orbits", f, "--site", "47.4,8.5,420", "--start", "2020-04-01T06:00:00Z",
+            "--end", "2020-04-01T07:00:00Z", "--step", "300", "--format", "json"]
+    code, out, _ = run_cli(capsys, *args, "--mask", "20")
+    assert code == 0
+    doc = json.loads(out)
+    els = [s["elevation_deg"] for sat in doc["satellites"] for s in sat["samples"]]
+    assert els and min(els) >= 20.0
+    code, out_all, _ = run_cli(capsys, *args, "--mask", "-90")
+    assert len(json.loads(out_all)["satellites"]) == 31
+
+
+@requires_orbit_data
+def test_orbits_repeat_to_mix_constellations_and_signal_choice(capsys):
+    gps = str(ORBIT_DATA / "tle" / "perylune_gps-ops_2020-04-01.txt")
+    gal = str(ORBIT_DATA / "tle" / "perylune_galileo_2020-04-01.txt")
+    base = ["doppler", "--site", "-33.92,-70.65,520", "--start", "2020-04-01T06:00:00Z",
+            "--end", "2020-04-01T06:10:00Z", "--step", "300", "--format", "json", "--mask", "-90"]
+    code, out, _ = run_cli(capsys, *base, "--orbits", gps, "--orbits", gal)
+    ids = {s["id"][0] for s in json.loads(out)["satellites"]}
+    assert code == 0 and ids == {"G", "E"}
+    code, out, _ = run_cli(capsys, *base, "--orbits", gps, "--orbits", gal, "--signal", "GPS-L5")
+    doc = json.loads(out)
+    assert {s["signal"] for s in doc["satellites"]} == {"GPS-L5"}
+    # L5 Doppler = L1 Doppler x 1176.45 / 1575.42 (same range rate) [calc].
+    code, out1, _ = run_cli(capsys, *base, "--orbits", gps, "--signal", "GPS-L1CA")
+    d1 = {s["id"]: s["samples"][0]["doppler_hz"] for s in json.loads(out1)["satellites"]}
+    for s in doc["satellites"]:
+        assert s["samples"][0]["doppler_hz"] == pytest.approx(d1[s["id"]] * 1176.45 / 1575.42, abs=0.01)
+
+
+def _truncated_almanac(tmp_path: Path) -> Path:
+    src = (ORBIT_DATA / "yuma" / "orekit_yuma_week862.txt").read_text()
+    bad = tmp_path / "cut.alm"
+    bad.write_text(src[: src.index("Mean Anom", 2000) + 14])
+    return bad
+
+
+@requires_orbit_data
+@pytest.mark.parametrize("case", ["truncated", "missing", "bad_site", "end_before_start",
+                                  "bad_time", "bad_signal", "pole"])
+def test_bad_input_one_line_exit_2(capsys, tmp_path, case):
+    good = str(ORBIT_DATA / "tle" / "perylune_gps-ops_2020-04-01.txt")
+    args = {"orbits": good, "site": "47.4,8.5,420", "start": "2020-04-01T06:00:00Z",
+            "end": "2020-04-01T07:00:00Z", "signal": None}
+    expect = None
+    if case == "truncated":
+        args["orbits"] = str(_truncated_almanac(tmp_path))
+        args["start"], args["end"] = "2016-03-02T12:00:00Z", "2016-03-02T13:00:00Z"
+        expect = "cut.alm"
+    elif case == "missing":
+        args["orbits"] = str(tmp_path / "nowhere.tle")
+        expect = "nowhere.tle"
+    elif case == "bad_site":
+        args["site"] = "95,8,0"
+        expect = "lat_deg"
+    elif case == "end_before_start":
+        args["end"] = "2020-04-01T05:00:00Z"
+        expect = "--end"
+    elif case == "bad_time":
+        args["start"] = "yesterday"
+        expect = "--start"
+    elif case == "bad_signal":
+        args["signal"] = "GPS-L9"
+        expect = "signal"
+    elif case == "pole":
+        args["site"] = "90,0,0"   # a site at the pole is valid input: exit 0
+    argv = ["doppler", "--orbits", args["orbits"], "--site", args["site"], "--start", args["start"],
+            "--end", args["end"], "--step", "600"]
+    if args["signal"]:
+        argv += ["--signal", args["signal"]]
+    code, out, err = run_cli(capsys, *argv)
+    if case == "pole":
+        assert code == 0 and "G" in out
+        return
+    assert code == 2, (out, err)
+    lines = err.strip().splitlines()
+    assert len(lines) == 1, err
+    assert expect in lines[0], lines[0]
+
+
+def test_bins_command_json(capsys):
+    code, out, _ = run_cli(capsys, "bins", "--coherent-ms", "1", "--max-loss-db", "1",
+                           "--span-hz", "-1000,1000", "--curve", "--format", "json")
+    assert code == 0
+    doc = json.loads(out)
+    for key in ("coherent_ms", "max_loss_db", "bin_width_hz", "half_width_hz", "worst_loss_db",
+                "average_loss_db", "bins", "curve"):
+        assert key in doc
+    # [calc, domain-notes 5] -1 dB half-width at 1 ms: 261.5 Hz.
+    assert doc["half_width_hz"] == pytest.approx(261.5, abs=0.05)
+    assert doc["bins"][0] - doc["bin_width_hz"] / 2 <= -1000 and doc["bins"][-1] + doc["bin_width_hz"] / 2 >= 1000
+    assert doc["curve"]["marks"]["1.0"] == pytest.approx(261.5, abs=0.05)
+
+
+def test_help_on_every_command():
+    for cmd in ("passes", "doppler", "bins", "plan", "demo", "gui", "sheet"):
+        out = subprocess.run([sys.executable, "-m", "planner_gui.cli", cmd, "--help"], cwd=REPO,
+                             capture_output=True, text=True, timeout=60)
+        assert out.returncode == 0 and "usage:" in out.stdout, cmd
