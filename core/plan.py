@@ -24,6 +24,7 @@ import math
 import time as _time
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from functools import lru_cache
 
 import numpy as np
 
@@ -32,7 +33,7 @@ from . import codephase, detection
 from . import timeline as tl
 from .errors import ComputationError, InputError
 from .geodesy import Site
-from .orbit_margin import orbit_margin_hz, orbit_range_margin_m
+from .orbit_margin import margin_extrapolated, orbit_margin_hz, orbit_range_margin_m
 from .orbits import OrbitFileInfo, OrbitSet
 from .predict import Pass, Prediction, passes, predict
 from .scenario import Scenario
@@ -77,6 +78,7 @@ class PreparedGeometry:
     visible: np.ndarray            # (S, T): above the mask, propagated, healthy
     warnings: list[str]
     propagate_s: float
+    window_cache: dict = field(default_factory=dict)
 
 
 def _select_satellites(orbits: OrbitSet, signals: tuple[str, ...]) -> tuple[OrbitSet, dict[str, str], list[str]]:
@@ -228,7 +230,7 @@ class Plan:
     sensitivity_dbhz: dict[str, float]               # C/N0 for Pd = 0.9, per signal
     code_step_loss: codephase.CodeStepLoss
     timeline: tl.Timeline
-    ttff: tl.TtffStats
+    ttff: tl.TtffStats | None                        # None until add_monte_carlo
     first_acquired: str | None
     orbit_files: list[OrbitFileInfo]
     warnings: list[str]
@@ -273,11 +275,12 @@ class Plan:
     def summary_text(self) -> str:
         n_vis = int(self.visible.any(axis=1).sum())
         ff = "none in the window" if self.timeline.first_fix_unix_s is None else iso_z(self.timeline.first_fix_unix_s, 1)
+        mc = ("Monte Carlo not run" if self.ttff is None else
+              f"median {_fmt_s(self.ttff.median_s)}, 95th percentile {_fmt_s(self.ttff.p95_s)} "
+              f"({self.ttff.n_runs} Monte Carlo runs)")
         lines = [f"plan '{self.scenario.name}': {n_vis} satellites in view, "
                  f"{len(self.timeline.segments)} timeline segments",
-                 f"first fix {ff}; TTFF {_fmt_s(self.timeline.ttff_s)} expected, "
-                 f"median {_fmt_s(self.ttff.median_s)}, 95th percentile {_fmt_s(self.ttff.p95_s)} "
-                 f"({self.ttff.n_runs} Monte Carlo runs)",
+                 f"first fix {ff}; TTFF {_fmt_s(self.timeline.ttff_s)} expected, {mc}",
                  f"{len(self.warnings)} warning(s); computed in {self.compute_s:.2f} s"]
         return "\n".join(lines)
 
@@ -305,9 +308,13 @@ def _data_age_s(orbits: OrbitSet, at_unix_s: float) -> np.ndarray:
 
 
 def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
-              progress: ProgressFn | None = None, cancel: CancelFn | None = None) -> Plan:
+              progress: ProgressFn | None = None, cancel: CancelFn | None = None,
+              monte_carlo: bool = True) -> Plan:
     """The full plan. Pass ``prepared`` (from an earlier plan or prepare_geometry) to skip
-    propagation when only search parameters changed; it is rebuilt if it does not fit."""
+    propagation when only search parameters changed; it is rebuilt if it does not fit.
+
+    With ``monte_carlo=False`` the TTFF statistics are left out (``plan.ttff`` is None)
+    so that an interactive re-plan returns fast; :func:`add_monte_carlo` fills them in."""
     t_start = _time.perf_counter()
     reused = prepared is not None and prepared.key == geometry_key(sc)
     if not reused:
@@ -328,8 +335,36 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
     else:
         margin = np.array([float(orbit_margin_hz(k, a, f)) for k, a, f in zip(kinds, age, pred.carrier_hz)])
     range_margin = np.array([float(orbit_range_margin_m(k, a)) for k, a in zip(kinds, age)])
+    old = sorted({e.info.sat_id for e, k, a in zip(orbits.entries, kinds, age)
+                  if bool(margin_extrapolated(k, a))})
+    if old and sc.search.orbit_margin_hz is None:
+        warnings.append(
+            f"orbit data older than the ages the default margin was derived for "
+            f"(docs/orbit-margin.md) for {len(old)} satellite(s) ({', '.join(old[:6])}"
+            f"{', ...' if len(old) > 6 else ''}): windows may be too narrow; use fresher "
+            "data or set [search] orbit_margin_hz")
+    # GLONASS without a known channel k: Doppler is computed on the k = 0 carrier; the
+    # true carrier differs by up to 7 x 0.5625 MHz, which scales the Doppler by up to
+    # 3.9375 / 1602 (0.25 %) [calc]. Widen the orbit term by that share.
+    unknown_k = np.array([e.info.system == "R" and e.info.glonass_k is None for e in orbits.entries])
+    if unknown_k.any():
+        frac = 7 * SIGNALS["GLO-L1OF"].fdma_step_hz / SIGNALS["GLO-L1OF"].carrier_hz
+        margin = margin + 0.0
+        margin_t = margin[:, None] + np.where(unknown_k[:, None], np.abs(pred.doppler_hz) * frac, 0.0)
+        warnings.append(
+            f"GLONASS channel k unknown for {int(unknown_k.sum())} satellite(s): windows are "
+            "planned on the k = 0 carrier and widened by 0.25 % of the Doppler; give k in a "
+            "mapping file ([orbits] mapping)")
+    else:
+        margin_t = margin[:, None]
     unc = _uncertainty(sc)
-    w_first = doppler_windows(pred, unc, margin[:, None], shifted=g.shifted)
+    # Windows depend on the uncertainties and the margin only: cached per prepared geometry.
+    wkey = (unc, margin_t.tobytes())
+    w_first = g.window_cache.get(wkey)
+    if w_first is None:
+        w_first = doppler_windows(pred, unc, margin_t, shifted=g.shifted)
+        g.window_cache.clear()
+        g.window_cache[wkey] = w_first
 
     # Coherent integration per signal, checked against the signal.
     design: dict[str, binlib.BinDesign] = {}
@@ -346,7 +381,9 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
         rows = [i for i, s in enumerate(g.signal_ids) if s == sid]
         tc_s[rows] = coh_ms / 1000.0
         n_nc[rows] = nc
-        transition_db[rows] = chk.transition_loss_db if chk.warnings else 0.0
+        # Expected loss from data-bit / secondary-code sign changes inside a coherent
+        # interval whose start is not aligned to the symbols (core.bins).
+        transition_db[rows] = chk.transition_loss_db
     width = np.array([design[s].bin_width_hz for s in g.signal_ids])[:, None]
     half = width / 2.0
     avg_freq_loss = np.array([design[s].average_loss_db for s in g.signal_ids])[:, None]
@@ -357,6 +394,16 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
     code_len = np.array([float(s.code_length_chips) for s in signals])[:, None]
     chip_m = np.array([s.chip_length_m for s in signals])[:, None]
     fine = sc.search.fine_time_uncertainty_us
+    if fine is not None:
+        # Satellite clock: a TLE carries none (broadcast offsets reach 0.57 ms, 171 km,
+        # in the TLE pairs of docs/orbit-margin.md), so fine time cannot narrow the code
+        # window of a TLE satellite; almanac clock terms were off by 190 m at 1 day and
+        # 1161 m at 27.8 days there: margin 200 m + 40 m per day of age.
+        clock_m = np.where(np.array(kinds) == "almanac", 200.0 + 40.0 * np.abs(age) / 86400.0, np.inf)
+        range_margin = range_margin + clock_m
+        if np.isinf(clock_m).any():
+            warnings.append("fine time does not narrow the code window of TLE satellites "
+                            "(a TLE holds no satellite clock): they search the whole code")
     if fine is None:
         cw_first = np.broadcast_to(code_len, (n_s, n_t)).copy()
         cw_after_base = cw_first.copy()
@@ -375,13 +422,11 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
                                           sc.signal.cn0_at_mask_dbhz, mask)
     cn0_eff = np.asarray(cn0) - sc.signal.extra_loss_db - avg_freq_loss - code_loss.average_loss_db - transition_db[:, None]
     pfa = sc.search.false_alarm_per_cell
-    thr = detection.threshold_for_pfa(pfa, n_nc)[:, None]
-    snr = detection.coherent_snr_linear(cn0_eff, tc_s[:, None])
-    pd = np.asarray(detection.detection_probability(snr, n_nc[:, None], thr))
-    sens = {sid: float(detection.sensitivity_dbhz(pfa, 0.9, sc.search.integration_for(sid)[1],
-                                                  sc.search.integration_for(sid)[0] / 1000.0,
-                                                  sc.signal.extra_loss_db + design[sid].average_loss_db
-                                                  + code_loss.average_loss_db))
+    pd = _pd_by_table(np.asarray(cn0_eff, dtype=float), tc_s, n_nc, pfa, g.visible)
+    sens = {sid: _sensitivity_dbhz(float(pfa), int(sc.search.integration_for(sid)[1]),
+                                   sc.search.integration_for(sid)[0] / 1000.0,
+                                   float(sc.signal.extra_loss_db + design[sid].average_loss_db
+                                         + code_loss.average_loss_db))
             for sid in design}
 
     def costs(windows: DopplerWindows, cells: np.ndarray):
@@ -442,9 +487,11 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
     timeline = tl.expected_timeline(inputs)
     warnings.extend(timeline.warnings)
     _check_cancel(cancel)
-    _report(progress, 0.85, "Monte Carlo of the time to first fix")
-    ttff = tl.monte_carlo_ttff(inputs, sc.search.monte_carlo_runs, sc.search.seed)
-    warnings.extend(ttff.warnings)
+    ttff = None
+    if monte_carlo:
+        _report(progress, 0.85, "Monte Carlo of the time to first fix")
+        ttff = tl.monte_carlo_ttff(inputs, sc.search.monte_carlo_runs, sc.search.seed)
+        warnings.extend(ttff.warnings)
 
     # Per-satellite search summaries from the timeline's first search of each satellite.
     first_search: dict[str, tl.TimelineSegment] = {}
@@ -491,7 +538,54 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
                 first_fix_unix_s=timeline.first_fix_unix_s)
     plan.compute_s = _time.perf_counter() - t_start
     plan.prepared = g  # type: ignore[attr-defined]
+    plan.timeline_inputs = inputs  # type: ignore[attr-defined]
     return plan
+
+
+def add_monte_carlo(plan: Plan) -> Plan:
+    """Fill in the seeded Monte Carlo TTFF statistics of a plan made without them."""
+    if plan.ttff is None:
+        t0 = _time.perf_counter()
+        sc = plan.scenario
+        plan.ttff = tl.monte_carlo_ttff(plan.timeline_inputs, sc.search.monte_carlo_runs,  # type: ignore[attr-defined]
+                                        sc.search.seed)
+        plan.warnings = _dedupe(plan.warnings + list(plan.ttff.warnings))
+        plan.compute_s += _time.perf_counter() - t0
+    return plan
+
+
+@lru_cache(maxsize=256)
+def _required_snr_db(pfa: float, n: int) -> float:
+    """Single-interval SNR for Pd = 0.9 (cached: a root search that depends on Pfa and N only)."""
+    return float(detection.required_snr_db(pfa, 0.9, n))
+
+
+def _sensitivity_dbhz(pfa: float, n: int, coherent_s: float, losses_db: float) -> float:
+    """C/N0 for Pd = 0.9: SNR_req + losses - 10 log10 Tc (as core.detection.sensitivity_dbhz)."""
+    return _required_snr_db(pfa, n) + losses_db - 10.0 * math.log10(coherent_s)
+
+
+def _pd_by_table(cn0_eff_dbhz: np.ndarray, coherent_s: np.ndarray, n_nc: np.ndarray,
+                 pfa: float, visible: np.ndarray) -> np.ndarray:
+    """Detection probability of the square-law detector (core.detection) per (S, T).
+
+    Evaluated on a 0.002 dB grid of C/N0 per (coherent time, N) group and interpolated
+    linearly (Pd is smooth in C/N0: the interpolation error is below 1e-6 [calc: |Pd''|
+    < 0.1 per dB^2 times h^2/8]). The elevation model holds C/N0 at its mask value below
+    the mask, so every sample has a finite value. This keeps a re-plan fast on long
+    windows, where the direct non-central chi-square would dominate."""
+    pd = np.zeros_like(cn0_eff_dbhz)
+    groups = {(float(t), int(n)) for t, n in zip(coherent_s, n_nc)}
+    for tc, n in groups:
+        rows = np.nonzero((coherent_s == tc) & (n_nc == n))[0]
+        sub = cn0_eff_dbhz[rows]
+        lo, hi = float(np.min(sub)), float(np.max(sub))
+        grid = np.arange(lo - 0.01, hi + 0.012, 0.002)
+        thr = detection.threshold_for_pfa(pfa, n)
+        table = np.asarray(detection.detection_probability(
+            detection.coherent_snr_linear(grid, tc), n, thr))
+        pd[rows] = np.interp(sub, grid, table)
+    return pd
 
 
 def _dedupe(items: list[str]) -> list[str]:
@@ -542,9 +636,10 @@ def plan_to_json(plan: Plan) -> dict:
         "first_acquired": plan.first_acquired,
         "first_fix_time": None if plan.timeline.first_fix_unix_s is None else iso_z(plan.timeline.first_fix_unix_s, 1),
         "ttff_s": _round(plan.timeline.ttff_s, 2),
-        "ttff_median_s": _round(plan.ttff.median_s, 2),
-        "ttff_p95_s": _round(plan.ttff.p95_s, 2),
-        "ttff_runs": plan.ttff.n_runs, "ttff_runs_without_fix": plan.ttff.n_no_fix,
+        "ttff_median_s": None if plan.ttff is None else _round(plan.ttff.median_s, 2),
+        "ttff_p95_s": None if plan.ttff is None else _round(plan.ttff.p95_s, 2),
+        "ttff_runs": None if plan.ttff is None else plan.ttff.n_runs,
+        "ttff_runs_without_fix": None if plan.ttff is None else plan.ttff.n_no_fix,
         "orbit_files": [{"path": f.path, "format": f.format, "satellites": f.n_satellites,
                          "epoch": iso_z(f.epoch_unix_s, 0),
                          "age_days": None if f.age_s is None else round(f.age_s / 86400.0, 2)}
@@ -561,7 +656,11 @@ SUMMARY_COLUMNS = ["id", "signal", "in_view", "max_el_deg", "search_start", "low
 def plan_rows(plan: Plan) -> list[dict]:
     """One row per satellite in view: the search summary (table and CSV output)."""
     rows = []
-    for s, sp in enumerate(plan.satellites):
+    order = sorted(range(len(plan.satellites)), key=lambda s: (
+        plan.satellites[s].search.start_unix_s if plan.satellites[s].search else math.inf,
+        plan.satellites[s].sat_id))
+    for s in order:
+        sp = plan.satellites[s]
         if not plan.visible[s].any():
             continue
         row = {"id": sp.sat_id, "signal": sp.signal_id,

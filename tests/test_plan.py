@@ -1,0 +1,239 @@
+"""The search plan chain on the demo scenario and on real files."""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+from conftest import ORBIT_DATA, REPO, requires_orbit_data
+
+from core import bins as binlib
+from core.errors import InputError
+from core.plan import geometry_key, make_plan, plan_to_json
+from core.scenario import load_scenario
+
+DEMO = REPO / "sample_almanacs" / "demo_scenario.toml"
+
+
+@pytest.fixture(scope="module")
+def demo_plan():
+    return make_plan(load_scenario(DEMO))
+
+
+def test_json_schema_of_the_plan(demo_plan):
+    doc = json.loads(json.dumps(plan_to_json(demo_plan)))
+    for key in ("satellites", "timeline", "first_fix_time", "ttff_s", "ttff_median_s",
+                "ttff_p95_s", "warnings"):
+        assert key in doc
+    searched = [s for s in doc["satellites"] if s["search"]]
+    assert len(searched) >= 12
+    for sat in doc["satellites"]:
+        assert {"id", "signal", "carrier_hz", "windows", "search"} <= set(sat)
+        for w in sat["windows"]:
+            assert {"time", "nominal_hz", "low_hz", "high_hz"} <= set(w)
+            assert w["low_hz"] <= w["nominal_hz"] <= w["high_hz"]
+    for s in searched:
+        assert {"start", "low_hz", "high_hz", "bin_width_hz", "bins", "code_window_chips",
+                "code_cells", "cn0_dbhz", "pd", "dwell_s", "expected_search_s", "channel"} <= set(s["search"])
+    for seg in doc["timeline"]:
+        assert {"channel", "id", "kind", "start", "end"} <= set(seg)
+        assert seg["kind"] in ("search", "track")
+
+
+def test_search_summary_follows_the_engine(demo_plan):
+    """Bins and windows in each search summary equal core.bins on the plan's own window."""
+    sc = demo_plan.scenario
+    for sp in demo_plan.satellites:
+        if sp.search is None:
+            continue
+        coh_ms, _ = sc.search.integration_for(sp.signal_id)
+        design = binlib.design_bins(coh_ms / 1000.0, sc.search.max_frequency_loss_db)
+        assert sp.search.bin_width_hz == pytest.approx(design.bin_width_hz)
+        n = binlib.bin_count(sp.search.low_hz, sp.search.high_hz, design.bin_width_hz)
+        assert sp.search.bins == n == sp.search.bin_centres_hz.size
+        c = sp.search.bin_centres_hz
+        assert c[0] - design.bin_width_hz / 2 <= sp.search.low_hz + 1e-9
+        assert c[-1] + design.bin_width_hz / 2 >= sp.search.high_hz - 1e-9
+        assert np.allclose(np.diff(c), design.bin_width_hz)
+        # The worst loss inside a bin is the accepted loss [calc: |sinc| at half a bin].
+        assert binlib.frequency_loss_db(design.bin_width_hz / 2, coh_ms / 1000.0) == pytest.approx(
+            sc.search.max_frequency_loss_db, abs=1e-6)
+        assert 0.0 <= sp.search.pd <= 1.0 and sp.search.expected_search_s > 0
+
+
+def test_windows_after_first_acquisition_are_narrower(demo_plan):
+    p = demo_plan
+    wf, wa = p.windows_first, p.windows_after
+    vis = p.visible
+    width_f = (wf.high_hz - wf.low_hz)[vis]
+    width_a = (wa.high_hz - wa.low_hz)[vis]
+    assert np.all(width_a <= width_f + 1e-9)
+    # With a 500 ppb TCXO the oscillator term (+-788 Hz at L1) dominates; once known the
+    # windows shrink a lot [calc: 500e-9 x 1575.42e6 = 787.7 Hz].
+    assert np.median(width_a / width_f) < 0.6
+    osc = wf.share_hz["oscillator"]
+    gps = [i for i, s in enumerate(p.satellites) if s.signal_id == "GPS-L1CA"]
+    assert np.allclose(osc[gps][vis[gps]], 500e-9 * 1575.42e6, rtol=1e-3)
+
+
+def test_timeline_respects_the_mask_and_channels(demo_plan):
+    p = demo_plan
+    idx = {s.sat_id: i for i, s in enumerate(p.satellites)}
+    by_channel: dict[int, list] = {}
+    for seg in p.timeline.segments:
+        by_channel.setdefault(seg.channel, []).append(seg)
+        if seg.kind == "search":
+            sat = p.satellites[idx[seg.sat_id]]
+            assert any(ps.rise_unix_s - 1e-6 <= seg.start_unix_s and seg.end_unix_s <= ps.set_unix_s + 1e-6
+                       for ps in sat.passes), seg
+    for segs in by_channel.values():
+        segs.sort(key=lambda s: s.start_unix_s)
+        for a, b in zip(segs, segs[1:]):
+            assert a.end_unix_s <= b.start_unix_s + 1e-9
+    assert len(by_channel) <= p.scenario.receiver.channels
+    assert p.timeline.first_fix_unix_s is not None
+    assert p.ttff.median_s <= p.ttff.p95_s
+
+
+def test_search_only_change_reuses_geometry_and_matches_a_fresh_plan(demo_plan):
+    sc2 = demo_plan.scenario.with_changes(search={"coherent_ms": 8, "max_frequency_loss_db": 2.0,
+                                                  "false_alarm_per_cell": 1e-5})
+    assert geometry_key(sc2) == geometry_key(demo_plan.scenario)
+    quick = make_plan(sc2, prepared=demo_plan.prepared)
+    fresh = make_plan(sc2)
+    assert quick.reused_geometry and not fresh.reused_geometry
+    assert np.array_equal(quick.bins_first, fresh.bins_first)
+    assert quick.timeline.first_fix_unix_s == fresh.timeline.first_fix_unix_s
+    assert quick.ttff.median_s == fresh.ttff.median_s
+    # 8 ms halves the 4 ms bin width and a 2 dB loss widens it: 1/Tc scaling [calc].
+    b4 = demo_plan.bin_design["GAL-E1"].bin_width_hz
+    b8 = quick.bin_design["GAL-E1"].bin_width_hz
+    assert b8 == pytest.approx(binlib.design_bins(0.008, 2.0).bin_width_hz)
+    assert b8 < b4
+
+
+def test_plan_is_reproducible(demo_plan):
+    again = make_plan(demo_plan.scenario)
+    assert again.ttff.median_s == demo_plan.ttff.median_s
+    assert [s.to_dict() for s in again.timeline.segments] == [s.to_dict() for s in demo_plan.timeline.segments]
+
+
+def test_invalid_coherent_time_for_galileo(demo_plan):
+    sc = demo_plan.scenario.with_changes(search={"coherent_ms": 1})
+    with pytest.raises(InputError) as err:
+        make_plan(sc, prepared=demo_plan.prepared)
+    assert "coherent" in str(err.value) and "GAL-E1" in str(err.value)
+
+
+def test_moved_orbit_file_is_reported(tmp_path):
+    from core.demo import write_demo
+
+    path = write_demo(tmp_path)
+    sc = load_scenario(path)
+    (tmp_path / "demo_galileo.tle").unlink()
+    with pytest.raises(InputError) as err:
+        make_plan(sc)
+    assert "demo_galileo.tle" in str(err.value)
+
+
+def test_cli_plan_and_demo_commands(tmp_path, capsys):
+    from planner_gui.cli import main
+
+    assert main(["demo", str(tmp_path / "d")]) == 0
+    scen = tmp_path / "d" / "demo_scenario.toml"
+    assert scen.is_file()
+    out_file = tmp_path / "plan.json"
+    assert main(["plan", str(scen), "--format", "json", "-o", str(out_file)]) == 0
+    doc = json.loads(out_file.read_text())
+    assert doc["ttff_s"] > 0 and doc["satellites"]
+    capsys.readouterr()
+    assert main(["plan", str(scen)]) == 0
+    out = capsys.readouterr().out
+    assert "TTFF" in out and "GAL-E1" in out
+    bad = tmp_path / "bad.toml"
+    bad.write_text(scen.read_text().replace("channels = 12", "channels = 0"))
+    assert main(["plan", str(bad)]) == 2
+    err = capsys.readouterr().err
+    assert len(err.strip().splitlines()) == 1 and "receiver.channels" in err
+
+
+@requires_orbit_data
+def test_plan_on_real_files(tmp_path):
+    """A scenario on the real 2020 TLE sets (CelesTrak via perylune) plans without error."""
+    text = (DEMO.read_text()
+            .replace('files = ["demo_gps_yuma.txt", "demo_galileo.tle", "demo_beidou.tle", "demo_glonass.tle"]',
+                     'files = ["{}", "{}"]'.format(ORBIT_DATA / "tle" / "perylune_gps-ops_2020-04-01.txt",
+                                                   ORBIT_DATA / "tle" / "perylune_galileo_2020-04-01.txt"))
+            .replace('mapping = "demo_glonass_mapping.txt"', "")
+            .replace('signals = ["GPS-L1CA", "GAL-E1", "BDS-B1I", "GLO-L1OF"]', 'signals = ["GPS-L1CA", "GAL-E1"]')
+            .replace("2027-05-18T04:00:00Z", "2020-04-01T06:00:00Z")
+            .replace("2027-05-18T06:00:00Z", "2020-04-01T08:00:00Z"))
+    path = tmp_path / "real.toml"
+    path.write_text(text)
+    plan = make_plan(load_scenario(path))
+    assert plan.timeline.first_fix_unix_s is not None
+    assert {s.sat_id[0] for s in plan.satellites if s.search} == {"G", "E"}
+    assert math.isfinite(plan.ttff.median_s)
+    ages = [s.data_age_s for s in plan.satellites]
+    assert 0 < min(ages) and max(ages) < 7 * 86400   # TLE epochs 2020-03-26..04-01
+
+
+def test_demo_scenario_exists():
+    assert DEMO.is_file() and Path(DEMO).read_text().startswith("# acqplan demo scenario")
+
+
+def test_two_stage_monte_carlo_equals_one_stage(demo_plan):
+    from core.plan import add_monte_carlo
+
+    quick = make_plan(demo_plan.scenario, prepared=demo_plan.prepared, monte_carlo=False)
+    assert quick.ttff is None
+    add_monte_carlo(quick)
+    assert quick.ttff.median_s == demo_plan.ttff.median_s
+    assert np.array_equal(quick.ttff.samples_s, demo_plan.ttff.samples_s)
+
+
+def test_tabulated_pd_equals_the_detector_formula(demo_plan):
+    """The plan's Pd (tabulated for speed) equals core.detection evaluated directly."""
+    from core import detection
+
+    p = demo_plan
+    sc = p.scenario
+    for s, sp in enumerate(p.satellites[:20]):
+        coh_ms, n = sc.search.integration_for(sp.signal_id)
+        k = np.nonzero(p.visible[s])[0]
+        if not k.size:
+            continue
+        # Recompute the effective C/N0 of the plan's model and Pd directly.
+        losses = (sc.signal.extra_loss_db + p.bin_design[sp.signal_id].average_loss_db
+                  + p.code_step_loss.average_loss_db)
+        from core.bins import check_coherent_time
+        from core.signals import SIGNALS
+
+        losses += check_coherent_time(SIGNALS[sp.signal_id], coh_ms / 1000).transition_loss_db
+        direct = detection.detection_probability_at_cn0(p.cn0_dbhz[s, k], coh_ms / 1000, n,
+                                                        sc.search.false_alarm_per_cell, losses)
+        assert np.max(np.abs(np.asarray(direct) - p.pd_first[s, k])) < 1e-5
+
+
+def test_fine_time_narrows_the_code_window_of_almanac_satellites(demo_plan):
+    """With fine time (10 us), the code window is the range uncertainty in chips: position
+    h cos(el) + v sin(el), clock c dt, orbit and satellite-clock margins [calc]; TLE
+    satellites (no clock in a TLE) keep the whole code."""
+    sc = demo_plan.scenario.with_changes(search={"fine_time_uncertainty_us": 10.0})
+    p = make_plan(sc, prepared=demo_plan.prepared, monte_carlo=False)
+    for s, sp in enumerate(p.satellites):
+        vis = p.visible[s]
+        if not vis.any():
+            continue
+        cw = p.code_window_first_chips[s][vis]
+        if sp.source_kind == "almanac":
+            chip_m = 299_792_458.0 / 1.023e6
+            # at least the clock term alone: 2 x c x 10 us = 5996 m = 20.5 chips
+            assert np.all(cw >= 2 * 299_792_458.0 * 10e-6 / chip_m - 1e-9)
+            assert np.all(cw < 1023)
+        else:
+            assert np.allclose(cw, {"GAL-E1": 4092, "BDS-B1I": 2046, "GLO-L1OF": 511}[sp.signal_id])
+    assert any("TLE" in w for w in p.warnings)
