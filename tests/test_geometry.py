@@ -188,8 +188,10 @@ def test_passes_refined_below_one_second():
         near = predict(sub, site, np.array([p.rise_unix_s - 0.5, p.rise_unix_s + 0.5]))
         el = near.elevation_deg[0]
         assert el[0] < 10.0 < el[1], (p.sat_id, el)   # the mask is crossed within +-0.5 s
+        at = predict(sub, site, np.array([p.rise_unix_s])).elevation_deg[0, 0]
+        assert abs(at - 10.0) < 1e-3, (p.sat_id, at)     # about 0.1 s of elevation motion
         # Not grid-rounded: the rise is not on the 120 s grid.
-        assert abs(((p.rise_unix_s - start.timestamp()) % 120.0)) > 1e-3
+        assert abs((p.rise_unix_s - start.timestamp()) % 120.0) > 1e-3
         assert idx[p.sat_id] >= 0
     for p in found:
         assert p.rise_unix_s <= p.culmination_unix_s <= p.set_unix_s
