@@ -648,9 +648,20 @@ def plan_to_json(plan: Plan) -> dict:
     }
 
 
-SUMMARY_COLUMNS = ["id", "signal", "in_view", "max_el_deg", "search_start", "low_hz", "high_hz",
-                   "bin_width_hz", "bins", "code_cells", "cn0_dbhz", "pd", "expected_search_s",
-                   "channel", "acquired"]
+SUMMARY_COLUMNS = ["id", "signal", "in_view", "max_el_deg", "search_start", "state", "low_hz",
+                   "high_hz", "bin_width_hz", "bins", "code_window_chips", "code_cells",
+                   "cn0_dbhz", "pd", "expected_search_s", "channel", "acquired",
+                   "after_low_hz", "after_high_hz", "after_bins"]
+
+
+def timeline_rows(plan: Plan) -> list[dict]:
+    """One row per timeline segment, channel by channel."""
+    segs = sorted(plan.timeline.segments, key=lambda g: (g.channel, g.start_unix_s))
+    return [{"channel": g.channel, "id": g.sat_id, "kind": g.kind,
+             "start": iso_z(g.start_unix_s, 1)[11:21], "end": iso_z(g.end_unix_s, 1)[11:21],
+             "duration_s": round(g.end_unix_s - g.start_unix_s, 1),
+             "result": "window end" if g.end_unix_s >= plan.times.end_unix_s - 1e-6 else g.end_reason}
+            for g in segs]
 
 
 def plan_rows(plan: Plan) -> list[dict]:
@@ -668,9 +679,14 @@ def plan_rows(plan: Plan) -> list[dict]:
                "max_el_deg": round(float(np.max(plan.prediction.elevation_deg[s][plan.visible[s]])), 1)}
         if sp.search:
             d = sp.search.to_dict()
-            row.update({"search_start": d["start"][11:21], "low_hz": d["low_hz"], "high_hz": d["high_hz"],
-                        "bin_width_hz": d["bin_width_hz"], "bins": d["bins"], "code_cells": d["code_cells"],
+            k = plan.index_at(sp.search.start_unix_s)
+            row.update({"search_start": d["start"][11:21], "state": d["state"], "low_hz": d["low_hz"],
+                        "high_hz": d["high_hz"], "bin_width_hz": d["bin_width_hz"], "bins": d["bins"],
+                        "code_window_chips": d["code_window_chips"], "code_cells": d["code_cells"],
                         "cn0_dbhz": d["cn0_dbhz"], "pd": d["pd"], "expected_search_s": d["expected_search_s"],
-                        "channel": d["channel"], "acquired": (d["acquired"] or "")[11:21]})
+                        "channel": d["channel"], "acquired": (d["acquired"] or "")[11:21],
+                        "after_low_hz": round(float(plan.windows_after.low_hz[s, k]), 2),
+                        "after_high_hz": round(float(plan.windows_after.high_hz[s, k]), 2),
+                        "after_bins": int(plan.bins_after[s, k])})
         rows.append(row)
     return rows

@@ -237,19 +237,24 @@ def cmd_bins(args) -> int:
 
 
 def cmd_plan(args) -> int:
-    from core.plan import make_plan, plan_rows, plan_to_json
+    from core.plan import SUMMARY_COLUMNS, make_plan, plan_rows, plan_to_json, timeline_rows
     from core.scenario import load_scenario
 
     scenario = load_scenario(args.scenario)
     plan = make_plan(scenario)
     if args.format == "json":
         _emit(json.dumps(plan_to_json(plan), indent=1), args.output)
-    else:
+    elif args.format == "csv":
         _print_warnings(plan.warnings)
-        rows = plan_rows(plan)
-        _emit(format_rows(rows, args.format), args.output)
-        if args.format == "table" and not args.output:
-            print(plan.summary_text())
+        _emit(format_rows(plan_rows(plan), "csv", SUMMARY_COLUMNS), args.output)
+    else:
+        parts = ["Searches (one row per satellite in view; 'after' = once the oscillator is known)",
+                 format_rows(plan_rows(plan), "table", SUMMARY_COLUMNS),
+                 "Channel timeline", format_rows(timeline_rows(plan), "table"),
+                 plan.summary_text()]
+        if plan.warnings:
+            parts.append("Warnings:\n" + "\n".join(f"  - {w}" for w in plan.warnings))
+        _emit("\n".join(parts), args.output)
     return EXIT_OK
 
 
