@@ -452,7 +452,7 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
                 refined[sid] = []
         return tl.TimelineInputs(
             times_unix_s=grid.unix_s, sat_ids=tuple(pred.ids), visible=g.visible,
-            priority=np.where(g.visible, pred.elevation_deg, -90.0),
+            priority=np.where(g.visible, _priority(sc.search.priority, pred), -1000.0),
             expected_search_first_s=exp_first, expected_search_after_s=exp_after,
             n_channels=sc.receiver.channels, first_fix_satellites=sc.search.first_fix_satellites,
             ephemeris_wait_s=sc.search.ephemeris_wait_s,
@@ -586,6 +586,16 @@ def _pd_by_table(cn0_eff_dbhz: np.ndarray, coherent_s: np.ndarray, n_nc: np.ndar
             detection.coherent_snr_linear(grid, tc), n, thr))
         pd[rows] = np.interp(sub, grid, table)
     return pd
+
+
+def _priority(kind: str, pred: Prediction) -> np.ndarray:
+    """Search order: 'elevation' = highest first; 'rising' = rising satellites first
+    (highest first among them), then setting ones - a rising satellite stays longer in
+    view, so its acquisition pays off for longer."""
+    el = pred.elevation_deg
+    if kind == "rising":
+        return el + np.where(pred.elevation_rate_deg_s > 0, 180.0, 0.0)
+    return el
 
 
 def _dedupe(items: list[str]) -> list[str]:

@@ -237,3 +237,19 @@ def test_fine_time_narrows_the_code_window_of_almanac_satellites(demo_plan):
         else:
             assert np.allclose(cw, {"GAL-E1": 4092, "BDS-B1I": 2046, "GLO-L1OF": 511}[sp.signal_id])
     assert any("TLE" in w for w in p.warnings)
+
+
+def test_rising_priority_searches_rising_satellites_first(demo_plan):
+    sc = demo_plan.scenario.with_changes(search={"priority": "rising", "monte_carlo_runs": 20})
+    p = make_plan(sc, prepared=demo_plan.prepared)
+    k0 = 0
+    rate = p.prediction.elevation_rate_deg_s[:, k0]
+    first = [seg for seg in p.timeline.segments if seg.kind == "search" and seg.start_unix_s == p.times.unix_s[0]]
+    idx = {s.sat_id: i for i, s in enumerate(p.satellites)}
+    chosen = {idx[seg.sat_id] for seg in first}
+    visible_rising = [i for i in range(len(p.satellites)) if p.visible[i, k0] and rate[i] > 0]
+    # 12 channels: if at least 12 rising satellites are up, all first searches are rising ones.
+    if len(visible_rising) >= sc.receiver.channels:
+        assert all(rate[i] > 0 for i in chosen)
+    else:
+        assert set(visible_rising) <= chosen
