@@ -21,7 +21,6 @@ import math
 import numbers
 import os
 import re
-import tempfile
 import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
@@ -33,6 +32,7 @@ from zoneinfo import ZoneInfo, ZoneInfoNotFoundError, available_timezones
 import tomli_w
 
 from .errors import InputError, ScenarioError
+from .export import write_text_atomic
 from .signals import SIGNALS, Signal
 from .timeutil import TimeGrid, iso_z, parse_iso_utc, time_grid
 
@@ -875,25 +875,7 @@ def save_scenario(scenario: Scenario, path: str | os.PathLike[str]) -> Scenario:
                      mapping=(None if scenario.orbits.mapping is None
                               else _rebase(scenario.orbits.mapping, scenario.base_dir, folder)))
     saved = replace(scenario, orbits=orbits, path=p, base_dir=folder)
-    data = scenario_to_toml(saved).encode("utf-8")
-    try:
-        mode = p.stat().st_mode & 0o777 if p.exists() else 0o644
-        fd, tmp = tempfile.mkstemp(dir=folder, prefix=f".{p.name}.", suffix=".tmp")
-    except OSError as exc:
-        raise ScenarioError(f"cannot write in {folder}: {exc.strerror or exc}", file=str(p)) from None
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.chmod(tmp, mode)
-        os.replace(tmp, p)
-    except OSError as exc:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise ScenarioError(f"cannot save the scenario: {exc.strerror or exc}", file=str(p)) from None
+    write_text_atomic(p, scenario_to_toml(saved), ScenarioError, "save the scenario")
     return saved
 
 
