@@ -19,7 +19,8 @@ def write_bytes_atomic(path: str | os.PathLike[str], data: bytes,
     target = Path(path)
     folder = target.resolve().parent
     if not folder.is_dir():
-        raise error(f"cannot {what}: folder {folder} does not exist", file=str(target))
+        why = "is not a folder" if folder.exists() else "does not exist"
+        raise error(f"cannot {what}: {folder} {why}", file=str(target))
     try:
         mode = target.stat().st_mode & 0o777 if target.exists() else 0o644
         fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=folder)

@@ -17,6 +17,7 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from core.errors import AcqplanError, InputError
+from planner_gui import version
 
 EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT = 0, 1, 2
 
@@ -242,6 +243,11 @@ def cmd_plan(args) -> int:
 
     scenario = load_scenario(args.scenario)
     plan = make_plan(scenario)
+    if args.export_dir:
+        from core.plan_export import export_all
+
+        for path in export_all(plan, args.export_dir, args.stem):
+            print(f"wrote {path}", file=sys.stderr)
     if args.format == "json":
         _emit(json.dumps(plan_to_json(plan), indent=1), args.output)
     elif args.format == "csv":
@@ -280,7 +286,7 @@ def cmd_sheet(args) -> int:
 
 def build_parser() -> argparse.ArgumentParser:
     p = _Parser(prog="acqplan", description="Plan GNSS acquisition searches from almanac or TLE files.")
-    p.add_argument("--version", action="version", version=f"acqplan {_version()}")
+    p.add_argument("--version", action="version", version=f"acqplan {version()}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
     def geometry_options(sp, with_step: bool, step_default: float | None = None):
@@ -330,6 +336,10 @@ def build_parser() -> argparse.ArgumentParser:
     sp = sub.add_parser("plan", help="the full search plan of a scenario file")
     sp.add_argument("scenario", metavar="SCENARIO.toml")
     output_options(sp)
+    sp.add_argument("--export-dir", metavar="DIR",
+                    help="also write STEM.json (the plan), STEM_windows.csv (windows per "
+                         "satellite per step) and STEM_search.csv (search per satellite) into DIR")
+    sp.add_argument("--stem", default="plan", help="file name stem for --export-dir (default: plan)")
     sp.set_defaults(func=cmd_plan)
 
     sp = sub.add_parser("demo", help="write the invented demo scenario and its orbit files into DIR")
@@ -351,15 +361,6 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--paper", choices=("a4", "letter"), default="a4")
     sp.set_defaults(func=cmd_sheet)
     return p
-
-
-def _version() -> str:
-    try:
-        from importlib.metadata import version
-
-        return version("acqplan")
-    except Exception:  # not installed (running from a checkout)
-        return "0.1.0"
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -253,3 +253,16 @@ def test_rising_priority_searches_rising_satellites_first(demo_plan):
         assert all(rate[i] > 0 for i in chosen)
     else:
         assert set(visible_rising) <= chosen
+
+
+def test_cli_plan_exports(tmp_path, capsys):
+    from core.plan_export import read_search_csv
+    from planner_gui.cli import main
+
+    assert main(["plan", str(DEMO), "--format", "csv", "--export-dir", str(tmp_path), "--stem", "run1"]) == 0
+    names = sorted(p.name for p in tmp_path.iterdir())
+    assert names == ["run1.json", "run1_search.csv", "run1_windows.csv"]
+    rows = read_search_csv(tmp_path / "run1_search.csv")
+    assert len(rows) >= 12
+    assert main(["plan", str(DEMO), "--export-dir", str(tmp_path / "missing")]) == 2
+    assert "missing" in capsys.readouterr().err
