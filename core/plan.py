@@ -542,16 +542,22 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
     return plan
 
 
-def add_monte_carlo(plan: Plan) -> Plan:
-    """Fill in the seeded Monte Carlo TTFF statistics of a plan made without them."""
-    if plan.ttff is None:
-        t0 = _time.perf_counter()
-        sc = plan.scenario
-        plan.ttff = tl.monte_carlo_ttff(plan.timeline_inputs, sc.search.monte_carlo_runs,  # type: ignore[attr-defined]
-                                        sc.search.seed)
-        plan.warnings = _dedupe(plan.warnings + list(plan.ttff.warnings))
-        plan.compute_s += _time.perf_counter() - t0
-    return plan
+def add_monte_carlo(plan: Plan, scenario: Scenario | None = None) -> Plan:
+    """A copy of ``plan`` with the seeded Monte Carlo TTFF statistics of ``scenario``
+    (default: the plan's own) computed on the plan's timeline inputs; the plan itself is
+    not changed (another thread may be showing it)."""
+    from dataclasses import replace as _replace
+
+    sc = scenario or plan.scenario
+    t0 = _time.perf_counter()
+    inputs = plan.timeline_inputs  # type: ignore[attr-defined]
+    ttff = tl.monte_carlo_ttff(inputs, sc.search.monte_carlo_runs, sc.search.seed)
+    out = _replace(plan, scenario=sc, ttff=ttff,
+                   warnings=_dedupe(plan.warnings + list(ttff.warnings)),
+                   compute_s=plan.compute_s + _time.perf_counter() - t0)
+    out.prepared = plan.prepared  # type: ignore[attr-defined]
+    out.timeline_inputs = inputs  # type: ignore[attr-defined]
+    return out
 
 
 @lru_cache(maxsize=256)

@@ -1,0 +1,158 @@
+"""``acqplan gui``: start the planner window, or render it to PNG files and exit.
+
+``run_gui(args)`` takes the parsed ``gui`` sub-command (``scenario``, ``demo``,
+``screenshot``, ``size``). With ``--screenshot DIR`` the Qt platform defaults to
+``offscreen`` (when QT_QPA_PLATFORM is not set), settings go to a temporary folder, the
+window waits for its first complete plan (or the failure message), writes
+``window.png`` and one PNG per view into DIR and exits.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+import tempfile
+import time
+from pathlib import Path
+from typing import Any
+
+EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT = 0, 1, 2
+FIRST_PLAN_TIMEOUT_S = 120.0
+
+
+def parse_size(text: str) -> tuple[int, int]:
+    try:
+        w, h = (int(v) for v in text.lower().split("x"))
+    except ValueError:
+        raise ValueError(f"--size '{text}' must be WIDTHxHEIGHT, e.g. 1366x768") from None
+    if not (320 <= w <= 8192 and 240 <= h <= 8192):
+        raise ValueError(f"--size '{text}': width 320..8192 and height 240..8192 pixels")
+    return w, h
+
+
+def _application(argv: list[str]):
+    from PySide6.QtWidgets import QApplication
+
+    app = QApplication.instance()
+    if app is None:
+        app = QApplication(argv)
+    app.setApplicationName("acqplan-planner")
+    app.setOrganizationName("acqplan-project")
+    app.setApplicationDisplayName("acqplan planner")
+    return app
+
+
+def install_excepthook(window: Any, show_dialog: bool = True):
+    """Report uncaught exceptions in the window (Messages panel + message bar) and keep
+    the event loop running; returns the previous hook."""
+    previous = sys.excepthook
+
+    def hook(exc_type, exc, tb):
+        if issubclass(exc_type, KeyboardInterrupt):
+            previous(exc_type, exc, tb)
+            return
+        try:
+            window.report_fault(exc_type, exc, tb)
+            if show_dialog and window.interactive:
+                from PySide6.QtWidgets import QMessageBox
+
+                box = QMessageBox(QMessageBox.Icon.Warning, "acqplan: internal fault",
+                                  f"Something went wrong inside acqplan:\n{exc_type.__name__}: {exc}\n\n"
+                                  "The window keeps running; details are in the Messages panel.",
+                                  parent=window)
+                box.setModal(False)
+                box.open()
+        except Exception:  # never let the hook itself fail
+            previous(exc_type, exc, tb)
+
+    sys.excepthook = hook
+    return previous
+
+
+def wait_for_first_plan(window: Any, timeout_s: float = FIRST_PLAN_TIMEOUT_S) -> bool:
+    """Spin the event loop until a final plan or a problem is on screen; True for a plan."""
+    from PySide6.QtCore import QEventLoop, QTimer
+
+    state = {"plan": False, "done": False}
+    loop = QEventLoop()
+
+    def planned(result):
+        if result.final:
+            state["plan"] = state["done"] = True
+            loop.quit()
+
+    def failed(_text):
+        if not window._computing:
+            state["done"] = True
+            loop.quit()
+
+    window.planShown.connect(planned)
+    window.problemShown.connect(failed)
+    if window.model.plan is not None and window.model.ttff_final and not window._computing:
+        return True
+    if not window._computing and window.message_bar.isVisibleTo(window):
+        return False
+    timer = QTimer()
+    timer.setSingleShot(True)
+    timer.timeout.connect(loop.quit)
+    timer.start(int(timeout_s * 1000))
+    loop.exec()
+    timer.stop()
+    window.planShown.disconnect(planned)
+    window.problemShown.disconnect(failed)
+    return state["plan"]
+
+
+def run_gui(args: Any) -> int:
+    """Entry point of ``acqplan gui``."""
+    screenshot_dir = getattr(args, "screenshot", None)
+    if screenshot_dir and not os.environ.get("QT_QPA_PLATFORM"):
+        os.environ["QT_QPA_PLATFORM"] = "offscreen"
+    try:
+        size = parse_size(getattr(args, "size", None) or "1600x1000")
+    except ValueError as err:
+        print(f"acqplan gui: {err}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+
+    from . import settings as settings_mod
+
+    temp_settings = None
+    if screenshot_dir:
+        temp_settings = tempfile.TemporaryDirectory(prefix="acqplan-settings-")
+        settings_mod.use_settings_folder(temp_settings.name)
+    app = _application([sys.argv[0]])
+
+    from .main_window import PlannerWindow
+
+    window = PlannerWindow(interactive=not screenshot_dir, restore_layout=not screenshot_dir)
+    previous_hook = install_excepthook(window, show_dialog=not screenshot_dir)
+    try:
+        opened = True
+        t0 = time.perf_counter()
+        if getattr(args, "scenario", None):
+            opened = window.open_scenario(args.scenario)
+        elif getattr(args, "demo", False):
+            opened = window.open_demo()
+        if screenshot_dir:
+            window.resize(*size)
+            window.show()
+            ok = opened and wait_for_first_plan(window)
+            app.processEvents()
+            from .screenshots import write_screenshots
+
+            written = write_screenshots(window, Path(screenshot_dir), size)
+            for p in written:
+                print(p)
+            if not ok:
+                problem = window.message_bar.text.text() or "no plan was computed"
+                print(f"acqplan gui: {problem}", file=sys.stderr)
+            print(f"first plan on screen after {time.perf_counter() - t0:.2f} s", file=sys.stderr)
+            window.close()
+            return EXIT_OK if ok else EXIT_BAD_INPUT
+        window.show()
+        return int(app.exec())
+    finally:
+        sys.excepthook = previous_hook
+        window.worker.shutdown()
+        if temp_settings is not None:
+            temp_settings.cleanup()

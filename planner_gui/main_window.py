@@ -1,0 +1,970 @@
+"""The planner window: the test set-up form, the linked views, the time cursor.
+
+Layout: the form in a dock on the left; on the right the sky view beside a tab stack
+(Doppler windows, bins at cursor, channel timeline, bin loss) over the satellite table;
+the messages in a bottom dock; the plan-time cursor in a strip across the bottom.
+
+Data flow: an edit in the form -> the core validates the form's dict (problems are
+marked at their fields) -> a frozen Scenario goes to the worker with the previous plan's
+prepared geometry -> the worker's result is applied to the PlanModel on this thread
+(stale results dropped) -> every view redraws from the model.
+"""
+
+from __future__ import annotations
+
+import html
+import threading
+import time
+from datetime import UTC, datetime, timedelta
+from pathlib import Path
+from typing import Any
+
+from PySide6.QtCore import Qt, QTimer, Signal
+from PySide6.QtGui import QAction, QCloseEvent, QDragEnterEvent, QDropEvent, QIcon, QKeySequence
+from PySide6.QtWidgets import (
+    QDockWidget,
+    QFileDialog,
+    QFrame,
+    QHBoxLayout,
+    QLabel,
+    QMainWindow,
+    QMessageBox,
+    QProgressBar,
+    QPushButton,
+    QSlider,
+    QSplitter,
+    QStatusBar,
+    QTabWidget,
+    QToolButton,
+    QVBoxLayout,
+    QWidget,
+)
+
+from core.errors import AcqplanError, InputError
+from core.scenario import Scenario, ScenarioValidationError, load_scenario, save_scenario
+
+from .models import PlanModel
+from .scenario_panel import ScenarioPanel
+from .settings import PlannerSettings
+from .style import SAFETY_CAUTIONS, SIGN_CONVENTIONS
+from .views import (
+    ChannelView,
+    DopplerView,
+    LossCurveView,
+    MessagesView,
+    SatelliteTableView,
+    SearchGridView,
+    SkyView,
+)
+from .worker import PlanFailure, PlanResult, PlanWorker
+
+SCENARIO_FILTER = "acqplan scenarios (*.toml);;All files (*)"
+RESOURCES = Path(__file__).resolve().parent / "resources"
+PROGRESS_DELAY_MS = 250
+
+UNITS_TEXT = ("Frequencies and Doppler in Hz; times in UTC (local time from the scenario's "
+              "zone is shown beside the cursor); angles in degrees; C/N0 in dB-Hz; losses "
+              "are positive dB (a larger number is a weaker signal); oscillator offsets in ppb "
+              "(parts per 10^9).")
+
+
+def _version() -> str:
+    try:
+        from importlib.metadata import version
+
+        return version("acqplan")
+    except Exception:  # not installed: running from a checkout
+        return "0.1.0"
+
+
+def error_text(err: BaseException) -> str:
+    """One clear line (or a few for several scenario fields) for any error we expect."""
+    if isinstance(err, AcqplanError):
+        return str(err)
+    if isinstance(err, OSError):
+        name = getattr(err, "filename", None)
+        where = f"{name}: " if name else ""
+        return f"{where}{err.strerror or err}"
+    return f"{type(err).__name__}: {err}"
+
+
+def problems_of(err: BaseException) -> list[tuple[str | None, str]]:
+    """(field, message) pairs of a scenario/input error, for marking the form."""
+    if isinstance(err, ScenarioValidationError):
+        return [(p.field, p.message) for p in err.problems]
+    if isinstance(err, InputError) and err.field:
+        return [(err.field, err.message)]
+    return []
+
+
+class MessageBar(QFrame):
+    """A strip above the views that states the latest problem until it is solved or closed."""
+
+    def __init__(self, parent: QWidget | None = None):
+        super().__init__(parent)
+        self.setObjectName("messageBar")
+        self.setFrameShape(QFrame.Shape.StyledPanel)
+        lay = QHBoxLayout(self)
+        lay.setContentsMargins(8, 4, 4, 4)
+        self.icon = QLabel("⚠", self)
+        self.icon.setStyleSheet("font-size: 14pt; color: #A33A00;")
+        self.text = QLabel("", self)
+        self.text.setObjectName("messageText")
+        self.text.setWordWrap(True)
+        self.text.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        close = QToolButton(self)
+        close.setText("✕")
+        close.setToolTip("Hide this message (it stays in the Messages panel)")
+        close.clicked.connect(self.hide)
+        lay.addWidget(self.icon)
+        lay.addWidget(self.text, 1)
+        lay.addWidget(close, 0, Qt.AlignmentFlag.AlignTop)
+        self.kind = ""
+        self.hide()
+
+    def show_message(self, text: str, kind: str = "error") -> None:
+        self.kind = kind
+        colour = {"error": "#FBE3D6", "note": "#E1F0FA"}.get(kind, "#FFF5CC")
+        self.setStyleSheet(f"#messageBar {{ background: {colour}; border: 1px solid #C9A38F; }}")
+        self.icon.setText("⚠" if kind == "error" else "ℹ")
+        self.text.setText(text)
+        self.show()
+
+    def clear(self, kind: str | None = None) -> None:
+        if kind is None or self.kind == kind:
+            self.text.clear()
+            self.kind = ""
+            self.hide()
+
+    def message(self) -> str:
+        return self.text.text() if self.isVisibleTo(self.parentWidget()) else ""
+
+
+class CursorBar(QWidget):
+    """The plan-time cursor: a slider across the test window with the UTC (and local) time."""
+
+    def __init__(self, model: PlanModel, parent: QWidget | None = None):
+        super().__init__(parent)
+        self.setObjectName("cursorBar")
+        self.model = model
+        lay = QHBoxLayout(self)
+        lay.setContentsMargins(6, 2, 6, 2)
+        title = QLabel("Plan time", self)
+        title.setStyleSheet("font-weight: bold;")
+        self.back = QToolButton(self)
+        self.back.setText("◀")
+        self.back.setToolTip("One plan step earlier")
+        self.back.setAutoRepeat(True)
+        self.forward = QToolButton(self)
+        self.forward.setText("▶")
+        self.forward.setToolTip("One plan step later")
+        self.forward.setAutoRepeat(True)
+        self.slider = QSlider(Qt.Orientation.Horizontal, self)
+        self.slider.setObjectName("timeCursor")
+        self.slider.setToolTip("Plan-time cursor: every view shows this instant "
+                               "(arrow keys, Page Up/Down, Home/End)")
+        self.slider.setRange(0, 0)
+        self.slider.setPageStep(10)
+        self.label = QLabel("—", self)
+        self.label.setObjectName("cursorTime")
+        self.label.setMinimumWidth(260)
+        self.label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        lay.addWidget(title)
+        lay.addWidget(self.back)
+        lay.addWidget(self.slider, 1)
+        lay.addWidget(self.forward)
+        lay.addWidget(self.label)
+        self.back.clicked.connect(lambda: self.slider.setValue(self.slider.value() - 1))
+        self.forward.clicked.connect(lambda: self.slider.setValue(self.slider.value() + 1))
+        self.slider.valueChanged.connect(model.set_cursor)
+        model.planChanged.connect(self._on_plan)
+        model.cursorChanged.connect(self._on_cursor)
+
+    def _on_plan(self, result: PlanResult) -> None:
+        n = len(result.plan.times)
+        self.slider.blockSignals(True)
+        self.slider.setRange(0, n - 1)
+        self.slider.setPageStep(max(1, n // 12))
+        self.slider.blockSignals(False)
+
+    def _on_cursor(self, k: int) -> None:
+        plan = self.model.plan
+        if plan is None:
+            return
+        self.slider.blockSignals(True)
+        self.slider.setValue(k)
+        self.slider.blockSignals(False)
+        t = float(plan.times.unix_s[k])
+        utc = datetime.fromtimestamp(t, UTC)
+        text = utc.strftime("%Y-%m-%d %H:%M:%S UTC")
+        zone = plan.scenario.time.timezone
+        if zone and zone != "UTC":
+            try:
+                local = utc.astimezone(plan.scenario.time.tzinfo)
+                text += f"  ·  local {local.strftime('%H:%M:%S %Z')}"
+            except Exception:  # an unknown zone was rejected by the core already
+                pass
+        elapsed = t - float(plan.times.unix_s[0])
+        text += f"  ·  +{elapsed / 60.0:.1f} min"
+        self.label.setToolTip(f"grid index {k + 1} of {len(plan.times)}; {elapsed:.0f} s after the start")
+        self.label.setText(text)
+
+
+class PlannerWindow(QMainWindow):
+    """acqplan's main window."""
+
+    planShown = Signal(object)      # PlanResult applied to the views
+    problemShown = Signal(str)      # text of a problem put in the message bar
+    exportFinished = Signal(str, str)   # path, problem ("" when written)
+
+    def __init__(self, settings: PlannerSettings | None = None, interactive: bool = True,
+                 restore_layout: bool = True):
+        super().__init__()
+        self.setObjectName("plannerWindow")
+        self.interactive = interactive
+        self.settings = settings if settings is not None else PlannerSettings()
+        self.model = PlanModel(self)
+        self.worker = PlanWorker(self)
+        self.worker.planned.connect(self._on_planned)
+        self.worker.failed.connect(self._on_failed)
+        self.worker.cancelled.connect(self._on_cancelled)
+        self.worker.progressed.connect(self._on_progress)
+        self.exportFinished.connect(self._export_finished)
+        self.current_path: Path | None = None
+        self.scenario: Scenario | None = None        # last valid scenario of the form
+        self._saved_dict: dict[str, Any] | None = None
+        self._latest_serial = 0
+        self._computing = False
+        self._noted_pole: set[tuple[float, float]] = set()
+        self._last_problem: str = ""
+        self.apply_s = 0.0                   # GUI-thread time of the last plan's apply
+        icon = RESOURCES / "acqplan.svg"
+        if icon.is_file():
+            self.setWindowIcon(QIcon(str(icon)))
+
+        self._build_views()
+        self._build_actions()
+        self._build_status()
+        self.setAcceptDrops(True)
+        self.resize(1600, 1000)
+        self._layout_restored = False
+        if restore_layout:
+            self._layout_restored = self._restore_layout()
+        self._update_title()
+        for caution in SAFETY_CAUTIONS:
+            self.messages.add_message("note", "Safety: " + caution)
+
+    # ------------------------------------------------------------------ construction
+    def _build_views(self) -> None:
+        self.panel = ScenarioPanel(self, folders=self.settings)
+        self.panel.edited.connect(self._on_edited)
+        self.setup_dock = QDockWidget("Test set-up", self)
+        self.setup_dock.setObjectName("setupDock")
+        self.setup_dock.setWidget(self.panel)
+        self.setup_dock.setFeatures(QDockWidget.DockWidgetFeature.DockWidgetMovable
+                                    | QDockWidget.DockWidgetFeature.DockWidgetFloatable
+                                    | QDockWidget.DockWidgetFeature.DockWidgetClosable)
+        self.addDockWidget(Qt.DockWidgetArea.LeftDockWidgetArea, self.setup_dock)
+
+        self.sky = SkyView(self.model)
+        self.doppler = DopplerView(self.model)
+        self.search_grid = SearchGridView(self.model)
+        self.channels = ChannelView(self.model)
+        self.loss = LossCurveView(self.model)
+        self.table = SatelliteTableView(self.model)
+        self.messages = MessagesView()
+        self.messages.countChanged.connect(self._messages_counted)
+
+        self.tabs = QTabWidget()
+        self.tabs.setObjectName("viewTabs")
+        self.tabs.addTab(self.doppler, "Doppler windows")
+        self.tabs.addTab(self.search_grid, "Bins at cursor")
+        self.tabs.addTab(self.channels, "Channel timeline")
+        self.tabs.addTab(self.loss, "Bin loss")
+        self.top_split = QSplitter(Qt.Orientation.Horizontal)
+        self.top_split.setObjectName("topSplit")
+        self.top_split.addWidget(self.sky)
+        self.top_split.addWidget(self.tabs)
+        self.top_split.setStretchFactor(0, 2)
+        self.top_split.setStretchFactor(1, 3)
+        self.lower_tabs = QTabWidget()
+        self.lower_tabs.setObjectName("lowerTabs")
+        self.lower_tabs.addTab(self.table, "Satellites at cursor")
+        self.lower_tabs.addTab(self.messages, "Messages")
+        self.main_split = QSplitter(Qt.Orientation.Vertical)
+        self.main_split.setObjectName("mainSplit")
+        self.main_split.addWidget(self.top_split)
+        self.main_split.addWidget(self.lower_tabs)
+        self.main_split.setStretchFactor(0, 3)
+        self.main_split.setStretchFactor(1, 2)
+        self.message_bar = MessageBar()
+        self.cursor_bar = CursorBar(self.model)
+        central = QWidget()
+        lay = QVBoxLayout(central)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.setSpacing(2)
+        lay.addWidget(self.message_bar)
+        lay.addWidget(self.main_split, 1)
+        lay.addWidget(self.cursor_bar)
+        self.setCentralWidget(central)
+        for split in (self.main_split, self.top_split):
+            split.splitterMoved.connect(lambda *_a: self._user_moved_splitter())
+        self.resizeDocks([self.setup_dock], [372], Qt.Orientation.Horizontal)
+
+    def _action(self, text: str, slot, shortcut: QKeySequence | str | None = None,
+                tip: str = "") -> QAction:
+        act = QAction(text, self)
+        if shortcut is not None:
+            act.setShortcut(QKeySequence(shortcut))
+        if tip:
+            act.setStatusTip(tip)
+            act.setToolTip(tip)
+        act.triggered.connect(slot)
+        return act
+
+    def _build_actions(self) -> None:
+        S = QKeySequence.StandardKey
+        self.act_new = self._action("&New scenario", self.new_scenario, S.New, "Start an empty scenario")
+        self.act_open = self._action("&Open scenario…", self.open_dialog, S.Open, "Open a scenario file (TOML)")
+        self.act_save = self._action("&Save", self.save, S.Save, "Save the scenario")
+        self.act_save_as = self._action("Save &as…", self.save_as, S.SaveAs, "Save the scenario under a new name")
+        self.act_add_orbits = self._action("Add &orbit files…", self.add_orbit_files_dialog, "Ctrl+Shift+O",
+                                           "Add almanac/TLE files to the scenario (or drop them on the window)")
+        self.act_preview = self._action("Print pre&view…", self.print_preview, "Ctrl+P",
+                                        "Preview the search-plan sheets")
+        self.act_pdf = self._action("Export &PDF…", self.export_pdf, None, "Write the search-plan sheets as PDF")
+        self.act_data = self._action("Export &data…", self.export_data, None,
+                                     "Write the plan as JSON or the satellite summary as CSV")
+        self.act_quit = self._action("&Quit", self.close, S.Quit)
+        self.act_replan = self._action("&Re-plan now", self.replan, "F5", "Compute the plan again")
+        self.act_cancel = self._action("&Cancel computation", self.cancel_compute, "Esc",
+                                       "Stop the running computation; the plan on screen stays")
+        self.act_cancel.setEnabled(False)
+        self.act_start = self._action("Zoom timeline to the &start", self._zoom_start, "Ctrl+1")
+        self.act_about = self._action("&About acqplan", self.show_about)
+
+        bar = self.menuBar()
+        m = bar.addMenu("&File")
+        m.addAction(self.act_new)
+        m.addAction(self.act_open)
+        self.recent_menu = m.addMenu("Open &recent")
+        self.recent_menu.aboutToShow.connect(self._fill_recent)
+        m.addSeparator()
+        m.addAction(self.act_save)
+        m.addAction(self.act_save_as)
+        m.addSeparator()
+        m.addAction(self.act_add_orbits)
+        m.addSeparator()
+        m.addAction(self.act_preview)
+        m.addAction(self.act_pdf)
+        m.addAction(self.act_data)
+        m.addSeparator()
+        m.addAction(self.act_quit)
+        m = bar.addMenu("&Plan")
+        m.addAction(self.act_replan)
+        m.addAction(self.act_cancel)
+        m = bar.addMenu("&View")
+        m.addAction(self.setup_dock.toggleViewAction())
+        m.addAction(self._action("Show &messages", self.show_messages, "Ctrl+M"))
+        m.addAction(self.act_start)
+        m = bar.addMenu("&Help")
+        m.addAction(self.act_about)
+        self._fill_recent()
+
+    def _build_status(self) -> None:
+        sb = QStatusBar(self)
+        self.setStatusBar(sb)
+        self.status_age = QLabel("orbit data: —")
+        self.status_age.setObjectName("statusAge")
+        self.status_warnings = QPushButton("0 warnings")
+        self.status_warnings.setObjectName("statusWarnings")
+        self.status_warnings.setFlat(True)
+        self.status_warnings.setToolTip("Show the Messages panel")
+        self.status_warnings.clicked.connect(self.show_messages)
+        self.status_compute = QLabel("no plan yet")
+        self.status_compute.setObjectName("statusCompute")
+        self.progress = QProgressBar()
+        self.progress.setObjectName("planProgress")
+        self.progress.setRange(0, 100)
+        self.progress.setMaximumWidth(220)
+        self.progress.setTextVisible(True)
+        self.progress.hide()
+        self.cancel_button = QToolButton()
+        self.cancel_button.setText("Cancel")
+        self.cancel_button.setToolTip("Stop the running computation (Esc)")
+        self.cancel_button.clicked.connect(self.cancel_compute)
+        self.cancel_button.hide()
+        sb.addWidget(self.status_age)
+        sb.addWidget(self.status_warnings)
+        sb.addPermanentWidget(self.progress)
+        sb.addPermanentWidget(self.cancel_button)
+        sb.addPermanentWidget(self.status_compute)
+        self._progress_timer = QTimer(self)
+        self._progress_timer.setSingleShot(True)
+        self._progress_timer.timeout.connect(self._show_progress)
+
+    # ------------------------------------------------------------------ settings
+    def showEvent(self, event) -> None:
+        super().showEvent(event)
+        if not self._layout_restored:
+            QTimer.singleShot(0, self.fit_splitters)
+
+    def resizeEvent(self, event) -> None:
+        super().resizeEvent(event)
+        if not self._layout_restored and self.isVisible():
+            self.fit_splitters()
+
+    def fit_splitters(self) -> None:
+        """Default proportions: views over the table 58:42, the sky square."""
+        total_h = max(self.main_split.height(), 200)
+        top_h = int(total_h * 0.58)
+        self.main_split.setSizes([top_h, total_h - top_h])
+        total_w = max(self.top_split.width(), 300)
+        sky_w = min(max(top_h - 10, 220), int(total_w * 0.45))
+        self.top_split.setSizes([sky_w, total_w - sky_w])
+
+    def _restore_layout(self) -> bool:
+        restored = False
+        geo = self.settings.byte_array("geometry")
+        if geo is not None:
+            self.restoreGeometry(geo)
+        state = self.settings.byte_array("state")
+        if state is not None:
+            self.restoreState(state)
+        for key, split in (("mainSplit", self.main_split), ("topSplit", self.top_split)):
+            value = self.settings.byte_array(key)
+            if value is not None:
+                restored = split.restoreState(value) or restored
+        return restored
+
+    def _user_moved_splitter(self) -> None:
+        self._layout_restored = True          # the user's proportions from now on
+
+    def save_layout(self) -> None:
+        self.settings.set_byte_array("geometry", self.saveGeometry())
+        self.settings.set_byte_array("state", self.saveState())
+        self.settings.set_byte_array("mainSplit", self.main_split.saveState())
+        self.settings.set_byte_array("topSplit", self.top_split.saveState())
+        self.settings.sync()
+
+    # ------------------------------------------------------------------ files
+    def _fill_recent(self) -> None:
+        self.recent_menu.clear()
+        files = self.settings.recent_files()
+        for i, f in enumerate(files, start=1):
+            act = self.recent_menu.addAction(f"&{i} {Path(f).name}")
+            act.setToolTip(f)
+            act.setStatusTip(f)
+            act.triggered.connect(lambda _c=False, p=f: self.open_recent(p))
+        if not files:
+            none = self.recent_menu.addAction("(none)")
+            none.setEnabled(False)
+        else:
+            self.recent_menu.addSeparator()
+            self.recent_menu.addAction("Clear list", self.settings.clear_recent)
+
+    def open_recent(self, path: str) -> bool:
+        if not self._may_discard():
+            return False
+        if not Path(path).is_file():
+            self.settings.remove_recent(path)
+            self.show_problem(f"{path}: the recent file is gone (moved or deleted?); "
+                              "it was taken off the list", kind="error")
+            return False
+        return self.open_scenario(path)
+
+    def open_dialog(self) -> None:
+        if not self._may_discard():
+            return
+        path, _ = QFileDialog.getOpenFileName(self, "Open scenario", self.settings.last_folder("scenarios"),
+                                              SCENARIO_FILTER)
+        if path:
+            self.settings.set_last_folder("scenarios", path)
+            self.open_scenario(path)
+
+    def open_scenario(self, path: str | Path, template: bool = False) -> bool:
+        """Load a scenario file and plan it. On failure the window keeps what it shows."""
+        p = Path(path)
+        try:
+            sc = load_scenario(p)
+        except (AcqplanError, OSError) as err:
+            self.show_problem(error_text(err), kind="error", details=self._problem_details(err))
+            return False
+        self.panel.set_scenario(sc)
+        self.scenario = sc
+        self.current_path = None if template else p      # a template: Save asks for a name
+        self._saved_dict = self.panel.to_dict()
+        if not template:
+            self.settings.add_recent(p)
+        self.message_bar.clear()
+        self._update_title()
+        self.request_plan(sc)
+        return True
+
+    def open_demo(self) -> bool:
+        """The invented demo scenario, opened as a template (Save asks for a file name)."""
+        repo_demo = Path(__file__).resolve().parents[1] / "sample_almanacs" / "demo_scenario.toml"
+        if repo_demo.is_file():
+            path = repo_demo
+        else:
+            import tempfile
+
+            from core.demo import write_demo
+
+            path = write_demo(Path(tempfile.mkdtemp(prefix="acqplan-demo-")))
+        return self.open_scenario(path, template=True)
+
+    def new_scenario(self) -> None:
+        if not self._may_discard():
+            return
+        start = datetime.now(UTC).replace(minute=0, second=0, microsecond=0) + timedelta(hours=1)
+        sc = Scenario.from_dict({"site": {"lat_deg": 0.0, "lon_deg": 0.0},
+                                 "time": {"start": start, "end": start + timedelta(hours=2)}},
+                                base_dir=Path.home())
+        self.panel.set_scenario(sc)
+        self.scenario = sc
+        self.current_path = None
+        self._saved_dict = self.panel.to_dict()
+        self._update_title()
+        self.show_problem("New scenario: add orbit files (File › Add orbit files… or drop them on "
+                          "the window) and set the site and time. The plan on screen is the "
+                          "previous one until then.", kind="note")
+
+    def add_orbit_files_dialog(self) -> None:
+        paths, _ = QFileDialog.getOpenFileNames(self, "Add orbit files", self.settings.last_folder("orbits"),
+                                                "Orbit files (*.txt *.alm *.yuma *.sem *.tle *.3le);;All files (*)")
+        if paths:
+            self.settings.set_last_folder("orbits", paths[0])
+            self.add_orbit_files(paths)
+
+    def add_orbit_files(self, paths: list[str | Path]) -> int:
+        return self.panel.add_orbit_files(paths)
+
+    def save(self) -> bool:
+        if self.current_path is None:
+            return self.save_as()
+        return self._save_to(self.current_path)
+
+    def save_as(self) -> bool:
+        start = str(self.current_path) if self.current_path else str(
+            Path(self.settings.last_folder("scenarios")) / "scenario.toml")
+        path, _ = QFileDialog.getSaveFileName(self, "Save scenario as", start, SCENARIO_FILTER)
+        if not path:
+            return False
+        if not path.lower().endswith(".toml"):
+            path += ".toml"
+        self.settings.set_last_folder("scenarios", path)
+        return self._save_to(Path(path))
+
+    def _save_to(self, path: Path) -> bool:
+        sc = self._validated_form()
+        if sc is None:
+            self.show_problem("The scenario was not saved: fix the marked fields first.", kind="error")
+            return False
+        try:
+            saved = save_scenario(sc, path)
+        except (AcqplanError, OSError) as err:
+            self.show_problem(error_text(err), kind="error")
+            return False
+        self.current_path = path
+        self.scenario = saved
+        self.panel.set_scenario(saved)
+        self._saved_dict = self.panel.to_dict()
+        self.settings.add_recent(path)
+        self.statusBar().showMessage(f"saved {path}", 4000)
+        self._update_title()
+        return True
+
+    @property
+    def dirty(self) -> bool:
+        if self.scenario is None and self._saved_dict is None:
+            return False
+        return self._saved_dict != self.panel.to_dict()
+
+    def _update_title(self) -> None:
+        name = self.scenario.name if self.scenario else "no scenario"
+        where = str(self.current_path) if self.current_path else "not saved"
+        self.setWindowTitle(f"{name} ({where})[*] — acqplan planner")
+        self.setWindowModified(self.dirty)
+
+    def ask_unsaved(self) -> str:
+        """'save', 'discard' or 'cancel' (tests replace this method)."""
+        box = QMessageBox(QMessageBox.Icon.Question, "Unsaved changes",
+                          "The scenario has changes that are not saved.", parent=self)
+        box.setInformativeText("Save them before closing?")
+        box.setStandardButtons(QMessageBox.StandardButton.Save | QMessageBox.StandardButton.Discard
+                               | QMessageBox.StandardButton.Cancel)
+        box.setDefaultButton(QMessageBox.StandardButton.Save)
+        answer = box.exec()
+        return {QMessageBox.StandardButton.Save: "save",
+                QMessageBox.StandardButton.Discard: "discard"}.get(QMessageBox.StandardButton(answer), "cancel")
+
+    def _may_discard(self) -> bool:
+        if not self.dirty or not self.interactive:
+            return True
+        answer = self.ask_unsaved()
+        if answer == "save":
+            return self.save()
+        return answer == "discard"
+
+    def closeEvent(self, event: QCloseEvent) -> None:
+        if not self._may_discard():
+            event.ignore()
+            return
+        self.save_layout()
+        self.worker.shutdown()
+        event.accept()
+
+    # drag and drop: scenario files open, other files are added as orbit files
+    def dragEnterEvent(self, event: QDragEnterEvent) -> None:
+        if event.mimeData().hasUrls() and any(u.isLocalFile() for u in event.mimeData().urls()):
+            event.acceptProposedAction()
+
+    def dropEvent(self, event: QDropEvent) -> None:
+        paths = [Path(u.toLocalFile()) for u in event.mimeData().urls() if u.isLocalFile()]
+        self.drop_files(paths)
+        event.acceptProposedAction()
+
+    def drop_files(self, paths: list[Path]) -> None:
+        scenarios = [p for p in paths if p.suffix.lower() == ".toml"]
+        others = [p for p in paths if p.suffix.lower() != ".toml"]
+        if scenarios:
+            if self._may_discard():
+                self.open_scenario(scenarios[0])
+            return
+        missing = [p for p in others if not p.is_file()]
+        if missing:
+            self.show_problem(f"{missing[0]}: not a readable file", kind="error")
+        files = [p for p in others if p.is_file()]
+        if files:
+            self.add_orbit_files(files)
+
+    # ------------------------------------------------------------------ planning
+    def _validated_form(self) -> Scenario | None:
+        d = self.panel.to_dict()
+        try:
+            sc = Scenario.from_dict(d, base_dir=self.panel.base_dir, path=self.current_path)
+        except ScenarioValidationError as err:
+            self.panel.show_problems(problems_of(err))
+            return None
+        except AcqplanError as err:
+            self.panel.show_problems([(getattr(err, "field", None), str(err))])
+            return None
+        return sc
+
+    def _on_edited(self, _dotted: str) -> None:
+        sc = self._validated_form()
+        self._update_title_later()
+        if sc is None:
+            self.show_problem("Some inputs are not valid (marked in the set-up form); the plan "
+                              "on screen is from the last valid inputs.", kind="input")
+            return
+        self.panel.show_problems([])
+        self.message_bar.clear("input")
+        self.scenario = sc
+        self.panel.refresh_files()
+        missing = sc.missing_orbit_files()
+        if missing:
+            names = ", ".join(str(m) for m in missing)
+            self.panel.show_problems([("orbits.files", f"not found (moved or deleted?): {names}")])
+            self.show_problem(f"{missing[0]}: orbit file not found (moved or deleted?); the plan "
+                              "on screen is from the last valid inputs.", kind="error")
+            return
+        self.request_plan(sc)
+
+    def _update_title_later(self) -> None:
+        QTimer.singleShot(0, self._update_title)
+
+    def request_plan(self, sc: Scenario) -> int:
+        plan = self.model.plan
+        prepared = getattr(plan, "prepared", None) if plan is not None else None
+        serial = self.worker.submit(sc, prepared)
+        self._latest_serial = serial
+        self._computing = True
+        self.act_cancel.setEnabled(True)
+        self.status_compute.setText("computing…")
+        if not self._progress_timer.isActive() and not self.progress.isVisible():
+            self._progress_timer.start(PROGRESS_DELAY_MS)
+        return serial
+
+    def replan(self) -> None:
+        sc = self._validated_form()
+        if sc is not None:
+            self.request_plan(sc)
+
+    def cancel_compute(self) -> None:
+        if self._computing:
+            self.worker.cancel()
+
+    def _show_progress(self) -> None:
+        if self._computing:
+            self.progress.show()
+            self.cancel_button.show()
+
+    def _hide_progress(self) -> None:
+        self._progress_timer.stop()
+        self.progress.hide()
+        self.cancel_button.hide()
+        self._computing = False
+        self.act_cancel.setEnabled(False)
+
+    def _on_progress(self, serial: int, fraction: float, text: str) -> None:
+        if serial != self._latest_serial:
+            return
+        self.progress.setValue(int(round(100 * fraction)))
+        self.progress.setFormat(f"{text} (%p%)")
+
+    def _on_planned(self, result: PlanResult) -> None:
+        if result.serial != self._latest_serial:
+            return                                  # stale: a newer request exists
+        t0 = time.perf_counter()
+        self.model.set_result(result)
+        plan = result.plan
+        self.messages.set_plan_warnings(plan.warnings)
+        if self.message_bar.kind in ("error", "input"):
+            self.message_bar.clear()
+        self.panel.show_problems([])
+        if result.final:
+            self._hide_progress()
+        else:
+            # Tell the worker once this update is painted (posted paints run first).
+            serial = result.serial
+            QTimer.singleShot(0, lambda: self.worker.acknowledge(serial))
+        self._note_pole(result.scenario)
+        self.apply_s = time.perf_counter() - t0
+        self._update_status(result)
+        self.planShown.emit(result)
+
+    def _on_failed(self, failure: PlanFailure) -> None:
+        if failure.serial != self._latest_serial:
+            return
+        self._hide_progress()
+        err = failure.error
+        if failure.internal:
+            text = (f"Internal fault while planning ({type(err).__name__}: {err}); the plan on screen "
+                    "is the previous one. Details are in the Messages panel.")
+            self.messages.add_message("fault", text, failure.details)
+            self.message_bar.show_message(text, "error")
+            self.problemShown.emit(text)
+        else:
+            marked = self.panel.show_problems(problems_of(err))
+            if not marked and isinstance(err, InputError) and err.file and self.scenario is not None:
+                if str(err.file) in {str(p) for p in self.scenario.resolved_orbit_files()}:
+                    self.panel.show_problems([("orbits.files", err.message + f" ({err.file})")])
+            self.show_problem(error_text(err) + "\nThe plan on screen is from the last valid inputs.",
+                              kind="error")
+        self.status_compute.setText("last computation failed")
+
+    def _on_cancelled(self, serial: int) -> None:
+        if serial != self._latest_serial:
+            return
+        self._hide_progress()
+        if self.model.result is not None and not self.model.ttff_final:
+            self.channels.info.setText("Monte Carlo TTFF cancelled: press F5 to plan again")
+        self.status_compute.setText("computation cancelled; the plan on screen is the previous one")
+
+    def _note_pole(self, sc: Scenario) -> None:
+        lat, lon = sc.site.lat_deg, sc.site.lon_deg
+        if abs(lat) >= 89.99 and (lat, lon) not in self._noted_pole:
+            self._noted_pole.add((lat, lon))
+            where = "North" if lat > 0 else "South"
+            self.messages.add_message(
+                "note", f"The site is at the {where} Pole: every direction there is "
+                f"{'south' if lat > 0 else 'north'}, so the sky view's azimuths are measured from "
+                f"the meridian of the given longitude ({lon:g}°).")
+            self.show_problem(f"Site at the {where} Pole: azimuths refer to the {lon:g}° meridian "
+                              "(see Messages).", kind="note")
+
+    # ------------------------------------------------------------------ problems
+    def _problem_details(self, err: BaseException) -> str:
+        probs = problems_of(err)
+        return "\n".join(f"{f or '-'}: {m}" for f, m in probs)
+
+    def show_problem(self, text: str, kind: str = "error", details: str = "") -> None:
+        """Put a problem in the message bar and the Messages panel."""
+        self.message_bar.show_message(text, "note" if kind == "note" else ("input" if kind == "input" else "error"))
+        if kind != "input" or text != self._last_problem:
+            self.messages.add_message("note" if kind == "note" else "input", text, details)
+        self._last_problem = text
+        self.problemShown.emit(text)
+
+    def report_fault(self, exc_type, exc, tb) -> None:
+        """Called by the application's excepthook: report, keep running."""
+        import traceback
+
+        details = "".join(traceback.format_exception(exc_type, exc, tb))
+        text = f"Internal fault ({exc_type.__name__}: {exc}); acqplan keeps running."
+        self.messages.add_message("fault", text, details)
+        self.message_bar.show_message(text + " Details are in the Messages panel.", "error")
+        self.problemShown.emit(text)
+
+    # ------------------------------------------------------------------ status
+    def show_messages(self) -> None:
+        self.lower_tabs.setCurrentWidget(self.messages)
+
+    def _update_status(self, result: PlanResult) -> None:
+        plan = result.plan
+        ages = [f.age_s for f in plan.orbit_files if f.age_s is not None]
+        if ages:
+            lo, hi = min(ages) / 86400.0, max(ages) / 86400.0
+            span = f"{lo:.1f} days" if abs(hi - lo) < 0.05 else f"{lo:.1f}–{hi:.1f} days"
+            self.status_age.setText(f"orbit data {span} old at the start")
+        else:
+            self.status_age.setText("orbit data age unknown")
+        tips = [f"{Path(f.path).name}: {f.format}, {f.n_satellites} satellites, epoch "
+                f"{datetime.fromtimestamp(f.epoch_unix_s, UTC):%Y-%m-%d %H:%M} UTC"
+                + ("" if f.age_s is None else f", {f.age_s / 86400.0:.2f} days before the start")
+                for f in plan.orbit_files]
+        self.status_age.setToolTip("\n".join(tips))
+        reuse = "geometry reused" if plan.reused_geometry else f"propagation {plan.propagate_s:.2f} s"
+        stage = "" if result.final else "; TTFF percentiles pending"
+        self.status_compute.setText(f"computed in {result.elapsed_s:.2f} s ({reuse}{stage}), "
+                                    f"drawn in {1000 * self.apply_s:.0f} ms")
+        self._update_status_counts()
+
+    def _messages_counted(self, n: int) -> None:
+        i = self.lower_tabs.indexOf(self.messages) if hasattr(self, "lower_tabs") else -1
+        if i >= 0:
+            self.lower_tabs.setTabText(i, f"Messages ({n})")
+        if hasattr(self, "status_warnings"):
+            self._update_status_counts()
+
+    def _update_status_counts(self) -> None:
+        plan = self.model.plan
+        n = 0 if plan is None else len(plan.warnings)
+        self.status_warnings.setText(f"{n} warning{'s' if n != 1 else ''}")
+
+    # ------------------------------------------------------------------ sheets and data
+    def _zoom_start(self) -> None:
+        self.tabs.setCurrentWidget(self.channels)
+        self.channels.show_start()
+
+    def _need_plan(self) -> bool:
+        if self.model.plan is None:
+            self.show_problem("There is no plan to print or export yet.", kind="error")
+            return False
+        return True
+
+    def print_preview(self) -> None:
+        if not self._need_plan():
+            return
+        try:
+            from .sheets import show_print_preview
+
+            show_print_preview(self.model.plan, self)
+        except Exception as err:  # the sheet module is another part; report, keep running
+            self.show_problem(f"Print preview failed: {error_text(err)}", kind="error")
+
+    def export_pdf(self) -> None:
+        if not self._need_plan():
+            return
+        start = str(Path(self.settings.last_folder("exports")) / "search-plan.pdf")
+        path, chosen = QFileDialog.getSaveFileName(self, "Export search-plan sheets", start,
+                                                   "PDF, A4 (*.pdf);;PDF, US Letter (*.pdf)")
+        if not path:
+            return
+        if not path.lower().endswith(".pdf"):
+            path += ".pdf"
+        self.settings.set_last_folder("exports", path)
+        paper = "letter" if "Letter" in chosen else "a4"
+        self.write_pdf(Path(path), paper)
+
+    def write_pdf(self, path: Path, paper: str = "a4") -> threading.Thread | None:
+        """Render the sheets to ``path`` in a background thread (painting a PDF takes
+        0.2-0.5 s); ``exportFinished`` reports the outcome. QPainter on a QPdfWriter is
+        allowed outside the GUI thread."""
+        plan = self.model.plan
+        if plan is None:
+            return None
+
+        def job() -> None:
+            try:
+                from .sheets import write_sheet_pdf
+
+                write_sheet_pdf(plan, path, paper)
+            except Exception as err:  # report in the window, keep running
+                self.exportFinished.emit(str(path), f"PDF export failed ({path}): {error_text(err)}")
+                return
+            self.exportFinished.emit(str(path), "")
+
+        thread = threading.Thread(target=job, name="acqplan-pdf", daemon=True)
+        thread.start()
+        self.statusBar().showMessage(f"writing {path}…", 4000)
+        return thread
+
+    def export_data(self) -> None:
+        if not self._need_plan():
+            return
+        start = str(Path(self.settings.last_folder("exports")) / "search-plan.json")
+        path, chosen = QFileDialog.getSaveFileName(
+            self, "Export plan data", start,
+            "Plan as JSON (*.json);;Search summary per satellite, CSV (*.csv);;"
+            "Doppler windows per satellite per step, CSV (*.csv)")
+        if not path:
+            return
+        if "windows" in chosen:
+            fmt, ext = "windows", "csv"
+        elif "CSV" in chosen or path.lower().endswith(".csv"):
+            fmt, ext = "csv", "csv"
+        else:
+            fmt, ext = "json", "json"
+        if not path.lower().endswith("." + ext):
+            path += "." + ext
+        self.settings.set_last_folder("exports", path)
+        self.write_data(Path(path), fmt)
+
+    def write_data(self, path: Path, fmt: str) -> threading.Thread | None:
+        """Write the plan as JSON (``fmt`` "json"), the search summary per satellite
+        ("csv") or the windows per satellite per step ("windows") with core.plan_export,
+        in a background thread (the JSON of a two-hour plan takes ~0.2 s to build);
+        ``exportFinished`` reports the outcome."""
+        plan = self.model.plan
+        if plan is None:
+            return None
+
+        def job() -> None:
+            from core.plan_export import export_plan_json, export_search_csv, export_windows_csv
+
+            writer = {"csv": export_search_csv, "windows": export_windows_csv}.get(fmt, export_plan_json)
+            try:
+                writer(plan, path)
+            except (AcqplanError, OSError) as err:
+                self.exportFinished.emit(str(path), f"Export failed: {error_text(err)}")
+                return
+            self.exportFinished.emit(str(path), "")
+
+        thread = threading.Thread(target=job, name="acqplan-export", daemon=True)
+        thread.start()
+        self.statusBar().showMessage(f"writing {path}…", 4000)
+        return thread
+
+    def _export_finished(self, path: str, problem: str) -> None:
+        if problem:
+            self.show_problem(problem, kind="error")
+        else:
+            self.statusBar().showMessage(f"wrote {path}", 4000)
+
+    # ------------------------------------------------------------------ about
+    def about_html(self) -> str:
+        esc = html.escape
+        conv = "".join(f"<li>{esc(c)}</li>" for c in SIGN_CONVENTIONS)
+        safety = "".join(f"<li>{esc(c)}</li>" for c in SAFETY_CAUTIONS)
+        return (f"<h3>acqplan {esc(_version())}</h3>"
+                "<p>Plans GNSS acquisition searches from almanac and TLE files: Doppler "
+                "windows, frequency bins, code-phase cells, detection and the channel "
+                "timeline up to the first fix.</p>"
+                f"<p><b>Units.</b> {esc(UNITS_TEXT)}</p>"
+                f"<p><b>Sign conventions.</b></p><ul>{conv}</ul>"
+                f"<p><b>Safety.</b></p><ul>{safety}</ul>"
+                "<p>Plans are estimates from orbit predictions and models; check them "
+                "against your receiver's behaviour.</p>")
+
+    def show_about(self) -> None:
+        QMessageBox.about(self, "About acqplan", self.about_html())
+
+    # ------------------------------------------------------------------ misc
+    def view_widgets(self) -> dict[str, QWidget]:
+        """The views by file name (screenshots)."""
+        return {"sky": self.sky, "doppler": self.doppler, "search_grid": self.search_grid,
+                "channels": self.channels, "loss_curve": self.loss, "satellites": self.table,
+                "messages": self.messages, "scenario": self.panel}

@@ -1,0 +1,279 @@
+"""Doppler view: nominal apparent Doppler of every satellite against UTC time, and the
+search window of the selected satellite (first window, and the narrower one that
+applies once the first satellite is acquired and the oscillator error is known).
+
+Doppler is positive while the satellite approaches. Hover shows time, Doppler and window
+edges of the satellite nearest the pointer; a click selects it.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import QPointF, Qt
+from PySide6.QtGui import QPainterPath
+from PySide6.QtWidgets import QCheckBox, QGraphicsPathItem, QLabel, QWidget
+
+from ..models import PlanModel
+from ..style import OKABE_ITO, SYSTEM_STYLES
+from ._common import (
+    UtcAxis,
+    ViewFrame,
+    band_path,
+    brush,
+    configure_pyqtgraph,
+    cosmetic_pen,
+    pen,
+    small_font,
+    utc_text,
+)
+
+
+class DopplerView(ViewFrame):
+    def __init__(self, model: PlanModel, parent: QWidget | None = None):
+        configure_pyqtgraph()
+        super().__init__("Doppler windows", parent)
+        self.setObjectName("dopplerView")
+        self.model = model
+        self.all_windows = QCheckBox("every window", self)
+        self.all_windows.setToolTip("Shade the first search window of every satellite, "
+                                    "not only the selected one's")
+        self.all_windows.toggled.connect(self._draw_all_windows)
+        self.add_header_widget(self.all_windows)
+        self.plot = pg.PlotWidget(self, axisItems={"bottom": UtcAxis("bottom")})
+        self.plot.setObjectName("dopplerPlot")
+        self.outer.addWidget(self.plot, 1)
+        self.readout = QLabel("", self)
+        self.readout.setObjectName("dopplerReadout")
+        self.readout.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.readout.setWordWrap(True)
+        self.outer.addWidget(self.readout)
+        pi = self.plot.getPlotItem()
+        pi.setMenuEnabled(False)
+        pi.showGrid(x=True, y=True, alpha=0.25)
+        pi.setLabel("bottom", "time (UTC)")
+        pi.setLabel("left", "Doppler", units="Hz")
+        pi.getAxis("left").enableAutoSIPrefix(True)
+        self._pi = pi
+
+        self.all_bands: dict[str, QGraphicsPathItem] = {}
+        for system in SYSTEM_STYLES:
+            item = QGraphicsPathItem()
+            item.setBrush(brush(SYSTEM_STYLES[system].colour, 40))
+            item.setPen(cosmetic_pen("#00000000", 0))
+            item.setZValue(-5)
+            pi.addItem(item)
+            self.all_bands[system] = item
+        self.first_band = QGraphicsPathItem()
+        self.first_band.setZValue(-2)
+        pi.addItem(self.first_band)
+        self.after_band = QGraphicsPathItem()
+        self.after_band.setZValue(-1)
+        pi.addItem(self.after_band)
+        self.lines: dict[str, pg.PlotDataItem] = {}
+        for system in SYSTEM_STYLES:
+            item = pg.PlotDataItem([], [], pen=pen(system, 1.0, 170), connect="finite")
+            item.setZValue(1)
+            pi.addItem(item)
+            self.lines[system] = item
+        self.selected_line = pg.PlotDataItem([], [], pen=cosmetic_pen("#000000", 2.6), connect="finite")
+        self.selected_line.setZValue(3)
+        pi.addItem(self.selected_line)
+        self.cursor_line = pg.InfiniteLine(angle=90, movable=False, pen=cosmetic_pen("#444444", 1.2, Qt.PenStyle.DashLine))
+        pi.addItem(self.cursor_line)
+        self.first_acq_line = pg.InfiniteLine(
+            angle=90, movable=False, pen=cosmetic_pen(OKABE_ITO["reddish_purple"], 1.5, Qt.PenStyle.DashDotLine))
+        pi.addItem(self.first_acq_line)
+        self.first_acq_label = pg.TextItem("", color="#7A3D63", anchor=(0.0, 0.0), fill=(255, 255, 255, 210))
+        self.first_acq_label.setFont(small_font(8))
+        self.first_acq_label.setZValue(8)
+        pi.addItem(self.first_acq_label)
+        pi.getViewBox().sigRangeChanged.connect(self._place_label)
+        pi.getViewBox().sigResized.connect(self._place_label)
+        self.hover_dot = pg.ScatterPlotItem(size=9, symbol="o", pen=cosmetic_pen("#000000", 1.5), brush=None)
+        self.hover_dot.setZValue(6)
+        pi.addItem(self.hover_dot)
+
+        for item in (self.cursor_line, self.first_acq_line, self.first_acq_label):
+            item.hide()
+        pi.setYRange(-5000.0, 5000.0, padding=0)
+        self.info.setText("no plan yet")
+        self.plot.scene().sigMouseMoved.connect(self._mouse_moved)
+        self.plot.scene().sigMouseClicked.connect(self._mouse_clicked)
+        self._systems: list[str] = []
+        self._fitted = False
+        model.planChanged.connect(self._on_plan)
+        model.cursorChanged.connect(self._on_cursor)
+        model.selectionChanged.connect(self._on_selection)
+
+    # -- model -> view
+    def _on_plan(self, result) -> None:
+        plan = result.plan
+        t = plan.times.unix_s
+        w = plan.windows_first
+        self._systems = [sp.system for sp in plan.satellites]
+        tt = np.broadcast_to(t, w.nominal_hz.shape)
+        for system, item in self.lines.items():
+            rows = [s for s, sy in enumerate(self._systems) if sy == system]
+            if rows:
+                vis = plan.visible[rows]
+                xx = np.where(vis, tt[rows], np.nan)
+                yy = np.where(vis, w.nominal_hz[rows], np.nan)
+                pad = np.full((len(rows), 1), np.nan)
+                item.setData(np.hstack((xx, pad)).ravel(), np.hstack((yy, pad)).ravel(), connect="finite")
+            else:
+                item.setData([], [])
+        acq = plan.timeline.acquisition_unix_s
+        if acq:
+            t1 = min(acq.values())
+            self.first_acq_line.setValue(t1)
+            self.first_acq_label.setText(f"first acquisition {plan.first_acquired} {utc_text(t1)} UTC: "
+                                         "windows narrow")
+            self.first_acq_line.show()
+            self.first_acq_label.show()
+        else:
+            self.first_acq_line.hide()
+            self.first_acq_label.hide()
+        self._draw_all_windows()
+        self._place_label()
+        if plan.reused_geometry and self._fitted:
+            return
+        self._fitted = True
+        lo = np.nanmin(np.where(plan.visible, w.low_hz, np.nan)) if plan.visible.any() else -5000.0
+        hi = np.nanmax(np.where(plan.visible, w.high_hz, np.nan)) if plan.visible.any() else 5000.0
+        self._pi.setXRange(float(t[0]), float(t[-1]), padding=0.01)
+        self._pi.setYRange(float(lo), float(hi), padding=0.04)
+        self._pi.setLimits(xMin=float(t[0]) - 0.05 * (t[-1] - t[0]), xMax=float(t[-1]) + 0.05 * (t[-1] - t[0]))
+
+    def _place_label(self, *_args) -> None:
+        (x0, x1), (y0, y1) = self._pi.getViewBox().viewRange()
+        px = self._pi.getViewBox().viewPixelSize()[0] or 0.0
+        t1 = self.first_acq_line.value()
+        self.first_acq_label.setPos(max(t1, x0) + 4 * px, y1)
+
+    def _draw_all_windows(self, *_args) -> None:
+        plan = self.model.plan
+        show = self.all_windows.isChecked() and plan is not None
+        for system, item in self.all_bands.items():
+            if not show:
+                item.setPath(QPainterPath())
+                continue
+            rows = [s for s, sy in enumerate(self._systems) if sy == system]
+            if not rows:
+                item.setPath(QPainterPath())
+                continue
+            w = plan.windows_first
+            item.setPath(band_path(plan.times.unix_s, w.low_hz[rows], w.high_hz[rows], plan.visible[rows]))
+
+    def _on_cursor(self, k: int) -> None:
+        plan = self.model.plan
+        if plan is None:
+            return
+        self.cursor_line.setValue(float(plan.times.unix_s[k]))
+        self.cursor_line.show()
+        self._cursor_readout()
+
+    def _cursor_readout(self) -> None:
+        """Without hover: the selected satellite at the cursor."""
+        plan = self.model.plan
+        sat = self.model.selected
+        if plan is None:
+            return
+        k = self.model.cursor
+        if sat is not None and plan.visible[plan.ids.index(sat), k]:
+            self.readout.setText("at the cursor: " + self.readout_text(plan.ids.index(sat), k))
+        else:
+            self.readout.setText("point at a line for its time, Doppler and window edges; click to select")
+
+    def _on_selection(self, sat_id) -> None:
+        plan = self.model.plan
+        if plan is None or sat_id is None:
+            self.first_band.setPath(QPainterPath())
+            self.after_band.setPath(QPainterPath())
+            self.selected_line.setData([], [])
+            self.info.setText("positive while approaching; click a line to select a satellite")
+            self._cursor_readout()
+            return
+        s = plan.ids.index(sat_id)
+        system = self._systems[s]
+        t = plan.times.unix_s
+        vis = plan.visible[s:s + 1]
+        wf, wa = plan.windows_first, plan.windows_after
+        self.first_band.setBrush(brush(SYSTEM_STYLES[system].colour, 55))
+        self.first_band.setPen(pen(system, 1.0, 200, Qt.PenStyle.DashLine))
+        self.first_band.setPath(band_path(t, wf.low_hz[s:s + 1], wf.high_hz[s:s + 1], vis))
+        acq = plan.timeline.acquisition_unix_s
+        if acq:
+            after = vis & (t >= min(acq.values()))[None, :]
+            self.after_band.setBrush(brush(SYSTEM_STYLES[system].colour, 140))
+            self.after_band.setPen(pen(system, 1.2, 255))
+            self.after_band.setPath(band_path(t, wa.low_hz[s:s + 1], wa.high_hz[s:s + 1], after))
+        else:
+            self.after_band.setPath(QPainterPath())
+        self.selected_line.setPen(cosmetic_pen("#000000", 2.2))
+        self.selected_line.setData(t, np.where(vis[0], wf.nominal_hz[s], np.nan), connect="finite")
+        self.info.setText(f"{sat_id}: light band first window, dark band narrowed; + approaching")
+        self._cursor_readout()
+
+    # -- pointer
+    def _nearest(self, pos) -> tuple[int, int] | None:
+        plan = self.model.plan
+        if plan is None or not self.plot.sceneBoundingRect().contains(pos):
+            return None
+        vb = self._pi.getViewBox()
+        if not vb.sceneBoundingRect().contains(pos):
+            return None
+        p = vb.mapSceneToView(pos)
+        t = plan.times.unix_s
+        k = int(np.clip(np.searchsorted(t, p.x()), 0, len(t) - 1))
+        if k > 0 and abs(t[k - 1] - p.x()) < abs(t[k] - p.x()):
+            k -= 1
+        vis = plan.visible[:, k]
+        if not vis.any():
+            return None
+        nominal = plan.windows_first.nominal_hz[:, k]
+        dist = np.where(vis, np.abs(nominal - p.y()), np.inf)
+        s = int(np.argmin(dist))
+        # Only within 12 px of the line.
+        px = vb.viewPixelSize()[1]
+        if not math.isfinite(dist[s]) or dist[s] > 12 * px:
+            return None
+        return s, k
+
+    def _mouse_moved(self, pos) -> None:
+        hit = self._nearest(pos)
+        plan = self.model.plan
+        if hit is None or plan is None:
+            self.hover_dot.setData([])
+            return
+        s, k = hit
+        self.readout.setText(self.readout_text(s, k))
+        self.hover_dot.setData([float(plan.times.unix_s[k])], [float(plan.windows_first.nominal_hz[s, k])])
+
+    def readout_text(self, s: int, k: int) -> str:
+        plan = self.model.plan
+        wf, wa = plan.windows_first, plan.windows_after
+        t = float(plan.times.unix_s[k])
+        acq = plan.timeline.acquisition_unix_s
+        narrowed = bool(acq) and t >= min(acq.values())
+        text = (f"{plan.ids[s]}  {utc_text(t)} UTC   Doppler {wf.nominal_hz[s, k]:+.1f} Hz   "
+                f"first window {wf.low_hz[s, k]:+.1f} … {wf.high_hz[s, k]:+.1f} Hz")
+        if narrowed:
+            text += f"   narrowed {wa.low_hz[s, k]:+.1f} … {wa.high_hz[s, k]:+.1f} Hz"
+        return text.replace("-", "−")
+
+    def _mouse_clicked(self, ev) -> None:
+        if ev.button() != Qt.MouseButton.LeftButton:
+            return
+        hit = self._nearest(ev.scenePos())
+        if hit is not None:
+            self.model.select(self.model.plan.ids[hit[0]])
+
+    def view_point(self, s: int, k: int) -> QPointF:
+        """Scene position of satellite s's nominal line at grid index k (for tests)."""
+        plan = self.model.plan
+        vb = self._pi.getViewBox()
+        return vb.mapViewToScene(QPointF(float(plan.times.unix_s[k]),
+                                         float(plan.windows_first.nominal_hz[s, k])))

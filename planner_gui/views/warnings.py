@@ -1,0 +1,102 @@
+"""Messages: every warning of the plan on screen, input problems, notes and faults."""
+
+from __future__ import annotations
+
+import time
+
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtGui import QColor
+from PySide6.QtWidgets import (
+    QAbstractItemView,
+    QHBoxLayout,
+    QHeaderView,
+    QPushButton,
+    QTableWidget,
+    QTableWidgetItem,
+    QWidget,
+)
+
+from ._common import ViewFrame
+
+KINDS = {
+    "plan": ("plan warning", "#8A5A00"),
+    "input": ("input problem", "#A33A00"),
+    "note": ("note", "#2B6C8F"),
+    "fault": ("internal fault", "#7A1F1F"),
+}
+KIND_ROLE = Qt.ItemDataRole.UserRole + 1
+
+
+class MessagesView(ViewFrame):
+    """A list of messages; plan warnings are replaced with each plan, others are kept."""
+
+    countChanged = Signal(int)
+
+    def __init__(self, parent: QWidget | None = None):
+        super().__init__("Messages", parent)
+        self.setObjectName("messagesView")
+        self.info.setText("plan warnings are replaced by each new plan; the others are kept "
+                          "until cleared")
+        self.list = QTableWidget(0, 3, self)
+        self.list.setObjectName("messagesList")
+        self.list.setHorizontalHeaderLabels(["Kind", "Time", "Message"])
+        self.list.setWordWrap(True)
+        self.list.setAlternatingRowColors(True)
+        self.list.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.list.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+        self.list.verticalHeader().setVisible(False)
+        self.list.verticalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+        header = self.list.horizontalHeader()
+        header.setSectionResizeMode(0, QHeaderView.ResizeMode.ResizeToContents)
+        header.setSectionResizeMode(1, QHeaderView.ResizeMode.ResizeToContents)
+        header.setSectionResizeMode(2, QHeaderView.ResizeMode.Stretch)
+        self.outer.addWidget(self.list, 1)
+        row = QHBoxLayout()
+        clear = QPushButton("Clear kept messages", self)
+        clear.setToolTip("Remove input problems, notes and faults (plan warnings stay)")
+        clear.clicked.connect(self.clear_kept)
+        row.addStretch(1)
+        row.addWidget(clear)
+        self.outer.addLayout(row)
+
+    def _add(self, kind: str, text: str, details: str = "") -> int:
+        label, colour = KINDS.get(kind, (kind, "#000000"))
+        r = self.list.rowCount()
+        self.list.insertRow(r)
+        items = [QTableWidgetItem(label), QTableWidgetItem(time.strftime("%H:%M:%S")),
+                 QTableWidgetItem(text)]
+        items[0].setForeground(QColor(colour))
+        items[0].setData(KIND_ROLE, kind)
+        items[2].setToolTip(details or text)
+        for c, item in enumerate(items):
+            self.list.setItem(r, c, item)
+        return r
+
+    def _kind(self, row: int) -> str:
+        return self.list.item(row, 0).data(KIND_ROLE)
+
+    def set_plan_warnings(self, warnings: list[str]) -> None:
+        for r in range(self.list.rowCount() - 1, -1, -1):
+            if self._kind(r) == "plan":
+                self.list.removeRow(r)
+        for w in warnings:
+            self._add("plan", w)
+        self._changed()
+
+    def add_message(self, kind: str, text: str, details: str = "") -> None:
+        r = self._add(kind, text, details)
+        self.list.scrollToItem(self.list.item(r, 2))
+        self._changed()
+
+    def clear_kept(self) -> None:
+        for r in range(self.list.rowCount() - 1, -1, -1):
+            if self._kind(r) != "plan":
+                self.list.removeRow(r)
+        self._changed()
+
+    def messages(self, kind: str | None = None) -> list[str]:
+        return [self.list.item(r, 2).text() for r in range(self.list.rowCount())
+                if kind is None or self._kind(r) == kind]
+
+    def _changed(self) -> None:
+        self.countChanged.emit(self.list.rowCount())
