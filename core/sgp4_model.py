@@ -107,7 +107,7 @@ def sgp4_ecef(satrecs: Sequence[Satrec], unix_s: np.ndarray, *, interpolate: boo
     n_s, n_t = len(sats), u.size
     slow = np.array([s.no_kozai * 1440.0 / (2 * np.pi) < HERMITE_MAX_REV_PER_DAY for s in sats])
     span = u.max() - u.min() if n_t else 0.0
-    dense = n_t > 8 and span / max(n_t - 1, 1) < NODE_STEP_S / 2
+    dense = n_t > 8 and span / max(n_t - 1, 1) < 0.75 * NODE_STEP_S
     if not (interpolate and dense and slow.any()):
         return _sgp4_direct(sats, u)
     r_out = np.empty((n_s, n_t, 3))

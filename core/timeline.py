@@ -521,16 +521,37 @@ def _lookup(arr: np.ndarray | float, s: int, k: int, n_t: int) -> float:
     return v
 
 
+def _cached(inp: TimelineInputs, name: str, make: Callable[[], Any]) -> Any:
+    """A value derived from the (frozen) inputs, computed once and kept on them."""
+    cache = inp.__dict__.setdefault("_derived", {})
+    if name not in cache:
+        cache[name] = make()
+    return cache[name]
+
+
+def _rank_order(inp: TimelineInputs, k: int) -> list[int]:
+    """All satellites in search order at grid index k: highest priority first, ties by
+    index, non-finite priorities last. The same for every run, so cached per k."""
+    orders = _cached(inp, "rank_orders", dict)
+    order = orders.get(k)
+    if order is None:
+        n_t = inp.times_unix_s.size
+        keys = []
+        for s in range(len(inp.sat_ids)):
+            pr = _lookup(inp.priority, s, k, n_t)
+            keys.append((-pr if math.isfinite(pr) else math.inf, s))
+        keys.sort()
+        order = orders[k] = [s for _, s in keys]
+    return order
+
+
 def _simulate(inp: TimelineInputs, duration: DurationFn, record: bool,
               stop_at_fix: bool) -> _Run:
-    times = inp.times_unix_s
-    times_list = times.tolist()
-    n_t = len(times_list)
+    times_list = _cached(inp, "times_list", inp.times_unix_s.tolist)
     t_end = times_list[-1]
     passes = inp._passes
     wait = inp.ephemeris_wait_s
     k_fix = inp.first_fix_satellites
-    priority = inp.priority
 
     heap: list[tuple[float, int, int, int, int]] = []
     seq = 0
@@ -570,12 +591,8 @@ def _simulate(inp: TimelineInputs, duration: DurationFn, record: bool,
             continue
         k = bisect.bisect_right(times_list, t) - 1
         after = first_acq <= t
-        ranked = []
-        for s in waiting:
-            pr = _lookup(priority, s, k, n_t)
-            ranked.append((-pr if math.isfinite(pr) else math.inf, s))
-        ranked.sort()
-        for _, s in ranked:
+        ranked = [s for s in _rank_order(inp, k) if s in waiting]
+        for s in ranked:
             if not free:
                 break
             d = duration(s, k, after)
@@ -684,16 +701,24 @@ def _drawn_duration(inp: TimelineInputs, rng: np.random.Generator) -> DurationFn
         raise InputError(f"the Monte Carlo needs {', '.join(missing)}", field=missing[0])
     n_t = inp.times_unix_s.size
     penalty = inp.penalty_s
+    # The search figures at (satellite, grid index, state) are the same in every run.
+    figures: dict[tuple[int, int, bool], tuple[int, float, float, float] | None] = \
+        _cached(inp, "search_figures", dict)
 
     def duration(s: int, k: int, after: bool) -> float | None:
-        q = _lookup(inp.q_after if after else inp.q_first, s, k, n_t)
-        pd = _lookup(inp.pd_after if after else inp.pd_first, s, k, n_t)
-        pfa = _lookup(inp.pfa_position, s, k, n_t)
-        dwell = _lookup(inp.dwell_s, s, k, n_t)
-        if not (math.isfinite(q) and math.isfinite(pd) and math.isfinite(pfa)
-                and math.isfinite(dwell)):
+        key = (s, k, after)
+        fig = figures.get(key, False)
+        if fig is False:
+            q = _lookup(inp.q_after if after else inp.q_first, s, k, n_t)
+            pd = _lookup(inp.pd_after if after else inp.pd_first, s, k, n_t)
+            pfa = _lookup(inp.pfa_position, s, k, n_t)
+            dwell = _lookup(inp.dwell_s, s, k, n_t)
+            ok = (math.isfinite(q) and math.isfinite(pd) and math.isfinite(pfa)
+                  and math.isfinite(dwell))
+            fig = figures[key] = (int(q), pd, pfa, dwell) if ok else None
+        if fig is None:
             return None
-        return _draw_search_time_s(int(q), pd, pfa, dwell, penalty, rng)
+        return _draw_search_time_s(fig[0], fig[1], fig[2], fig[3], penalty, rng)
 
     return duration
 

@@ -145,16 +145,15 @@ def _time_term(pred: Prediction, dt: float, shifted: list[Prediction] | None):
         # the orbital rate, about 1.5e-4 rad/s, over D'' < 2e-3 Hz/s^2; factor 10 margin].
         d3 = np.full_like(d1, 3e-6)
         d4 = np.full_like(d1, 5e-9)
-    taus = np.linspace(-dt, dt, 17)[:, None, None]
-    poly = d1 * taus + d2 * taus**2 / 2 + d3 * taus**3 / 6
-    # Critical points of the cubic inside the interval.
+    # A cubic's extremes on [-dt, dt] lie at the ends or at its critical points.
+    ends = [d1 * tau + d2 * tau**2 / 2 + d3 * tau**3 / 6 for tau in (-dt, dt)]
     a, b, c = d3 / 2.0, d2, d1
     with np.errstate(divide="ignore", invalid="ignore"):
         disc = np.sqrt(np.maximum(b * b - 4 * a * c, 0.0))
         roots = [np.where(a != 0, (-b + disc) / (2 * a), np.where(b != 0, -c / b, 0.0)),
                  np.where(a != 0, (-b - disc) / (2 * a), 0.0)]
     extra = [np.where(np.abs(r) <= dt, d1 * r + d2 * r**2 / 2 + d3 * r**3 / 6, 0.0) for r in roots]
-    allv = np.concatenate([poly, np.stack(extra)], axis=0)
+    allv = np.stack(ends + extra)
     remainder = 2.0 * np.abs(d4) * dt**4 / 24.0 + 1e-4
     return np.minimum(allv.min(axis=0), 0.0) - remainder, np.maximum(allv.max(axis=0), 0.0) + remainder
 
