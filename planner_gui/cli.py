@@ -48,6 +48,20 @@ class _Parser(argparse.ArgumentParser):
         self.exit(EXIT_BAD_INPUT, f"{self.prog}: error: {message}\n")
 
 
+def one_line(err: InputError) -> str:
+    """The error as one line; several scenario problems are joined with '; '."""
+    problems = getattr(err, "problems", None) or []
+    if len(problems) > 1:
+        file = problems[0].file or err.file
+        parts = []
+        for p in problems:
+            where = ", ".join(x for x in (f"line {p.line}" if p.line is not None else "",
+                                          f"field '{p.field}'" if p.field else "") if x)
+            parts.append(f"{where}: {p.message}" if where else p.message)
+        return f"{file}: {len(problems)} problems: " + "; ".join(parts)
+    return " ".join(str(err).split("\n")) if "\n" in str(err) else str(err)
+
+
 def parse_site(text: str):
     from core.geodesy import Site
 
@@ -191,8 +205,10 @@ def cmd_doppler(args) -> int:
                     "doppler_hz": round(float(pred.doppler_hz[k, j]), 3),
                     "doppler_rate_hz_s": round(float(pred.doppler_rate_hz_s[k, j]), 5)}
                    for j in show]
+        info = orbits.entries[k].info
         sats.append({"id": sid, "signal": pred.signal_ids[k],
-                     "carrier_hz": float(pred.carrier_hz[k]), "samples": samples})
+                     "carrier_hz": float(pred.carrier_hz[k]), "healthy": info.healthy,
+                     "samples": samples})
     warnings = pred.warnings
     if args.format == "json":
         _emit(json.dumps({"site": [site.lat_deg, site.lon_deg, site.height_m],
@@ -373,7 +389,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return args.func(args)
     except InputError as err:
-        print(f"acqplan {args.command}: {err}", file=sys.stderr)
+        print(f"acqplan {args.command}: {one_line(err)}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except AcqplanError as err:
         print(f"acqplan {args.command}: {err}", file=sys.stderr)

@@ -192,3 +192,16 @@ def test_help_on_every_command():
         out = subprocess.run([sys.executable, "-m", "planner_gui.cli", cmd, "--help"], cwd=REPO,
                              capture_output=True, text=True, timeout=60)
         assert out.returncode == 0 and "usage:" in out.stdout, cmd
+
+
+def test_several_scenario_problems_on_one_line(tmp_path, capsys):
+    from core.demo import write_demo
+
+    path = write_demo(tmp_path)
+    text = path.read_text().replace("channels = 12", "channels = 0").replace("lat_deg = 49.6183", "lat_deg = 95")
+    path.write_text(text)
+    code, _, err = run_cli(capsys, "plan", str(path))
+    assert code == 2
+    lines = err.strip().splitlines()
+    assert len(lines) == 1
+    assert "site.lat_deg" in lines[0] and "receiver.channels" in lines[0] and "line" in lines[0]
