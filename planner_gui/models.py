@@ -14,7 +14,6 @@ sort proxy sit on top of it.
 from __future__ import annotations
 
 import math
-import sys
 from dataclasses import dataclass
 from typing import Any
 
@@ -32,45 +31,11 @@ from PySide6.QtGui import QBrush, QColor
 
 from core.plan import Plan
 
+from .qt_compat import guard_singleton_refcounts
 from .style import style_for
 from .worker import PlanResult
 
 # --- a guard against a reference leak of the Qt binding -----------------------------------
-
-_GUARDED = False
-_GUARD_REFS = 1 << 40
-
-
-def guard_singleton_refcounts() -> bool:
-    """Keep None, True and False alive under a binding that leaks references to them.
-
-    The installed PySide6 (6.12.0, a build that assumes the immortal None of CPython 3.12+)
-    returns None from every void Qt method without taking a reference; on CPython 3.11
-    each such call loses one reference, and after a few thousand calls the interpreter
-    aborts ("none_dealloc: deallocating None"). On CPython < 3.12, when a probe shows the
-    leak, this adds 2**40 references to the three singletons (what CPython 3.12 does by
-    making them immortal). Returns True when the guard was applied.
-    """
-    global _GUARDED
-    if _GUARDED:
-        return True
-    if sys.implementation.name != "cpython" or sys.version_info >= (3, 12):
-        return False
-    probe = QObject()
-    before = sys.getrefcount(None)
-    for _ in range(64):
-        probe.setObjectName("probe")           # a void method
-    lost = before - sys.getrefcount(None)
-    del probe
-    if lost < 32:
-        return False
-    import ctypes
-
-    for obj in (None, True, False):
-        ctypes.c_ssize_t.from_address(id(obj)).value += _GUARD_REFS
-    _GUARDED = True
-    return True
-
 
 guard_singleton_refcounts()
 

@@ -21,7 +21,6 @@ from __future__ import annotations
 
 import math
 import re
-import sys
 from dataclasses import dataclass, field, replace
 
 from PySide6.QtGui import QFont, QFontMetricsF, QPaintDevice
@@ -82,43 +81,6 @@ def _keep_none_references(n: int) -> None:
             incref(addr)
     except (ImportError, AttributeError, OSError):
         _KEPT_NONE.extend([None] * n)
-
-
-class NoneRefGuard:
-    """Keeps the reference count of ``None`` level across a block of Qt calls.
-
-    PySide6 6.12.0 on CPython 3.11 drops one reference to ``None`` on every call of a
-    method that returns nothing (QPainter.setPen, drawRect, drawLine, QFont.setPointSizeF,
-    ...). ``None`` starts with a few thousand references, so a few thousand such calls
-    abort the interpreter ("none_dealloc: deallocating None"). The guard lends ``reserve``
-    references during the block and afterwards adds back, permanently, as many as the
-    block lost. Where ``None`` is immortal (CPython 3.12+) or the binding is correct,
-    nothing is added.
-    """
-
-    _baseline: int | None = None       # the raw count of an empty block (frame references)
-
-    def __init__(self, reserve: int = 20000, _calibrate: bool = False):
-        self.reserve_n = reserve
-        self._calibrate = _calibrate
-        if NoneRefGuard._baseline is None and not _calibrate:
-            with NoneRefGuard(0, _calibrate=True):
-                pass
-
-    def __enter__(self) -> NoneRefGuard:
-        self.before = sys.getrefcount(None)
-        self.reserve = [None] * self.reserve_n
-        return self
-
-    def __exit__(self, *exc) -> None:
-        raw = self.before + self.reserve_n - sys.getrefcount(None)
-        if self._calibrate:
-            NoneRefGuard._baseline = raw
-            return
-        lost = raw - (NoneRefGuard._baseline or 0)
-        if 0 < lost <= self.reserve_n:
-            _keep_none_references(lost)
-        self.reserve = []
 
 
 # --------------------------------------------------------------------------- geometry
@@ -211,8 +173,7 @@ class Typesetter:
     def _entry(self, spec: FontSpec) -> tuple[QFont, QFontMetricsF]:
         got = self._cache.get(spec)
         if got is None:
-            with NoneRefGuard(100):
-                got = self._make(spec)
+            got = self._make(spec)
             self._cache[spec] = got
         return got
 

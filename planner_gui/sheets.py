@@ -67,7 +67,6 @@ from planner_gui.sheet_layout import (
     RULE,
     FontSpec,
     Geometry,
-    NoneRefGuard,
     Page,
     Rect,
     Typesetter,
@@ -1125,9 +1124,8 @@ def paint_sheets(plan: Plan, device, *, generated_unix_s: float | None = None) -
     """
     from PySide6.QtGui import QPainter
 
-    with NoneRefGuard(200):
-        ensure_gui_application()
-        geo = _device_geometry(device)
+    ensure_gui_application()
+    geo = _device_geometry(device)
     pages = build_pages(plan, device, geo, generated_unix_s)
     first, last = 1, len(pages)
     from_page = getattr(device, "fromPage", None)
@@ -1138,18 +1136,15 @@ def paint_sheets(plan: Plan, device, *, generated_unix_s: float | None = None) -
     if not painter.begin(device):
         raise InputError("cannot start printing on this device (is the file or printer writable?)")
     try:
-        with NoneRefGuard(100):
-            painter.setRenderHint(QPainter.RenderHint.Antialiasing, True)
-            painter.setRenderHint(QPainter.RenderHint.TextAntialiasing, True)
+        painter.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+        painter.setRenderHint(QPainter.RenderHint.TextAntialiasing, True)
         ts = pages[0].typesetter
         for n in range(first, last + 1):
-            with NoneRefGuard(8 * len(pages[n - 1].ops) + 1000):
-                if n > first and not device.newPage():
-                    raise InputError("the device refused a new page")
-                _paint_page(painter, pages[n - 1], ts)
+            if n > first and not device.newPage():
+                raise InputError("the device refused a new page")
+            _paint_page(painter, pages[n - 1], ts)
     finally:
-        with NoneRefGuard(100):
-            painter.end()
+        painter.end()
     return pages
 
 
@@ -1157,6 +1152,9 @@ def ensure_gui_application():
     """A QGuiApplication for fonts; offscreen when there is no display (Linux without X/Wayland)."""
     from PySide6.QtGui import QGuiApplication
 
+    from .qt_compat import guard_singleton_refcounts
+
+    guard_singleton_refcounts()
     app = QGuiApplication.instance()
     if app is None:
         if (sys.platform.startswith("linux") and not os.environ.get("QT_QPA_PLATFORM")
@@ -1202,11 +1200,9 @@ def write_sheet_pdf(plan: Plan, path: str | os.PathLike[str], paper: str = "a4",
     except OSError as err:
         raise InputError(f"cannot write here ({err.strerror})", file=str(target)) from None
     try:
-        with NoneRefGuard(200):
-            writer = _pdf_writer(tmp, paper)
+        writer = _pdf_writer(tmp, paper)
         pages = paint_sheets(plan, writer, generated_unix_s=generated_unix_s)
-        with NoneRefGuard(200):
-            del writer                # flushes and closes the file
+        del writer                # flushes and closes the file
         if os.path.getsize(tmp) == 0:
             raise InputError("the PDF could not be written", file=str(target))
         os.replace(tmp, target)

@@ -486,9 +486,9 @@ def test_print_dialog_prints_when_accepted(plans, qapp, monkeypatch, tmp_path):
 
 
 def test_repeated_rendering_keeps_none_alive(plans, qapp, tmp_path):
-    # PySide6 6.12 on CPython 3.11 drops a reference to None on each void call; the
-    # sheets compensate (sheet_layout.NoneRefGuard). Without that, each render loses
-    # thousands of references and the interpreter aborts ("none_dealloc").
+    # PySide6 6.12 on CPython 3.11 drops a reference to None on each void call (the
+    # project holds PySide6 below 6.12; planner_gui.qt_compat guards a faulty install).
+    # Each render makes thousands of such calls: the count of None must hold.
     import gc
 
     sheets.write_sheet_pdf(plans["demo"], tmp_path / "warm.pdf")
