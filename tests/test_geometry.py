@@ -228,3 +228,19 @@ def test_low_orbits_are_propagated_directly():
     r2, v2, e2 = sgp4_ecef(leo, u)
     ok = e1 == 0
     assert np.array_equal(r1[ok], r2[ok]) and np.array_equal(v1[ok], v2[ok])
+
+
+@requires_orbit_data
+def test_sgp4_errors_become_nan_and_a_warning_per_satellite():
+    """python-sgp4's verification set holds decaying and ill-posed cases (SGP4-VER.TLE):
+    their error codes must give NaN samples and one warning per satellite, not a crash."""
+    from core.readers import load_orbits
+
+    orbits = load_orbits(ORBIT_DATA / "tle" / "sgp4_SGP4-VER.TLE", strict=False)
+    t0 = min(e.info.epoch_unix_s for e in orbits.entries)
+    pred = predict(orbits, Site(0.0, 0.0, 0.0), t0 + np.arange(0.0, 30 * 86400.0, 3600.0))
+    failed = [w for w in pred.warnings if "SGP4 failed" in w]
+    bad_rows = np.nonzero((~pred.valid).any(axis=1))[0]
+    assert bad_rows.size >= 3 and len(failed) == bad_rows.size
+    assert np.isnan(pred.doppler_hz[~pred.valid]).all()
+    assert np.isfinite(pred.doppler_hz[pred.valid]).all()
