@@ -341,6 +341,36 @@ def symbol_transition_loss_db(coherent_s: ArrayLike, symbol_period_s: ArrayLike,
     return _out(-10.0 * np.log10(power))
 
 
+def aligned_transition_loss_db(coherent_s: float, symbol_period_s: float,
+                               code_period_s: float) -> float:
+    """Expected power loss (dB) from symbol sign changes when the coherent interval is
+    aligned to the received code epochs, as in a serial (correlator) search at the signal
+    cell, where the local code epoch coincides with the received one.
+
+    Data-bit and secondary-code edges fall on code epochs, so the interval of n code
+    periods starts at one of the L = symbol / code period epochs within a symbol, each
+    equally likely. With independent +-1 symbols, segments of lengths l_i give an
+    expected power fraction sum(l_i^2) / n^2 [calc]. A symbol of one code period (BeiDou
+    B1I's NH20 chips, Galileo E1-C's secondary-code chips) puts every edge on the
+    interval's ends: 0 dB whatever Tc.
+    """
+    n = int(round(coherent_s / code_period_s))
+    big_l = max(int(round(symbol_period_s / code_period_s)), 1)
+    if n < 1:
+        raise InputError(f"coherent time {coherent_s} s is below one code period", field="coherent_s")
+    fractions = []
+    for start in range(big_l):
+        lengths, run = [], 0
+        for j in range(n):
+            if j > 0 and (start + j) % big_l == 0:
+                lengths.append(run)
+                run = 0
+            run += 1
+        lengths.append(run)
+        fractions.append(sum(x * x for x in lengths) / (n * n))
+    return float(-10.0 * math.log10(sum(fractions) / len(fractions)))
+
+
 def max_coherent_without_transition_s(signal: Signal) -> float:
     """Longest whole number of code periods not longer than one data symbol / secondary chip."""
     n = math.floor(signal.symbol_period_s / signal.code_period_s * (1.0 + WHOLE_NUMBER_RTOL))

@@ -33,13 +33,21 @@ from . import codephase, detection
 from . import timeline as tl
 from .errors import ComputationError, InputError
 from .geodesy import Site
-from .orbit_margin import margin_extrapolated, orbit_margin_hz, orbit_range_margin_m
+from .orbit_margin import L1_HZ, margin_extrapolated, orbit_margin_hz, orbit_range_margin_m
 from .orbits import OrbitFileInfo, OrbitSet
 from .predict import Pass, Prediction, passes, predict
 from .scenario import Scenario
 from .signals import SIGNALS
 from .timeutil import TimeGrid, iso_z, time_grid
-from .windows import DopplerWindows, Uncertainty, doppler_windows, shifted_predictions
+from .windows import (
+    DopplerWindows,
+    ShiftSummary,
+    Uncertainty,
+    doppler_windows,
+    oscillator_fraction_after,
+    shift_summary,
+    windows_after_first_acquisition,
+)
 
 ProgressFn = Callable[[float, str], None]
 CancelFn = Callable[[], bool]
@@ -72,7 +80,7 @@ class PreparedGeometry:
     site: Site
     grid: TimeGrid
     prediction: Prediction
-    shifted: list[Prediction] | None
+    shifted: ShiftSummary | None
     passes: list[Pass]
     signal_ids: list[str]
     visible: np.ndarray            # (S, T): above the mask, propagated, healthy
@@ -125,7 +133,7 @@ def prepare_geometry(sc: Scenario, progress: ProgressFn | None = None,
     shifted = None
     if sc.time.uncertainty_s > 0:
         _report(progress, 0.35, "propagating shifted grids for the time uncertainty")
-        shifted = shifted_predictions(orbits, site, grid, sc.time.uncertainty_s, by_system)
+        shifted = shift_summary(orbits, site, grid, sc.time.uncertainty_s, by_system)
     _check_cancel(cancel)
     _report(progress, 0.45, "finding passes")
     mask = sc.mask.elevation_deg
@@ -228,7 +236,7 @@ class Plan:
     expected_search_first_s: np.ndarray
     expected_search_after_s: np.ndarray
     sensitivity_dbhz: dict[str, float]               # C/N0 for Pd = 0.9, per signal
-    code_step_loss: codephase.CodeStepLoss
+    code_step_loss: dict[str, codephase.CodeStepLoss]  # per signal
     timeline: tl.Timeline
     ttff: tl.TtffStats | None                        # None until add_monte_carlo
     first_acquired: str | None
@@ -249,7 +257,11 @@ class Plan:
 
     def index_at(self, unix_s: float) -> int:
         """Grid index nearest an instant."""
-        return int(np.clip(np.searchsorted(self.times.unix_s, unix_s), 0, len(self.times) - 1))
+        u = self.times.unix_s
+        k = int(np.clip(np.searchsorted(u, unix_s), 0, u.size - 1))
+        if k > 0 and abs(u[k - 1] - unix_s) <= abs(u[k] - unix_s):
+            k -= 1
+        return k
 
     def search_grid_at(self, k: int) -> list[dict]:
         """For grid index k: per visible satellite, its current window and bin centres.
@@ -327,110 +339,119 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
     signals = [SIGNALS[s] for s in g.signal_ids]
     _report(progress, 0.6, "computing Doppler windows")
 
-    # Orbit-data margin, per satellite at the window's middle age.
-    age = _data_age_s(orbits, 0.5 * (grid.start_unix_s + grid.end_unix_s))
+    # Orbit-data margin per satellite and time, from the data age at each grid time.
+    epochs = np.array([e.info.epoch_unix_s for e in orbits.entries])
+    age = grid.unix_s[None, :] - epochs[:, None]                     # (S, T) seconds
     kinds = [e.info.source_kind for e in orbits.entries]
     if sc.search.orbit_margin_hz is not None:
-        margin = np.full(n_s, float(sc.search.orbit_margin_hz)) * pred.carrier_hz / 1575.42e6
+        margin_t = (np.full(n_s, float(sc.search.orbit_margin_hz)) * pred.carrier_hz / L1_HZ)[:, None] \
+            * np.ones((1, n_t))
     else:
-        margin = np.array([float(orbit_margin_hz(k, a, f)) for k, a, f in zip(kinds, age, pred.carrier_hz)])
-    range_margin = np.array([float(orbit_range_margin_m(k, a)) for k, a in zip(kinds, age)])
+        margin_t = np.stack([orbit_margin_hz(k, a, f) for k, a, f in zip(kinds, age, pred.carrier_hz)])
+    range_margin = np.stack([orbit_range_margin_m(k, a) for k, a in zip(kinds, age)])
     old = sorted({e.info.sat_id for e, k, a in zip(orbits.entries, kinds, age)
-                  if bool(margin_extrapolated(k, a))})
+                  if bool(np.any(margin_extrapolated(k, a)))})
     if old and sc.search.orbit_margin_hz is None:
         warnings.append(
             f"orbit data older than the ages the default margin was derived for "
             f"(docs/orbit-margin.md) for {len(old)} satellite(s) ({', '.join(old[:6])}"
             f"{', ...' if len(old) > 6 else ''}): windows may be too narrow; use fresher "
             "data or set [search] orbit_margin_hz")
-    # GLONASS without a known channel k: Doppler is computed on the k = 0 carrier; the
-    # true carrier differs by up to 7 x 0.5625 MHz, which scales the Doppler by up to
-    # 3.9375 / 1602 (0.25 %) [calc]. Widen the orbit term by that share.
+    unc = _uncertainty(sc)
     unknown_k = np.array([e.info.system == "R" and e.info.glonass_k is None for e in orbits.entries])
     if unknown_k.any():
-        frac = 7 * SIGNALS["GLO-L1OF"].fdma_step_hz / SIGNALS["GLO-L1OF"].carrier_hz
-        margin = margin + 0.0
-        margin_t = margin[:, None] + np.where(unknown_k[:, None], np.abs(pred.doppler_hz) * frac, 0.0)
         warnings.append(
             f"GLONASS channel k unknown for {int(unknown_k.sum())} satellite(s): windows are "
-            "planned on the k = 0 carrier and widened by 0.25 % of the Doppler; give k in a "
-            "mapping file ([orbits] mapping)")
-    else:
-        margin_t = margin[:, None]
-    unc = _uncertainty(sc)
+            "planned on the k = 0 carrier and widened to hold every channel -7..+6 (and the "
+            "receiver must also find the channel); give k in a mapping file ([orbits] mapping)")
     # Windows depend on the uncertainties and the margin only: cached per prepared geometry.
     wkey = (unc, margin_t.tobytes())
-    w_first = g.window_cache.get(wkey)
-    if w_first is None:
-        w_first = doppler_windows(pred, unc, margin_t, shifted=g.shifted)
+    cached = g.window_cache.get(wkey)
+    if cached is None:
+        w_raw = doppler_windows(pred, unc, margin_t, shifted=g.shifted)
+        cached = (w_raw, _widen_for_unknown_k(w_raw, unknown_k))
         g.window_cache.clear()
-        g.window_cache[wkey] = w_first
+        g.window_cache[wkey] = cached
+    w_raw, w_first = cached
 
-    # Coherent integration per signal, checked against the signal.
+    # Coherent integration per signal, checked against the signal; code-step loss per
+    # signal (BOC(1,1) for Galileo E1 and BeiDou B1C, BPSK for the rest).
+    step = sc.search.code_step_chips
     design: dict[str, binlib.BinDesign] = {}
+    code_loss: dict[str, codephase.CodeStepLoss] = {}
     tc_s = np.zeros(n_s)
     n_nc = np.zeros(n_s, dtype=int)
     transition_db = np.zeros(n_s)
+    code_loss_db = np.zeros(n_s)
     for sid in sorted(set(g.signal_ids)):
+        sig = SIGNALS[sid]
         coh_ms, nc = sc.search.integration_for(sid)
-        chk = binlib.check_coherent_time(SIGNALS[sid], coh_ms / 1000.0)
+        chk = binlib.check_coherent_time(sig, coh_ms / 1000.0)
         if not chk.ok:
             raise InputError("; ".join(chk.errors), field="search.coherent_ms")
         warnings.extend(f"{sid}: {w}" for w in chk.warnings)
         design[sid] = binlib.design_bins(coh_ms / 1000.0, sc.search.max_frequency_loss_db)
-        rows = [i for i, s in enumerate(g.signal_ids) if s == sid]
+        code_loss[sid] = codephase.code_step_loss(step, codephase.correlation_shape_for(sig))
+        rows = [i for i, x in enumerate(g.signal_ids) if x == sid]
         tc_s[rows] = coh_ms / 1000.0
         n_nc[rows] = nc
         # Expected loss from data-bit / secondary-code sign changes inside a coherent
-        # interval whose start is not aligned to the symbols (core.bins).
-        transition_db[rows] = chk.transition_loss_db
-    width = np.array([design[s].bin_width_hz for s in g.signal_ids])[:, None]
+        # interval: a serial search dwells on the received code epochs at the signal cell
+        # (aligned model); a parallel (FFT) code search starts anywhere (core.bins).
+        if sc.receiver.parallel_code_search:
+            transition_db[rows] = chk.transition_loss_db
+        else:
+            transition_db[rows] = binlib.aligned_transition_loss_db(
+                coh_ms / 1000.0, sig.symbol_period_s, sig.code_period_s)
+        code_loss_db[rows] = code_loss[sid].average_loss_db
+    width = np.array([design[x].bin_width_hz for x in g.signal_ids])[:, None]
     half = width / 2.0
-    avg_freq_loss = np.array([design[s].average_loss_db for s in g.signal_ids])[:, None]
+    avg_freq_loss = np.array([design[x].average_loss_db for x in g.signal_ids])[:, None]
 
     # Code phase.
-    step = sc.search.code_step_chips
-    code_loss = codephase.code_step_loss(step)
-    code_len = np.array([float(s.code_length_chips) for s in signals])[:, None]
-    chip_m = np.array([s.chip_length_m for s in signals])[:, None]
+    code_len = np.array([float(x.code_length_chips) for x in signals])[:, None]
+    chip_m = np.array([x.chip_length_m for x in signals])[:, None]
     fine = sc.search.fine_time_uncertainty_us
     if fine is not None:
         # Satellite clock: a TLE carries none (broadcast offsets reach 0.57 ms, 171 km,
         # in the TLE pairs of docs/orbit-margin.md), so fine time cannot narrow the code
         # window of a TLE satellite; almanac clock terms were off by 190 m at 1 day and
         # 1161 m at 27.8 days there: margin 200 m + 40 m per day of age.
-        clock_m = np.where(np.array(kinds) == "almanac", 200.0 + 40.0 * np.abs(age) / 86400.0, np.inf)
+        is_alm = np.array(kinds)[:, None] == "almanac"
+        clock_m = np.where(is_alm, 200.0 + 40.0 * np.abs(age) / 86400.0, np.inf)
         range_margin = range_margin + clock_m
-        if np.isinf(clock_m).any():
+        if not is_alm.all():
             warnings.append("fine time does not narrow the code window of TLE satellites "
                             "(a TLE holds no satellite clock): they search the whole code")
+    el_ok = np.where(pred.valid, pred.elevation_deg, -90.0)
     if fine is None:
         cw_first = np.broadcast_to(code_len, (n_s, n_t)).copy()
         cw_after_base = cw_first.copy()
     else:
         budget = codephase.range_uncertainty_budget(
-            unc.horizontal_m, unc.vertical_m, pred.elevation_deg, fine * 1e-6,
-            pred.range_rate_m_s, fine * 1e-6)
-        non_clock = np.asarray(budget.position_m) + np.asarray(budget.satellite_motion_m) + range_margin[:, None]
+            unc.horizontal_m, unc.vertical_m, el_ok, fine * 1e-6,
+            np.where(pred.valid, pred.range_rate_m_s, 0.0), fine * 1e-6)
+        non_clock = np.asarray(budget.position_m) + np.asarray(budget.satellite_motion_m) + range_margin
         cw_first = np.minimum(2.0 * (non_clock + np.asarray(budget.clock_m)) / chip_m, code_len)
         cw_after_base = non_clock
-    cells_first = codephase.code_cells(cw_first, step)
+    cells_first = np.maximum(codephase.code_cells(cw_first, step), 1)
 
-    # Detection.
+    # Detection (failed propagation samples count as below the mask: never searched).
     mask = sc.mask.elevation_deg
-    cn0 = detection.cn0_at_elevation_dbhz(np.clip(pred.elevation_deg, -90, 90), sc.signal.cn0_zenith_dbhz,
+    cn0 = detection.cn0_at_elevation_dbhz(el_ok, sc.signal.cn0_zenith_dbhz,
                                           sc.signal.cn0_at_mask_dbhz, mask)
-    cn0_eff = np.asarray(cn0) - sc.signal.extra_loss_db - avg_freq_loss - code_loss.average_loss_db - transition_db[:, None]
+    losses_db = sc.signal.extra_loss_db + avg_freq_loss + (code_loss_db + transition_db)[:, None]
+    cn0_eff = np.asarray(cn0) - losses_db
     pfa = sc.search.false_alarm_per_cell
-    pd = _pd_by_table(np.asarray(cn0_eff, dtype=float), tc_s, n_nc, pfa, g.visible)
-    sens = {sid: _sensitivity_dbhz(float(pfa), int(sc.search.integration_for(sid)[1]),
-                                   sc.search.integration_for(sid)[0] / 1000.0,
-                                   float(sc.signal.extra_loss_db + design[sid].average_loss_db
-                                         + code_loss.average_loss_db))
-            for sid in design}
+    pd = _pd_by_table(np.asarray(cn0_eff, dtype=float), tc_s, n_nc, pfa)
+    sens = {}
+    for sid in design:
+        row = g.signal_ids.index(sid)
+        coh_ms, nc = sc.search.integration_for(sid)
+        sens[sid] = _sensitivity_dbhz(float(pfa), int(nc), coh_ms / 1000.0, float(losses_db[row, 0]))
 
     def costs(windows: DopplerWindows, cells: np.ndarray):
-        nb = np.asarray(binlib.bin_count(windows.low_hz, windows.high_hz, width))
+        nb = np.maximum(np.asarray(binlib.bin_count(windows.low_hz, windows.high_hz, width)), 1)
         cost = detection.search_cost(nb, cells, sc.receiver.correlators_per_channel,
                                      sc.receiver.parallel_code_search, tc_s[:, None], n_nc[:, None],
                                      pfa, pd, sc.search.false_alarm_penalty_s)
@@ -439,51 +460,57 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
     _report(progress, 0.7, "search costs")
     bins_first, cost_first = costs(w_first, cells_first)
 
-    def timeline_inputs(w_after, cells_after, cost_after):
-        exp_first = np.where(g.visible, cost_first.expected_search_s, np.inf)
-        exp_after = np.where(g.visible, cost_after.expected_search_s, np.inf)
-        refined = {}
-        for p in g.passes:
-            refined.setdefault(p.sat_id, []).append((p.rise_unix_s, p.set_unix_s))
-        healthy_ids = {e.info.sat_id for e in orbits.entries if e.info.healthy}
-        refined = {k: v for k, v in refined.items() if k in healthy_ids}
-        for sid in pred.ids:
-            if sid not in healthy_ids:
-                refined[sid] = []
+    refined: dict[str, list[tuple[float, float]]] = {}
+    for ps in g.passes:
+        refined.setdefault(ps.sat_id, []).append((ps.rise_unix_s, ps.set_unix_s))
+    healthy_ids = {e.info.sat_id for e in orbits.entries if e.info.healthy}
+    refined = {k: v for k, v in refined.items() if k in healthy_ids}
+    for sid in pred.ids:
+        if sid not in healthy_ids:
+            refined[sid] = []
+
+    def timeline_inputs(cost_after):
         return tl.TimelineInputs(
             times_unix_s=grid.unix_s, sat_ids=tuple(pred.ids), visible=g.visible,
             priority=np.where(g.visible, _priority(sc.search.priority, pred), -1000.0),
-            expected_search_first_s=exp_first, expected_search_after_s=exp_after,
+            expected_search_first_s=np.where(g.visible, cost_first.expected_search_s, np.inf),
+            expected_search_after_s=np.where(g.visible, cost_after.expected_search_s, np.inf),
             n_channels=sc.receiver.channels, first_fix_satellites=sc.search.first_fix_satellites,
             ephemeris_wait_s=sc.search.ephemeris_wait_s,
             q_first=np.asarray(cost_first.positions), q_after=np.asarray(cost_after.positions),
             pd_first=pd, pd_after=pd,
             pfa_position=np.asarray(cost_first.pfa_position),
+            pfa_position_after=np.asarray(cost_after.pfa_position),
             dwell_s=np.broadcast_to((tc_s * n_nc)[:, None], (n_s, n_t)).copy(),
             penalty_s=sc.search.false_alarm_penalty_s, set_unix_s=refined)
 
-    # Pass 1: who is acquired first (its search runs with "first" costs, so the after-
-    # costs do not change it); pass 2 with the after-windows that acquisition gives.
+    # Pass 1 finds the searches that run before any acquisition (they use "first" costs,
+    # so the after-costs cannot change them). Any of them may be the first acquired in a
+    # real run (or a Monte Carlo run), so the after-windows take the worst of them: the
+    # largest (half bin + own non-oscillator uncertainty) / carrier at its search start.
     _check_cancel(cancel)
     _report(progress, 0.75, "channel timeline")
-    first_tl = tl.expected_timeline(timeline_inputs(w_first, cells_first, cost_first))
+    first_tl = tl.expected_timeline(timeline_inputs(cost_first))
     first_id = min(first_tl.acquisition_unix_s, key=first_tl.acquisition_unix_s.get, default=None)
-    if first_id is not None:
-        s1 = pred.ids.index(first_id)
-        k1 = int(np.clip(np.searchsorted(grid.unix_s, first_tl.acquisition_unix_s[first_id]) - 1, 0, n_t - 1))
-        from .windows import windows_after_first_acquisition
-
-        w_after = windows_after_first_acquisition(w_first, pred.carrier_hz, s1, k1, float(half[s1, 0]))
+    candidates = [(pred.ids.index(seg.sat_id), _grid_index_at(grid, g.visible, pred.ids.index(seg.sat_id),
+                                                              seg.start_unix_s))
+                  for seg in first_tl.segments if seg.kind == "search" and seg.search_state == "first"]
+    if first_id is not None and candidates:
+        frac = max(oscillator_fraction_after(w_first, pred.carrier_hz, s1, k1, float(half[s1, 0]))
+                   for s1, k1 in candidates)
+        w_after = _widen_for_unknown_k(
+            windows_after_first_acquisition(w_raw, pred.carrier_hz, frac),
+            unknown_k)
         if fine is None:
             cw_after = cw_first
         else:
-            own = cw_after_base[s1, k1] + 0.5 * step * chip_m[s1, 0]
-            cw_after = np.minimum(2.0 * (cw_after_base + own) / chip_m, code_len)
+            own = max(cw_after_base[s1, k1] + 0.5 * step * chip_m[s1, 0] for s1, k1 in candidates)
+            cw_after = np.minimum(np.minimum(2.0 * (cw_after_base + own) / chip_m, code_len), cw_first)
     else:
         w_after, cw_after = w_first, cw_first
-    cells_after = codephase.code_cells(cw_after, step)
+    cells_after = np.maximum(codephase.code_cells(cw_after, step), 1)
     bins_after, cost_after = costs(w_after, cells_after)
-    inputs = timeline_inputs(w_after, cells_after, cost_after)
+    inputs = timeline_inputs(cost_after)
     timeline = tl.expected_timeline(inputs)
     warnings.extend(timeline.warnings)
     _check_cancel(cancel)
@@ -505,7 +532,7 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
         seg = first_search.get(sid)
         summary = None
         if seg is not None:
-            k = int(np.clip(np.searchsorted(grid.unix_s, seg.start_unix_s, side="right") - 1, 0, n_t - 1))
+            k = _grid_index_at(grid, g.visible, s, seg.start_unix_s)
             after = seg.search_state == "after"
             w = w_after if after else w_first
             lo, hi = float(w.low_hz[s, k]), float(w.high_hz[s, k])
@@ -572,7 +599,7 @@ def _sensitivity_dbhz(pfa: float, n: int, coherent_s: float, losses_db: float) -
 
 
 def _pd_by_table(cn0_eff_dbhz: np.ndarray, coherent_s: np.ndarray, n_nc: np.ndarray,
-                 pfa: float, visible: np.ndarray) -> np.ndarray:
+                 pfa: float) -> np.ndarray:
     """Detection probability of the square-law detector (core.detection) per (S, T).
 
     Evaluated on a 0.002 dB grid of C/N0 per (coherent time, N) group and interpolated
@@ -592,6 +619,41 @@ def _pd_by_table(cn0_eff_dbhz: np.ndarray, coherent_s: np.ndarray, n_nc: np.ndar
             detection.coherent_snr_linear(grid, tc), n, thr))
         pd[rows] = np.interp(sub, grid, table)
     return pd
+
+
+def _grid_index_at(grid: TimeGrid, visible: np.ndarray, s: int, unix_s: float) -> int:
+    """The grid sample whose values a search starting at ``unix_s`` uses: the one at or
+    before it, or the next one when the satellite is not yet above the mask there (the
+    rule of core.timeline for a search that starts at a rise)."""
+    u = grid.unix_s
+    k = int(np.clip(np.searchsorted(u, unix_s, side="right") - 1, 0, u.size - 1))
+    if not visible[s, k] and k + 1 < u.size:
+        k += 1
+    return k
+
+
+# GLONASS FDMA channels k = -7..+6 [pub: GLONASS ICD 5.1].
+_GLONASS_K_RANGE = (-7, 6)
+
+
+def _widen_for_unknown_k(w: DopplerWindows, rows: np.ndarray) -> DopplerWindows:
+    """Windows of GLONASS satellites whose channel k is unknown, made to hold the apparent
+    Doppler on every carrier f0 + k step: every term scales with the carrier, so the
+    window [lo, hi] planned on f0 becomes [lo, hi] x (f0 + k step) / f0 for the worst k
+    [calc]. The extra extent is booked on the orbit-data term."""
+    if not np.any(rows):
+        return w
+    sig = SIGNALS["GLO-L1OF"]
+    ratios = [(sig.carrier_hz + k * sig.fdma_step_hz) / sig.carrier_hz for k in _GLONASS_K_RANGE]
+    lo, hi = w.low_hz, w.high_hz
+    ext_lo = np.minimum(lo * ratios[0], lo * ratios[1]) - lo
+    ext_hi = np.maximum(hi * ratios[0], hi * ratios[1]) - hi
+    mask = np.asarray(rows)[:, None]
+    lows, highs = dict(w.terms_low_hz), dict(w.terms_high_hz)
+    lows["orbit"] = lows["orbit"] + np.where(mask, np.minimum(ext_lo, 0.0), 0.0)
+    highs["orbit"] = highs["orbit"] + np.where(mask, np.maximum(ext_hi, 0.0), 0.0)
+    return DopplerWindows(w.nominal_hz, w.nominal_hz + sum(lows.values()),
+                          w.nominal_hz + sum(highs.values()), lows, highs)
 
 
 def _priority(kind: str, pred: Prediction) -> np.ndarray:
@@ -643,7 +705,7 @@ def plan_to_json(plan: Plan) -> dict:
         "start": iso[0], "end": iso[-1], "step_s": plan.scenario.time.step_s,
         "bin_design": {k: v.to_dict() for k, v in plan.bin_design.items()},
         "sensitivity_dbhz_pd90": {k: round(v, 2) for k, v in plan.sensitivity_dbhz.items()},
-        "code_step_loss": plan.code_step_loss.to_dict(),
+        "code_step_loss": {k: v.to_dict() for k, v in plan.code_step_loss.items()},
         "satellites": sats,
         "timeline": [{"channel": seg.channel, "id": seg.sat_id, "kind": seg.kind,
                       "start": iso_z(seg.start_unix_s, 1), "end": iso_z(seg.end_unix_s, 1),

@@ -178,6 +178,7 @@ class TimelineInputs:
     pd_first: np.ndarray | None = None
     pd_after: np.ndarray | None = None
     pfa_position: np.ndarray | float | None = None
+    pfa_position_after: np.ndarray | float | None = None   # default: pfa_position
     dwell_s: np.ndarray | float | None = None
     penalty_s: float = 0.0
     set_unix_s: Mapping[str, Sequence[tuple[float, float]]] | None = None
@@ -222,6 +223,11 @@ class TimelineInputs:
             pfa = _as_grid_array(self.pfa_position, shape, "pfa_position", allow_scalar=True)
             _check_range(pfa, "pfa_position", 0.0, 1.0)
             put(self, "pfa_position", pfa)
+        if self.pfa_position_after is not None:
+            pfa = _as_grid_array(self.pfa_position_after, shape, "pfa_position_after",
+                                 allow_scalar=True)
+            _check_range(pfa, "pfa_position_after", 0.0, 1.0)
+            put(self, "pfa_position_after", pfa)
         if self.dwell_s is not None:
             dwell = _as_grid_array(self.dwell_s, shape, "dwell_s", allow_scalar=True)
             _check_range(dwell, "dwell_s", 0.0, math.inf, lo_open=True)
@@ -711,7 +717,9 @@ def _drawn_duration(inp: TimelineInputs, rng: np.random.Generator) -> DurationFn
         if fig is False:
             q = _lookup(inp.q_after if after else inp.q_first, s, k, n_t)
             pd = _lookup(inp.pd_after if after else inp.pd_first, s, k, n_t)
-            pfa = _lookup(inp.pfa_position, s, k, n_t)
+            pfa_arr = inp.pfa_position_after if (after and inp.pfa_position_after is not None) \
+                else inp.pfa_position
+            pfa = _lookup(pfa_arr, s, k, n_t)
             dwell = _lookup(inp.dwell_s, s, k, n_t)
             ok = (math.isfinite(q) and math.isfinite(pd) and math.isfinite(pfa)
                   and math.isfinite(dwell))

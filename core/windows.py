@@ -121,20 +121,31 @@ def time_shifts_s(time_uncertainty_s: float, max_spacing_s: float = 15.0) -> np.
     return np.linspace(-time_uncertainty_s, time_uncertainty_s, max(n, 3))
 
 
-def _time_term(pred: Prediction, dt: float, shifted: list[Prediction] | None):
+@dataclass
+class ShiftSummary:
+    """What the windows need from predictions of the grid shifted by offsets covering
+    +-time_s, reduced as they are computed (memory of one prediction, not one per shift):
+    extremes of D(t + tau) - D(t), the largest |D''|, the largest position gradients."""
+
+    diff_min_hz: np.ndarray
+    diff_max_hz: np.ndarray
+    d2_max_hz_s2: np.ndarray
+    spacing_s: float
+    gh_max: np.ndarray
+    gu_max: np.ndarray
+
+
+def _time_term(pred: Prediction, dt: float, shifted: ShiftSummary | None):
     """Signed extents (low <= 0 <= high) of D(t + tau) - D(t) over |tau| <= dt."""
     d1 = pred.doppler_rate_hz_s
     zeros = np.zeros_like(d1)
     if dt == 0:
         return zeros, zeros
-    if shifted:
-        diffs = np.stack([p.doppler_hz - pred.doppler_hz for p in shifted] + [zeros])
-        taus = np.sort(np.array([p.times.unix_s[0] - pred.times.unix_s[0] for p in shifted] + [0.0]))
-        spacing = float(np.max(np.diff(taus))) if taus.size > 1 else dt
+    if shifted is not None:
         # Between two samples h apart a function exceeds its chord by at most |D''| h^2 / 8.
-        d2max = np.max(np.abs(np.stack([doppler_second_derivative(p) for p in shifted])), axis=0)
-        between = 1.5 * d2max * spacing**2 / 8.0 + 1e-4
-        return diffs.min(axis=0) - between, diffs.max(axis=0) + between
+        between = 1.5 * shifted.d2_max_hz_s2 * shifted.spacing_s**2 / 8.0 + 1e-4
+        return (np.minimum(shifted.diff_min_hz, 0.0) - between,
+                np.maximum(shifted.diff_max_hz, 0.0) + between)
     t = pred.times.unix_s
     d2 = doppler_second_derivative(pred)
     if t.size >= 5:
@@ -181,13 +192,13 @@ def _velocity_term(pred: Prediction, unc: Uncertainty, el_spread_rad: np.ndarray
 
 
 def doppler_windows(pred: Prediction, unc: Uncertainty, orbit_margin_hz: np.ndarray | float = 0.0,
-                    shifted: list[Prediction] | None = None) -> DopplerWindows:
+                    shifted: ShiftSummary | None = None) -> DopplerWindows:
     """Nominal apparent Doppler and the window that holds every admissible truth.
 
-    ``shifted``: predictions of the same grid moved by offsets covering +-time_s (see
-    :func:`time_shifts_s`); required when ``unc.time_s`` exceeds ``TAYLOR_LIMIT_S``.
+    ``shifted``: the :func:`shift_summary` of the same grid; required when
+    ``unc.time_s`` exceeds ``TAYLOR_LIMIT_S``.
     """
-    if unc.time_s > TAYLOR_LIMIT_S and not shifted:
+    if unc.time_s > TAYLOR_LIMIT_S and shifted is None:
         raise ValueError("time uncertainty above TAYLOR_LIMIT_S needs shifted predictions")
     f_c = pred.carrier_hz[:, None]
     lam = pred.wavelength_m[:, None]
@@ -199,10 +210,9 @@ def doppler_windows(pred: Prediction, unc: Uncertainty, orbit_margin_hz: np.ndar
 
     # Position: linear term with the gradient's largest value over the time interval.
     gh, gu = position_gradient_hz_per_m(pred)
-    if shifted:
-        gs = [position_gradient_hz_per_m(p) for p in shifted]
-        gh = np.max(np.stack([gh] + [g[0] for g in gs]), axis=0)
-        gu = np.max(np.stack([gu] + [g[1] for g in gs]), axis=0)
+    if shifted is not None:
+        gh = np.maximum(gh, shifted.gh_max)
+        gu = np.maximum(gu, shifted.gu_max)
     elif dt > 0 and t.size >= 2:
         gh = gh + np.abs(np.gradient(gh, t, axis=1)) * dt * 1.5
         gu = gu + np.abs(np.gradient(gu, t, axis=1)) * dt * 1.5
@@ -234,39 +244,60 @@ def doppler_windows(pred: Prediction, unc: Uncertainty, orbit_margin_hz: np.ndar
     return DopplerWindows(nominal, low, high, lows, highs)
 
 
-def windows_after_first_acquisition(w: DopplerWindows, carrier_hz: np.ndarray, first_sat: int,
-                                    first_time_index: int, bin_half_width_hz: float
-                                    ) -> DopplerWindows:
-    """Windows once one satellite is acquired and the oscillator is therefore measured.
+def oscillator_fraction_after(w: DopplerWindows, carrier_hz: np.ndarray, sat: int, k: int,
+                               bin_half_width_hz: float) -> float:
+    """Fractional oscillator uncertainty once satellite ``sat`` is acquired at index k.
 
     The acquisition fixes that satellite's apparent Doppler to within half a bin; its
-    predicted true Doppler is uncertain by its own non-oscillator terms U1. The
-    oscillator is then known to within (half bin + U1) / f_c1 (fraction), which replaces
-    the oscillator term of every satellite j by f_cj (half bin + U1) / f_c1. The window
-    is centred on the nominal (the receiver's corrected oscillator estimate is unknown at
-    planning time, only its accuracy is).
+    predicted true Doppler is uncertain by its own non-oscillator terms U1. The oscillator
+    is then known to within (half bin + U1) / f_c1.
     """
     lo1, hi1 = w.non_oscillator_extent_hz()
-    u1 = max(-lo1[first_sat, first_time_index], hi1[first_sat, first_time_index])
-    frac = (bin_half_width_hz + u1) / float(carrier_hz[first_sat])
-    osc = np.asarray(carrier_hz, dtype=float)[:, None] * frac * np.ones_like(w.nominal_hz)
+    u1 = max(-lo1[sat, k], hi1[sat, k])
+    return (bin_half_width_hz + float(u1)) / float(carrier_hz[sat])
+
+
+def windows_after_first_acquisition(w: DopplerWindows, carrier_hz: np.ndarray,
+                                    oscillator_fraction: float) -> DopplerWindows:
+    """Windows once the oscillator is measured to within ``oscillator_fraction``
+    (see :func:`oscillator_fraction_after`): the oscillator term of every satellite j
+    becomes f_cj x fraction, but never wider than before the acquisition. The window is
+    centred on the nominal (the receiver's corrected oscillator estimate is unknown at
+    planning time, only its accuracy is)."""
+    osc = np.asarray(carrier_hz, dtype=float)[:, None] * oscillator_fraction * np.ones_like(w.nominal_hz)
     lows = dict(w.terms_low_hz)
     highs = dict(w.terms_high_hz)
-    lows["oscillator"] = -osc
-    highs["oscillator"] = osc
+    lows["oscillator"] = np.maximum(-osc, w.terms_low_hz["oscillator"])
+    highs["oscillator"] = np.minimum(osc, w.terms_high_hz["oscillator"])
     low = w.nominal_hz + sum(lows.values())
     high = w.nominal_hz + sum(highs.values())
     return DopplerWindows(w.nominal_hz, low, high, lows, highs)
 
 
-def shifted_predictions(orbits, site, times, time_uncertainty_s: float, signals=None
-                        ) -> list[Prediction] | None:
-    """Predictions on the grid moved by :func:`time_shifts_s`, when the time uncertainty
-    is too large for the expansion; None otherwise."""
+def shift_summary(orbits, site, times, time_uncertainty_s: float, signals=None
+                  ) -> ShiftSummary | None:
+    """Predictions on the grid moved by :func:`time_shifts_s`, reduced to a
+    :class:`ShiftSummary` as they are computed, when the time uncertainty is too large for
+    the expansion; None otherwise."""
     from .predict import predict
 
     if time_uncertainty_s <= TAYLOR_LIMIT_S:
         return None
     base = times.unix_s
-    return [predict(orbits, site, base + tau, signals) for tau in time_shifts_s(time_uncertainty_s)
-            if tau != 0.0]
+    ref = predict(orbits, site, base, signals)
+    taus = time_shifts_s(time_uncertainty_s)
+    dmin = dmax = None
+    d2 = np.abs(doppler_second_derivative(ref))
+    gh, gu = position_gradient_hz_per_m(ref)
+    for tau in taus:
+        if tau == 0.0:
+            continue
+        p = predict(orbits, site, base + tau, signals)
+        diff = p.doppler_hz - ref.doppler_hz
+        dmin = diff if dmin is None else np.minimum(dmin, diff)
+        dmax = diff if dmax is None else np.maximum(dmax, diff)
+        d2 = np.maximum(d2, np.abs(doppler_second_derivative(p)))
+        g1, g2 = position_gradient_hz_per_m(p)
+        gh, gu = np.maximum(gh, g1), np.maximum(gu, g2)
+    spacing = float(np.max(np.diff(np.sort(np.append(taus, 0.0)))))
+    return ShiftSummary(dmin, dmax, d2, spacing, gh, gu)

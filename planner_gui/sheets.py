@@ -369,7 +369,9 @@ def _settings_rows(ctx: Context) -> tuple[list[tuple[str, str]], list[tuple[str,
                            f"{r.max_vertical_speed_m_s:g} m/s vertical"),
         ("Integration", coh),
         ("Bin width", f"{widths}; edge loss at most {se.max_frequency_loss_db:g} dB"),
-        ("Code step", f"{se.code_step_chips:g} chip (average loss {plan.code_step_loss.average_loss_db:.2f} dB)"),
+        ("Code step", f"{se.code_step_chips:g} chip (average loss "
+                      + ", ".join(f"{sid} {v.average_loss_db:.2f}" for sid, v in sorted(plan.code_step_loss.items()))
+                      + " dB)"),
         ("False alarms", f"{fmt_prob(se.false_alarm_per_cell)} per cell, {se.false_alarm_penalty_s:g} s lost per false alarm"),
         ("Fine time", fine),
         ("Orbit-data margin", margin),

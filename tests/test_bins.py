@@ -321,3 +321,22 @@ def test_transition_loss_closed_values():
     assert bins.symbol_transition_loss_db(10e-3, 20e-3, True) == 0.0
     got = bins.symbol_transition_loss_db(np.array([[1e-3, 2e-3], [20e-3, 60e-3]]), 20e-3)
     assert got.shape == (2, 2) and np.all(np.diff(got.ravel()) > 0)
+
+
+def test_aligned_transition_loss_against_a_symbol_monte_carlo():
+    """Code-epoch-aligned coherent sums of +-1 symbols, simulated with numpy [calc]."""
+    from core.bins import aligned_transition_loss_db
+
+    rng = np.random.default_rng(5)
+    for n, big_l in [(4, 20), (1, 1), (4, 4), (10, 10), (8, 4), (20, 20), (3, 2)]:
+        runs = 200_000
+        start = rng.integers(0, big_l, runs)
+        # symbol index of each code period j of the interval
+        idx = (start[:, None] + np.arange(n)[None, :]) // big_l
+        signs = rng.choice([-1.0, 1.0], size=(runs, idx.max() + 1))
+        amp = np.take_along_axis(signs, idx, axis=1).sum(axis=1) / n
+        sim_db = -10 * np.log10(np.mean(amp**2))
+        assert aligned_transition_loss_db(n * 1e-3, big_l * 1e-3, 1e-3) == pytest.approx(sim_db, abs=0.03)
+    # A symbol of one code period: every edge on the interval's ends, no loss [calc].
+    assert aligned_transition_loss_db(0.004, 0.004, 0.004) == 0.0
+    assert aligned_transition_loss_db(0.001, 0.001, 0.001) == 0.0

@@ -71,9 +71,21 @@ def test_windows_after_first_acquisition_are_narrower(demo_plan):
     width_f = (wf.high_hz - wf.low_hz)[vis]
     width_a = (wa.high_hz - wa.low_hz)[vis]
     assert np.all(width_a <= width_f + 1e-9)
-    # With a 500 ppb TCXO the oscillator term (+-788 Hz at L1) dominates; once known the
-    # windows shrink a lot [calc: 500e-9 x 1575.42e6 = 787.7 Hz].
-    assert np.median(width_a / width_f) < 0.6
+    # After the acquisition the oscillator term is the carrier times one fraction for
+    # every satellite: (half bin + own non-oscillator uncertainty) / carrier of the worst
+    # candidate first satellite, at least that of the satellite actually acquired first.
+    frac = wa.share_hz["oscillator"][vis] / np.broadcast_to(
+        np.array([s.carrier_hz for s in p.satellites])[:, None], vis.shape)[vis]
+    assert np.allclose(frac, frac[0], rtol=1e-9)
+    s1 = p.ids.index(p.first_acquired)
+    sp1 = p.satellites[s1]
+    k1 = p.index_at(sp1.search.start_unix_s)
+    lo1, hi1 = wf.non_oscillator_extent_hz()
+    own = (sp1.search.bin_width_hz / 2 + max(-lo1[s1, k1], hi1[s1, k1])) / sp1.carrier_hz
+    assert frac[0] >= own - 1e-12
+    # With a 500 ppb TCXO the oscillator term (+-788 Hz at L1) is a large share of the
+    # first window; once measured the windows shrink [calc: 500e-9 x 1575.42e6 = 787.7 Hz].
+    assert np.median(width_a / width_f) < 0.8
     osc = wf.share_hz["oscillator"]
     gps = [i for i, s in enumerate(p.satellites) if s.signal_id == "GPS-L1CA"]
     assert np.allclose(osc[gps][vis[gps]], 500e-9 * 1575.42e6, rtol=1e-3)
@@ -208,12 +220,13 @@ def test_tabulated_pd_equals_the_detector_formula(demo_plan):
         if not k.size:
             continue
         # Recompute the effective C/N0 of the plan's model and Pd directly.
-        losses = (sc.signal.extra_loss_db + p.bin_design[sp.signal_id].average_loss_db
-                  + p.code_step_loss.average_loss_db)
-        from core.bins import check_coherent_time
+        from core.bins import aligned_transition_loss_db
         from core.signals import SIGNALS
 
-        losses += check_coherent_time(SIGNALS[sp.signal_id], coh_ms / 1000).transition_loss_db
+        sig = SIGNALS[sp.signal_id]
+        losses = (sc.signal.extra_loss_db + p.bin_design[sp.signal_id].average_loss_db
+                  + p.code_step_loss[sp.signal_id].average_loss_db
+                  + aligned_transition_loss_db(coh_ms / 1000, sig.symbol_period_s, sig.code_period_s))
         direct = detection.detection_probability_at_cn0(p.cn0_dbhz[s, k], coh_ms / 1000, n,
                                                         sc.search.false_alarm_per_cell, losses)
         assert np.max(np.abs(np.asarray(direct) - p.pd_first[s, k])) < 1e-5
@@ -267,3 +280,83 @@ def test_cli_plan_exports(tmp_path, capsys):
     assert len(rows) >= 12
     assert main(["plan", str(DEMO), "--export-dir", str(tmp_path / "missing")]) == 2
     assert "missing" in capsys.readouterr().err
+
+
+def test_failed_propagation_samples_do_not_break_the_plan(demo_plan):
+    """SGP4 failures arrive as NaN samples with valid False (core.predict): the plan must
+    treat them as not visible, not crash (search costs need finite inputs)."""
+    import copy
+
+    g = copy.copy(demo_plan.prepared)
+    pred = copy.copy(g.prediction)
+    s = 3
+    for name in ("elevation_deg", "azimuth_deg", "doppler_hz", "range_rate_m_s", "range_m",
+                 "doppler_rate_hz_s", "elevation_rate_deg_s"):
+        arr = getattr(pred, name).copy()
+        arr[s, 100:] = np.nan
+        setattr(pred, name, arr)
+    pred.valid = pred.valid.copy()
+    pred.valid[s, 100:] = False
+    g.prediction = pred
+    g.visible = g.visible & pred.valid
+    g.window_cache = {}
+    p = make_plan(demo_plan.scenario, prepared=g, monte_carlo=False)
+    assert p.timeline.first_fix_unix_s is not None
+    for seg in p.timeline.segments:
+        if seg.sat_id == p.ids[s] and seg.kind == "search":
+            assert seg.start_unix_s < p.times.unix_s[100]
+
+
+def test_table_after_columns_match_the_search_when_after(demo_plan):
+    from core.plan import plan_rows
+
+    rows = {r["id"]: r for r in plan_rows(demo_plan)}
+    after = [sp for sp in demo_plan.satellites if sp.search and sp.search.state == "after"]
+    assert after
+    for sp in after:
+        r = rows[sp.sat_id]
+        assert r["after_low_hz"] == pytest.approx(r["low_hz"], abs=0.01)
+        assert r["after_high_hz"] == pytest.approx(r["high_hz"], abs=0.01)
+        assert r["after_bins"] == r["bins"]
+
+
+def test_boc_signals_get_the_boc_code_step_loss(demo_plan):
+    from core.codephase import code_step_loss
+
+    step = demo_plan.scenario.search.code_step_chips
+    assert demo_plan.code_step_loss["GAL-E1"] == code_step_loss(step, "BOC11")
+    assert demo_plan.code_step_loss["GPS-L1CA"] == code_step_loss(step, "BPSK")
+    assert demo_plan.code_step_loss["GAL-E1"].average_loss_db > demo_plan.code_step_loss["GPS-L1CA"].average_loss_db
+
+
+def test_unknown_glonass_channel_window_holds_every_channel(tmp_path):
+    """Without the mapping file the GLONASS windows must contain the window planned on
+    each true carrier k = -7..+6 (recomputed here with the channel set on the entry)."""
+    from dataclasses import replace as dc_replace
+
+    from core.demo import write_demo
+    from core.plan import _uncertainty
+    from core.predict import predict
+    from core.windows import doppler_windows
+
+    path = write_demo(tmp_path)
+    text = path.read_text().replace('mapping = "demo_glonass_mapping.txt"\n', "")
+    path.write_text(text)
+    p = make_plan(load_scenario(path), monte_carlo=False)
+    assert any("channel k unknown" in w for w in p.warnings)
+    g = p.prepared
+    rows = [i for i, e in enumerate(g.orbits.entries) if e.info.system == "R"]
+    sub_entries = [g.orbits.entries[i] for i in rows]
+    unc = _uncertainty(p.scenario)
+    for k in (-7, -3, 0, 4, 6):
+        from core.orbits import OrbitSet
+
+        ents = [dc_replace(e, info=dc_replace(e.info, glonass_k=k)) for e in sub_entries]
+        pk = predict(OrbitSet(ents), g.site, g.grid, signals=["GLO-L1OF"])
+        wk = doppler_windows(pk, unc, 0.0)
+        vis = p.visible[rows]
+        # The k-window without any orbit margin must sit inside the widened window less
+        # its margin share (the widening is what holds the carrier offset).
+        lo_ok = wk.low_hz[vis] >= (p.windows_first.low_hz[rows][vis] - 1e-6)
+        hi_ok = wk.high_hz[vis] <= (p.windows_first.high_hz[rows][vis] + 1e-6)
+        assert lo_ok.all() and hi_ok.all(), k

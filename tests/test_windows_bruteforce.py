@@ -23,7 +23,7 @@ from sgp4.api import Satrec
 from core.geodesy import Site
 from core.orbits import OrbitEntry, OrbitSet, SatelliteInfo
 from core.predict import predict
-from core.windows import Uncertainty, apparent_doppler_hz, doppler_windows, shifted_predictions
+from core.windows import Uncertainty, apparent_doppler_hz, doppler_windows, shift_summary
 
 C = 299_792_458.0
 L1 = 1575.42e6
@@ -52,6 +52,7 @@ CASES = [
     ((47.5, 8.0, 500.0), Uncertainty(30e3, 200.0, 5.0, 40.0, 5.0, 100.0, 500.0), 1585735200.0),
     ((-33.9, -70.6, 520.0), Uncertainty(100e3, 1000.0, 60.0, 70.0, 10.0, -300.0, 2000.0), 1585760000.0),
     ((35.0, 139.0, 10.0), Uncertainty(50e3, 500.0, 25.0, 60.0, 5.0, 1000.0, 1000.0), 1585790000.0),
+    ((60.2, 24.9, 30.0), Uncertainty(10e3, 100.0, 600.0, 30.0, 3.0, 0.0, 100.0), 1585800000.0),
     ((78.2, 15.6, 50.0), Uncertainty(5e3, 50.0, 0.5, 30.0, 2.0, 0.0, 50.0), 1585780000.0),
 ]
 
@@ -65,7 +66,7 @@ def test_window_contains_every_draw_and_is_tight(site_t, unc, t0):
     orbits, sky, ts = _gps_tle()
     site = Site(*site_t)
     pred = predict(orbits, site, np.array([t0 - 30.0, t0, t0 + 30.0]))
-    w = doppler_windows(pred, unc, shifted=shifted_predictions(orbits, site, pred.times, unc.time_s))
+    w = doppler_windows(pred, unc, shifted=shift_summary(orbits, site, pred.times, unc.time_s))
     rng = np.random.default_rng(7)
     n = 3000
     boundary = np.arange(n) < n // 2
