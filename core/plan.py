@@ -496,8 +496,9 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
                                                               seg.start_unix_s))
                   for seg in first_tl.segments if seg.kind == "search" and seg.search_state == "first"]
     if first_id is not None and candidates:
-        frac = max(oscillator_fraction_after(w_first, pred.carrier_hz, s1, k1, float(half[s1, 0]))
-                   for s1, k1 in candidates)
+        c_s = [c[0] for c in candidates]
+        c_k = [c[1] for c in candidates]
+        frac = oscillator_fraction_after(w_first, pred.carrier_hz, c_s, c_k, half[c_s, 0])
         w_after = _widen_for_unknown_k(
             windows_after_first_acquisition(w_raw, pred.carrier_hz, frac),
             unknown_k)

@@ -244,17 +244,20 @@ def doppler_windows(pred: Prediction, unc: Uncertainty, orbit_margin_hz: np.ndar
     return DopplerWindows(nominal, low, high, lows, highs)
 
 
-def oscillator_fraction_after(w: DopplerWindows, carrier_hz: np.ndarray, sat: int, k: int,
-                               bin_half_width_hz: float) -> float:
-    """Fractional oscillator uncertainty once satellite ``sat`` is acquired at index k.
+def oscillator_fraction_after(w: DopplerWindows, carrier_hz: np.ndarray, sats, ks,
+                               bin_half_width_hz) -> float:
+    """Fractional oscillator uncertainty once one of the satellites ``sats`` (acquired at
+    grid indices ``ks``) is acquired, the worst of them.
 
     The acquisition fixes that satellite's apparent Doppler to within half a bin; its
     predicted true Doppler is uncertain by its own non-oscillator terms U1. The oscillator
     is then known to within (half bin + U1) / f_c1.
     """
     lo1, hi1 = w.non_oscillator_extent_hz()
-    u1 = max(-lo1[sat, k], hi1[sat, k])
-    return (bin_half_width_hz + float(u1)) / float(carrier_hz[sat])
+    sats, ks = np.asarray(sats, dtype=int), np.asarray(ks, dtype=int)
+    u1 = np.maximum(-lo1[sats, ks], hi1[sats, ks])
+    half = np.broadcast_to(np.asarray(bin_half_width_hz, dtype=float), u1.shape)
+    return float(np.max((half + u1) / np.asarray(carrier_hz, dtype=float)[sats]))
 
 
 def windows_after_first_acquisition(w: DopplerWindows, carrier_hz: np.ndarray,
