@@ -228,8 +228,15 @@ def bin_centres(low_hz: float, high_hz: float, bin_width_hz: float) -> np.ndarra
     high = float(_float_array(high_hz, "high_hz"))
     width = float(_float_array(bin_width_hz, "bin_width_hz", positive=True))
     n = int(bin_count(low, high, width))
+    if n > MAX_LISTED_BINS:
+        raise InputError(f"{n} bins of {width:g} Hz: more than the {MAX_LISTED_BINS} that are "
+                         "listed one by one; narrow the span", field="span_hz")
     mid = 0.5 * (low + high)
     return mid + (np.arange(n) - 0.5 * (n - 1)) * width
+
+
+# Longest list of bin centres produced for one window (a +-50 kHz span at 1 Hz bins).
+MAX_LISTED_BINS = 100_000
 
 
 @dataclass(frozen=True)

@@ -44,3 +44,7 @@ class ScenarioError(InputError):
 
 class ComputationError(AcqplanError):
     """A computation could not produce a result (e.g. nothing visible)."""
+
+
+class Cancelled(AcqplanError):
+    """A long computation was stopped by its cancel callback (not an error to report)."""

@@ -31,7 +31,7 @@ import numpy as np
 from . import bins as binlib
 from . import codephase, detection
 from . import timeline as tl
-from .errors import ComputationError, InputError
+from .errors import Cancelled, ComputationError, InputError
 from .geodesy import Site
 from .orbit_margin import L1_HZ, margin_extrapolated, orbit_margin_hz, orbit_range_margin_m
 from .orbits import OrbitFileInfo, OrbitSet
@@ -53,8 +53,7 @@ ProgressFn = Callable[[float, str], None]
 CancelFn = Callable[[], bool]
 
 
-class PlanCancelled(Exception):
-    """Raised inside make_plan when the cancel callback returns True."""
+PlanCancelled = Cancelled   # raised inside make_plan when the cancel callback returns True
 
 
 # --- geometry, computed once per orbit/site/time/signal/mask set ---------------------
@@ -518,7 +517,7 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
     ttff = None
     if monte_carlo:
         _report(progress, 0.85, "Monte Carlo of the time to first fix")
-        ttff = tl.monte_carlo_ttff(inputs, sc.search.monte_carlo_runs, sc.search.seed)
+        ttff = tl.monte_carlo_ttff(inputs, sc.search.monte_carlo_runs, sc.search.seed, cancel)
         warnings.extend(ttff.warnings)
 
     # Per-satellite search summaries from the timeline's first search of each satellite.
@@ -570,7 +569,8 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
     return plan
 
 
-def add_monte_carlo(plan: Plan, scenario: Scenario | None = None) -> Plan:
+def add_monte_carlo(plan: Plan, scenario: Scenario | None = None,
+                    cancel: CancelFn | None = None) -> Plan:
     """A copy of ``plan`` with the seeded Monte Carlo TTFF statistics of ``scenario``
     (default: the plan's own) computed on the plan's timeline inputs; the plan itself is
     not changed (another thread may be showing it)."""
@@ -579,7 +579,7 @@ def add_monte_carlo(plan: Plan, scenario: Scenario | None = None) -> Plan:
     sc = scenario or plan.scenario
     t0 = _time.perf_counter()
     inputs = plan.timeline_inputs  # type: ignore[attr-defined]
-    ttff = tl.monte_carlo_ttff(inputs, sc.search.monte_carlo_runs, sc.search.seed)
+    ttff = tl.monte_carlo_ttff(inputs, sc.search.monte_carlo_runs, sc.search.seed, cancel)
     out = _replace(plan, scenario=sc, ttff=ttff,
                    warnings=_dedupe(plan.warnings + list(ttff.warnings)),
                    compute_s=plan.compute_s + _time.perf_counter() - t0)

@@ -13,6 +13,7 @@ approaches [trade]. Geometric (instantaneous) range is used, as skyfield's
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
@@ -254,6 +255,8 @@ def passes(orbits: OrbitSet, site: Site, start: datetime | float, end: datetime 
     b = end if isinstance(end, float | int) else to_unix_s(end)
     if b <= a:
         raise InputError("end must be after start", field="end")
+    if not (math.isfinite(step_s) and step_s > 0):
+        raise InputError(f"step {step_s} s must be a positive number", field="step_s")
     if prediction is None:
         n = max(2, int(np.ceil((b - a) / step_s)) + 1)
         prediction = predict(orbits, site, np.linspace(a, b, n))

@@ -66,7 +66,7 @@ from typing import Any
 
 import numpy as np
 
-from .errors import InputError
+from .errors import Cancelled, InputError
 from .timeutil import iso_z
 
 SEARCH = "search"
@@ -750,8 +750,12 @@ def _empirical_quantile(sorted_samples: np.ndarray, p: float) -> float:
     return float(sorted_samples[idx])
 
 
-def monte_carlo_ttff(inputs: TimelineInputs, n_runs: int, seed: int) -> TtffStats:
-    """TTFF statistics over ``n_runs`` runs with drawn search times (seeded, reproducible)."""
+def monte_carlo_ttff(inputs: TimelineInputs, n_runs: int, seed: int,
+                     cancel: Callable[[], bool] | None = None) -> TtffStats:
+    """TTFF statistics over ``n_runs`` runs with drawn search times (seeded, reproducible).
+
+    ``cancel`` is polled every 64 runs; when it returns True, :class:`core.errors.Cancelled`
+    is raised."""
     if int(n_runs) != n_runs or n_runs < 1:
         raise InputError(f"{n_runs} runs: need a whole number >= 1", field="n_runs")
     n_runs = int(n_runs)
@@ -761,6 +765,8 @@ def monte_carlo_ttff(inputs: TimelineInputs, n_runs: int, seed: int) -> TtffStat
     samples = np.full(n_runs, math.inf)
     unsearchable: dict[int, float] = {}
     for i in range(n_runs):
+        if cancel is not None and i % 64 == 0 and cancel():
+            raise Cancelled(f"Monte Carlo stopped after {i} of {n_runs} runs")
         run = _simulate(inputs, duration, record=False, stop_at_fix=True)
         if run.first_fix_unix_s is not None:
             samples[i] = run.first_fix_unix_s - t0

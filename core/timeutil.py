@@ -176,8 +176,8 @@ class TimeGrid:
 def time_grid(start: datetime, end: datetime, step_s: float) -> TimeGrid:
     """Instants from start to end inclusive (end added if the step does not land on it)."""
     a, b = to_unix_s(start), to_unix_s(end)
-    if not step_s > 0:
-        raise InputError(f"step {step_s} s must be positive", field="step_s")
+    if not (np.isfinite(step_s) and step_s > 0):
+        raise InputError(f"step {step_s} s must be a positive number", field="step_s")
     if b < a:
         raise InputError(f"end {end.isoformat()} is before start {start.isoformat()}", field="end")
     n = int(np.floor((b - a) / step_s + 1e-9))

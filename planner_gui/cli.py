@@ -399,6 +399,10 @@ def main(argv: Sequence[str] | None = None) -> int:
         where = f"{name}: " if name else ""
         print(f"acqplan {args.command}: {where}{err.strerror or err}", file=sys.stderr)
         return EXIT_BAD_INPUT
+    except Exception as err:  # a defect, not bad input: still one line, no traceback
+        print(f"acqplan {args.command}: internal error ({type(err).__name__}: {err}); "
+              "please report it with the command line used", file=sys.stderr)
+        return EXIT_FAILURE
 
 
 if __name__ == "__main__":

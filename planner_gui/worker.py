@@ -104,7 +104,7 @@ def compute(request: PlanRequest, progress: Callable[[float, str], None] | None 
             raise PlanCancelled()
         if progress is not None:
             progress(0.85, "Monte Carlo of the time to first fix")
-        full = add_monte_carlo(plan, sc)
+        full = add_monte_carlo(plan, sc, cancel=cancel)
         yield PlanResult(request.serial, sc, full, True, _loss_curves(full),
                          time.perf_counter() - t0)
         return
@@ -169,7 +169,7 @@ class PlanWorker(QThread):
         if dropped is not None:
             self.cancelled.emit(dropped.serial)
 
-    def shutdown(self, timeout_ms: int = 5000) -> None:
+    def shutdown(self, timeout_ms: int = 30000) -> None:
         with self._lock:
             self._quit = True
             self._pending = None

@@ -205,3 +205,21 @@ def test_several_scenario_problems_on_one_line(tmp_path, capsys):
     lines = err.strip().splitlines()
     assert len(lines) == 1
     assert "site.lat_deg" in lines[0] and "receiver.channels" in lines[0] and "line" in lines[0]
+
+
+@pytest.mark.parametrize("argv, field", [
+    (["bins", "--coherent-ms", "1", "--max-loss-db", "1", "--span-hz", "-1e12,1e12"], "span_hz"),
+    (["bins", "--coherent-ms", "nan", "--max-loss-db", "1"], "coherent"),
+])
+def test_extreme_numbers_give_one_line(capsys, argv, field):
+    code, _, err = run_cli(capsys, *argv)
+    assert code == 2 and len(err.strip().splitlines()) == 1 and field in err
+
+
+@requires_orbit_data
+def test_nan_step_gives_one_line(capsys):
+    f = str(ORBIT_DATA / "tle" / "perylune_gps-ops_2020-04-01.txt")
+    for cmd in ("passes", "doppler"):
+        code, _, err = run_cli(capsys, cmd, "--orbits", f, "--site", "47,8,0", "--start",
+                               "2020-04-01T06:00:00Z", "--end", "2020-04-01T07:00:00Z", "--step", "nan")
+        assert code == 2 and len(err.strip().splitlines()) == 1 and "step" in err, (cmd, err)

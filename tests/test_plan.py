@@ -360,3 +360,19 @@ def test_unknown_glonass_channel_window_holds_every_channel(tmp_path):
         lo_ok = wk.low_hz[vis] >= (p.windows_first.low_hz[rows][vis] - 1e-6)
         hi_ok = wk.high_hz[vis] <= (p.windows_first.high_hz[rows][vis] + 1e-6)
         assert lo_ok.all() and hi_ok.all(), k
+
+
+def test_monte_carlo_stops_on_cancel(demo_plan):
+    from core.errors import Cancelled
+    from core.plan import add_monte_carlo
+
+    calls = []
+
+    def cancel():
+        calls.append(1)
+        return len(calls) > 2
+
+    with pytest.raises(Cancelled):
+        add_monte_carlo(demo_plan, demo_plan.scenario.with_changes(search={"monte_carlo_runs": 100_000}),
+                        cancel=cancel)
+    assert len(calls) == 3          # polled every 64 runs: stopped after 128 of 100 000
