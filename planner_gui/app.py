@@ -44,28 +44,58 @@ def _application(argv: list[str]):
 
 def install_excepthook(window: Any, show_dialog: bool = True):
     """Report uncaught exceptions in the window (Messages panel + message bar) and keep
-    the event loop running; returns the previous hook."""
-    previous = sys.excepthook
+    the event loop running; returns the previous ``sys.excepthook``.
 
-    def hook(exc_type, exc, tb):
-        if issubclass(exc_type, KeyboardInterrupt):
-            previous(exc_type, exc, tb)
-            return
+    Faults from any thread (``sys.excepthook`` and ``threading.excepthook``) are relayed
+    to the GUI thread by a queued signal, so widgets are only touched there; at most one
+    fault dialog is open at a time (later faults only go to the Messages panel).
+    """
+    import threading
+
+    from PySide6.QtCore import QObject, Qt, Signal
+
+    class _Relay(QObject):
+        fault = Signal(object, object, object)
+
+    previous = sys.excepthook
+    relay = _Relay(window)          # lives on the GUI thread with the window
+    state: dict[str, Any] = {"box": None}
+
+    def on_fault(exc_type, exc, tb):
         try:
             window.report_fault(exc_type, exc, tb)
-            if show_dialog and window.interactive:
+            box = state["box"]
+            if show_dialog and window.interactive and not (box is not None and box.isVisible()):
                 from PySide6.QtWidgets import QMessageBox
 
                 box = QMessageBox(QMessageBox.Icon.Warning, "acqplan: internal fault",
                                   f"Something went wrong inside acqplan:\n{exc_type.__name__}: {exc}\n\n"
                                   "The window keeps running; details are in the Messages panel.",
                                   parent=window)
+                box.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
                 box.setModal(False)
                 box.open()
+                state["box"] = box
+                box.destroyed.connect(lambda *_: state.update(box=None))
         except Exception:  # never let the hook itself fail
             previous(exc_type, exc, tb)
 
+    relay.fault.connect(on_fault)   # direct on the GUI thread, queued from others
+
+    def hook(exc_type, exc, tb):
+        if issubclass(exc_type, KeyboardInterrupt):
+            previous(exc_type, exc, tb)
+            return
+        relay.fault.emit(exc_type, exc, tb)
+
+    def thread_hook(args):
+        if args.exc_type is SystemExit:
+            return
+        relay.fault.emit(args.exc_type, args.exc_value, args.exc_traceback)
+
     sys.excepthook = hook
+    threading.excepthook = thread_hook
+    window._fault_relay = relay     # keep it alive with the window
     return previous
 
 
@@ -121,6 +151,9 @@ def run_gui(args: Any) -> int:
         temp_settings = tempfile.TemporaryDirectory(prefix="acqplan-settings-")
         settings_mod.use_settings_folder(temp_settings.name)
     app = _application([sys.argv[0]])
+    # The worker's event-driven timeline and Monte Carlo are pure Python: a shorter
+    # switch interval (default 5 ms) lets the GUI thread take the interpreter sooner.
+    sys.setswitchinterval(0.001)
 
     from .main_window import PlannerWindow
 

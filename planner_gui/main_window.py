@@ -176,9 +176,28 @@ class CursorBar(QWidget):
         lay.addWidget(self.label)
         self.back.clicked.connect(lambda: self.slider.setValue(self.slider.value() - 1))
         self.forward.clicked.connect(lambda: self.slider.setValue(self.slider.value() + 1))
-        self.slider.valueChanged.connect(model.set_cursor)
+        # A drag emits a value per pixel: while dragging keep the last and apply it once
+        # per event-loop turn, so the views redraw for the newest position only.
+        self._cursor_pending: int | None = None
+        self.slider.valueChanged.connect(self._queue_cursor)
+        self.slider.sliderReleased.connect(self._apply_cursor)
         model.planChanged.connect(self._on_plan)
         model.cursorChanged.connect(self._on_cursor)
+
+    def _queue_cursor(self, value: int) -> None:
+        if not self.slider.isSliderDown():
+            self._cursor_pending = None
+            self.model.set_cursor(value)
+            return
+        first = self._cursor_pending is None
+        self._cursor_pending = value
+        if first:
+            QTimer.singleShot(0, self._apply_cursor)
+
+    def _apply_cursor(self) -> None:
+        value, self._cursor_pending = self._cursor_pending, None
+        if value is not None:
+            self.model.set_cursor(value)
 
     def _on_plan(self, result: PlanResult) -> None:
         n = len(result.plan.times)
@@ -613,6 +632,8 @@ class PlannerWindow(QMainWindow):
             return
         self.save_layout()
         self.worker.shutdown()
+        for job in getattr(self, "_jobs", []):
+            job.join()
         event.accept()
 
     # drag and drop: scenario files open, other files are added as orbit files
@@ -654,6 +675,7 @@ class PlannerWindow(QMainWindow):
 
     def _on_edited(self, _dotted: str) -> None:
         sc = self._validated_form()
+        self._form_invalid = sc is None
         self._update_title_later()
         if sc is None:
             self.show_problem("Some inputs are not valid (marked in the set-up form); the plan "
@@ -721,9 +743,11 @@ class PlannerWindow(QMainWindow):
         self.model.set_result(result)
         plan = result.plan
         self.messages.set_plan_warnings(plan.warnings)
-        if self.message_bar.kind in ("error", "input"):
-            self.message_bar.clear()
-        self.panel.show_problems([])
+        # A result of an earlier, valid edit must not clear the marks of a newer invalid one.
+        if not getattr(self, "_form_invalid", False):
+            if self.message_bar.kind in ("error", "input"):
+                self.message_bar.clear()
+            self.panel.show_problems([])
         if result.final:
             self._hide_progress()
         else:
@@ -784,7 +808,7 @@ class PlannerWindow(QMainWindow):
         """Put a problem in the message bar and the Messages panel."""
         self.message_bar.show_message(text, "note" if kind == "note" else ("input" if kind == "input" else "error"))
         if kind != "input" or text != self._last_problem:
-            self.messages.add_message("note" if kind == "note" else "input", text, details)
+            self.messages.add_message({"note": "note", "input": "input"}.get(kind, "error"), text, details)
         self._last_problem = text
         self.problemShown.emit(text)
 
@@ -887,9 +911,18 @@ class PlannerWindow(QMainWindow):
                 return
             self.exportFinished.emit(str(path), "")
 
-        thread = threading.Thread(target=job, name="acqplan-pdf", daemon=True)
-        thread.start()
+        thread = self._start_job(job, "acqplan-pdf")
         self.statusBar().showMessage(f"writing {path}…", 4000)
+        return thread
+
+    def _start_job(self, job, name: str) -> threading.Thread:
+        """Run a file-writing job in a (non-daemon) thread that closing the window waits
+        for, so a quit never kills an export half-way."""
+        jobs = getattr(self, "_jobs", [])
+        self._jobs = [t for t in jobs if t.is_alive()]
+        thread = threading.Thread(target=job, name=name)
+        self._jobs.append(thread)
+        thread.start()
         return thread
 
     def export_data(self) -> None:
@@ -928,13 +961,12 @@ class PlannerWindow(QMainWindow):
             writer = {"csv": export_search_csv, "windows": export_windows_csv}.get(fmt, export_plan_json)
             try:
                 writer(plan, path)
-            except (AcqplanError, OSError) as err:
+            except Exception as err:  # report every failure in the window
                 self.exportFinished.emit(str(path), f"Export failed: {error_text(err)}")
                 return
             self.exportFinished.emit(str(path), "")
 
-        thread = threading.Thread(target=job, name="acqplan-export", daemon=True)
-        thread.start()
+        thread = self._start_job(job, "acqplan-export")
         self.statusBar().showMessage(f"writing {path}…", 4000)
         return thread
 

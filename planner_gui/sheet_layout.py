@@ -65,24 +65,6 @@ def tint(hex_colour: str, amount: float) -> str:
     return "#{:02X}{:02X}{:02X}".format(*mix)
 
 
-# --------------------------------------------------------------------------- work-around
-
-_KEPT_NONE: list[None] = []
-
-
-def _keep_none_references(n: int) -> None:
-    """Add ``n`` permanent references to None (they must outlive module teardown)."""
-    try:
-        import ctypes
-
-        incref = ctypes.PYFUNCTYPE(None, ctypes.c_void_p)(("Py_IncRef", ctypes.pythonapi))
-        addr = id(None)
-        for _ in range(n):
-            incref(addr)
-    except (ImportError, AttributeError, OSError):
-        _KEPT_NONE.extend([None] * n)
-
-
 # --------------------------------------------------------------------------- geometry
 
 @dataclass(frozen=True)

@@ -1166,7 +1166,7 @@ def ensure_gui_application():
     return app
 
 
-def _pdf_writer(target: str, paper: str):
+def _pdf_writer(target, paper: str):
     from PySide6.QtCore import QMarginsF
     from PySide6.QtGui import QPageLayout, QPageSize, QPdfWriter
 
@@ -1185,45 +1185,36 @@ def write_sheet_pdf(plan: Plan, path: str | os.PathLike[str], paper: str = "a4",
                     on_pages: Callable[[list[Page]], None] | None = None) -> int:
     """Write the sheets as PDF (``paper`` "a4" or "letter", portrait); returns the page count.
 
-    Rendered to a temporary file in the target folder and renamed over ``path`` only when
-    complete; any failure raises InputError and leaves no partial file.
+    Rendered in memory and written with core.export.write_bytes_atomic (temporary file
+    in the target folder, fsync, rename; an existing file keeps its mode): any failure
+    raises InputError and leaves no partial file.
     """
+    from PySide6.QtCore import QBuffer, QIODevice
+
+    from core.export import write_bytes_atomic
+
     paper = paper.lower()
     if paper not in PAPER_MM:
         raise InputError(f"'{paper}' is not a paper size (a4 or letter)", field="paper")
     target = Path(path)
     folder = target.parent if str(target.parent) else Path(".")
     if not folder.is_dir():
-        raise InputError(f"folder {folder} does not exist", file=str(target))
+        why = "is not a folder" if folder.exists() else "does not exist"
+        raise InputError(f"cannot write the PDF: {folder} {why}", file=str(target))
     ensure_gui_application()
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=folder)
-        os.close(fd)
-    except OSError as err:
-        raise InputError(f"cannot write here ({err.strerror})", file=str(target)) from None
-    try:
-        writer = _pdf_writer(tmp, paper)
-        pages = paint_sheets(plan, writer, generated_unix_s=generated_unix_s)
-        del writer                # flushes and closes the file
-        if os.path.getsize(tmp) == 0:
-            raise InputError("the PDF could not be written", file=str(target))
-        os.replace(tmp, target)
-    except OSError as err:
-        _unlink(tmp)
-        raise InputError(f"cannot write the PDF ({err.strerror or err})", file=str(target)) from None
-    except BaseException:
-        _unlink(tmp)
-        raise
+    buf = QBuffer()
+    buf.open(QIODevice.OpenModeFlag.WriteOnly)
+    writer = _pdf_writer(buf, paper)
+    pages = paint_sheets(plan, writer, generated_unix_s=generated_unix_s)
+    del writer                # flushes the PDF into the buffer
+    data = bytes(buf.data())
+    buf.close()
+    if not data:
+        raise InputError("the PDF could not be rendered", file=str(target))
+    write_bytes_atomic(target, data, what="write the PDF")
     if on_pages is not None:
         on_pages(pages)
     return len(pages)
-
-
-def _unlink(p: str) -> None:
-    try:
-        os.unlink(p)
-    except OSError:
-        pass
 
 
 # --------------------------------------------------------------------------- window

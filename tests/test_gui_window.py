@@ -491,9 +491,12 @@ def test_table_sorts_numerically(qtbot, window, demo):
 
 
 def test_exception_hook_reports_and_keeps_running(qtbot, window):
+    import threading
+
     from planner_gui.app import install_excepthook
 
-    previous = install_excepthook(window, show_dialog=False)
+    previous, previous_thread_hook = sys.excepthook, threading.excepthook
+    install_excepthook(window, show_dialog=False)
     try:
         try:
             raise RuntimeError("deliberate fault for the test")
@@ -501,6 +504,7 @@ def test_exception_hook_reports_and_keeps_running(qtbot, window):
             sys.excepthook(*sys.exc_info())
     finally:
         sys.excepthook = previous
+        threading.excepthook = previous_thread_hook
     faults = window.messages.messages("fault")
     assert any("deliberate fault for the test" in f for f in faults)
     assert "Traceback" not in window.message_bar.text.text()
@@ -609,3 +613,24 @@ def test_form_round_trips_every_key(window, demo):
         again = Scenario.from_dict(window.panel.to_dict(), base_dir=sc.base_dir)
         assert again == sc
         assert again.receiver.signals == sc.receiver.signals          # order kept
+
+
+def test_exception_in_a_plain_thread_reaches_the_window(qtbot, window):
+    import threading
+
+    from planner_gui.app import install_excepthook
+
+    previous = install_excepthook(window, show_dialog=False)
+    previous_thread_hook = threading.excepthook
+    try:
+        def boom():
+            raise ValueError("fault in a worker thread for the test")
+
+        t = threading.Thread(target=boom)
+        t.start()
+        t.join()
+        qtbot.waitUntil(lambda: any("fault in a worker thread" in f
+                                    for f in window.messages.messages("fault")), timeout=5000)
+    finally:
+        sys.excepthook = previous
+        threading.excepthook = previous_thread_hook

@@ -12,7 +12,7 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QPointF, Qt
 from PySide6.QtGui import QPainterPath
-from PySide6.QtWidgets import QGraphicsPathItem, QLabel, QWidget
+from PySide6.QtWidgets import QGraphicsItem, QGraphicsPathItem, QLabel, QWidget
 
 from ..models import PlanModel
 from ..style import SYSTEM_STYLES, style_for
@@ -101,6 +101,9 @@ class SkyView(ViewFrame):
         for system in SYSTEM_STYLES:
             item = pg.PlotDataItem([], [], pen=pen(system, 1.3, 200), connect="finite")
             item.setZValue(1)
+            # The tracks only change with the plan: cache their pixels so a cursor step
+            # (which moves the markers above them) does not redraw every curve.
+            item.curve.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
             pi.addItem(item)
             self.tracks[system] = item
         self.selected_track = pg.PlotDataItem([], [], pen=cosmetic_pen("#000000", 3.0), connect="finite")

@@ -22,6 +22,7 @@ KINDS = {
     "plan": ("plan warning", "#8A5A00"),
     "input": ("input problem", "#A33A00"),
     "note": ("note", "#2B6C8F"),
+    "error": ("error", "#A31F1F"),
     "fault": ("internal fault", "#7A1F1F"),
 }
 KIND_ROLE = Qt.ItemDataRole.UserRole + 1
