@@ -692,6 +692,8 @@ class PlannerWindow(QMainWindow):
             self.show_problem(f"{missing[0]}: orbit file not found (moved or deleted?); the plan "
                               "on screen is from the last valid inputs.", kind="error")
             return
+        if self._computing and sc == getattr(self, "_requested", None):
+            return          # the same inputs again (e.g. a combo box's activated + editingFinished)
         self.request_plan(sc)
 
     def _update_title_later(self) -> None:
@@ -701,6 +703,7 @@ class PlannerWindow(QMainWindow):
         plan = self.model.plan
         prepared = getattr(plan, "prepared", None) if plan is not None else None
         serial = self.worker.submit(sc, prepared)
+        self._requested = sc
         self._latest_serial = serial
         self._computing = True
         self.act_cancel.setEnabled(True)

@@ -47,6 +47,7 @@ class PlanModel(QObject):
     """Current plan + cursor index + selected satellite id."""
 
     planChanged = Signal(object)          # PlanResult
+    ttffChanged = Signal(object)          # PlanResult: same plan, Monte Carlo TTFF added
     cursorChanged = Signal(int)           # grid index
     selectionChanged = Signal(object)     # sat id (str) or None
 
@@ -99,6 +100,15 @@ class PlanModel(QObject):
     # -- write
     def set_result(self, result: PlanResult) -> None:
         """Show a new plan; the cursor keeps its UTC instant, the selection its satellite."""
+        old = self._result
+        if (old is not None and old.serial == result.serial
+                and result.plan.timeline is old.plan.timeline
+                and result.plan.windows_first is old.plan.windows_first):
+            # The second stage of one request: only the TTFF statistics are new, so the
+            # views that show them update and the rest keep what they drew.
+            self._result = result
+            self.ttffChanged.emit(result)
+            return
         old_t = self.cursor_unix_s
         self._result = result
         self._generation += 1

@@ -111,6 +111,7 @@ class ChannelView(ViewFrame):
         vb.sigResized.connect(self._update_labels)
         self.plot.scene().sigMouseClicked.connect(self._clicked)
         model.planChanged.connect(self._on_plan)
+        model.ttffChanged.connect(self._on_plan)
         model.cursorChanged.connect(self._on_cursor)
         model.selectionChanged.connect(self._on_selection)
 
