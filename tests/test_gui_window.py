@@ -444,7 +444,9 @@ def test_stale_results_are_dropped(qtbot, window, demo):
 
 def test_progress_and_cancel_keep_the_previous_plan(qtbot, window, demo):
     before = open_demo(qtbot, window, demo).plan
-    sc = window.scenario.with_changes(time={"step_s": 5.0})        # new geometry: seconds
+    # New geometry and a long Monte Carlo (polled for cancel every 64 runs): this request
+    # cannot finish before the cancel below arrives.
+    sc = window.scenario.with_changes(time={"step_s": 5.0}, search={"monte_carlo_runs": 100_000})
     window.request_plan(sc)
     qtbot.waitUntil(lambda: window.progress.isVisible(), timeout=WAIT_MS)
     assert window.cancel_button.isVisible()
