@@ -636,3 +636,13 @@ def test_exception_in_a_plain_thread_reaches_the_window(qtbot, window):
     finally:
         sys.excepthook = previous
         threading.excepthook = previous_thread_hook
+
+
+def test_messages_panel_keeps_a_bounded_history(window):
+    from planner_gui.views.warnings import MAX_KEPT
+
+    for i in range(MAX_KEPT + 40):
+        window.messages.add_message("note", f"note {i}")
+    notes = window.messages.messages("note")
+    assert len([n for n in notes if n.startswith("note ")]) <= MAX_KEPT
+    assert notes[-1] == f"note {MAX_KEPT + 39}"

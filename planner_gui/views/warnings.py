@@ -26,6 +26,8 @@ KINDS = {
     "fault": ("internal fault", "#7A1F1F"),
 }
 KIND_ROLE = Qt.ItemDataRole.UserRole + 1
+# Messages kept besides the plan warnings (input problems, notes, errors, faults).
+MAX_KEPT = 500
 
 
 class MessagesView(ViewFrame):
@@ -46,7 +48,9 @@ class MessagesView(ViewFrame):
         self.list.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
         self.list.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
         self.list.verticalHeader().setVisible(False)
-        self.list.verticalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+        # Rows are sized once when added (ResizeToContents would re-measure every row on
+        # every change).
+        self.list.verticalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
         header = self.list.horizontalHeader()
         header.setSectionResizeMode(0, QHeaderView.ResizeMode.ResizeToContents)
         header.setSectionResizeMode(1, QHeaderView.ResizeMode.ResizeToContents)
@@ -71,20 +75,29 @@ class MessagesView(ViewFrame):
         items[2].setToolTip(details or text)
         for c, item in enumerate(items):
             self.list.setItem(r, c, item)
+        self.list.resizeRowToContents(r)
         return r
 
     def _kind(self, row: int) -> str:
         return self.list.item(row, 0).data(KIND_ROLE)
 
     def set_plan_warnings(self, warnings: list[str]) -> None:
-        for r in range(self.list.rowCount() - 1, -1, -1):
-            if self._kind(r) == "plan":
-                self.list.removeRow(r)
-        for w in warnings:
-            self._add("plan", w)
+        self.list.setUpdatesEnabled(False)
+        try:
+            for r in range(self.list.rowCount() - 1, -1, -1):
+                if self._kind(r) == "plan":
+                    self.list.removeRow(r)
+            for w in warnings:
+                self._add("plan", w)
+        finally:
+            self.list.setUpdatesEnabled(True)
         self._changed()
 
     def add_message(self, kind: str, text: str, details: str = "") -> None:
+        # Keep at most MAX_KEPT messages besides the plan warnings: the oldest go first.
+        kept = [r for r in range(self.list.rowCount()) if self._kind(r) != "plan"]
+        for r in reversed(kept[:max(0, len(kept) - MAX_KEPT + 1)]):
+            self.list.removeRow(r)
         r = self._add(kind, text, details)
         self.list.scrollToItem(self.list.item(r, 2))
         self._changed()
