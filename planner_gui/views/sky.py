@@ -200,17 +200,67 @@ class SkyView(ViewFrame):
                           "data": self._ids[s]})
         self.markers.setData(spots)
         self._grow_labels(len(rows))
-        for i, t in enumerate(self._labels):
-            if i < len(rows):
-                s = rows[i]
-                t.setText(self._ids[s])
-                t.setPos(float(x[s, k]) + 1.5, float(y[s, k]))
-                t.setVisible(True)
-            else:
-                t.setVisible(False)
+        self._place_labels(rows, x[:, k], y[:, k])
         self.info.setText(f"{len(rows)} satellites above the mask at "
                           f"{utc_text(float(plan.times.unix_s[k]))} UTC; north up, east right")
         self._update_ring()
+
+    # Label places tried in turn around a marker: (anchor, offset in marker radii).
+    _LABEL_PLACES = (((-0.15, 0.5), (1.0, 0.0)), ((1.15, 0.5), (-1.0, 0.0)),
+                     ((0.5, 1.1), (0.0, 1.0)), ((0.5, -0.1), (0.0, -1.0)))
+
+    def _place_labels(self, rows, xs, ys) -> None:
+        """Put each ID beside its marker, on the first side where it overlaps neither an
+        earlier label nor a marker (higher satellites first); else on the right."""
+        from PySide6.QtGui import QFontMetricsF
+
+        px_w, px_h = 0.45, 0.45
+        try:
+            size = self._pi.getViewBox().viewPixelSize()
+            if size[0] > 0 and size[1] > 0:
+                px_w, px_h = float(size[0]), float(size[1])
+        except Exception:  # no geometry yet (first plan before the widget is shown)
+            pass
+        fm = QFontMetricsF(self._label_font)
+        h = fm.height() * px_h
+        r_mark = 6.5 * px_w                      # half the 12 px marker plus a gap
+        taken: list[tuple[float, float, float, float]] = [
+            (float(xs[s]) - r_mark, float(ys[s]) - r_mark, float(xs[s]) + r_mark, float(ys[s]) + r_mark)
+            for s in rows]
+
+        def free(box, own):
+            return all(not (box[0] < b[2] and b[0] < box[2] and box[1] < b[3] and b[1] < box[3])
+                       for i, b in enumerate(taken) if i != own)
+
+        # Nearest the zenith (highest) first: the plot radius is the zenith distance.
+        order = sorted(range(len(rows)), key=lambda i: float(np.hypot(xs[rows[i]], ys[rows[i]])))
+        for t in self._labels[len(rows):]:
+            t.setVisible(False)
+        for i in order:
+            s = rows[i]
+            t = self._labels[i]
+            text = self._ids[s]
+            w = fm.horizontalAdvance(text) * px_w
+            cx, cy = float(xs[s]), float(ys[s])
+            choice = None
+            for anchor, (ox, oy) in self._LABEL_PLACES:
+                px, py = cx + ox * r_mark, cy + oy * r_mark
+                x0 = px - anchor[0] * w
+                y1 = py + anchor[1] * h            # anchor y counts downwards from the top
+                box = (x0, y1 - h, x0 + w, y1)
+                if free(box, own=i):
+                    choice = (anchor, px, py, box)
+                    break
+            if choice is None:
+                anchor, (ox, oy) = self._LABEL_PLACES[0]
+                px, py = cx + ox * r_mark, cy
+                choice = (anchor, px, py, (px, py - h / 2, px + w, py + h / 2))
+            anchor, px, py, box = choice
+            taken.append(box)
+            t.setText(text)
+            t.setAnchor(anchor)
+            t.setPos(px, py)
+            t.setVisible(True)
 
     def _grow_labels(self, n: int) -> None:
         while len(self._labels) < n:
