@@ -357,6 +357,11 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
             f"{', ...' if len(old) > 6 else ''}): windows may be too narrow; use fresher "
             "data or set [search] orbit_margin_hz")
     unc = _uncertainty(sc)
+    if sc.site.horizontal_uncertainty_km > LOCAL_DISC_LIMIT_KM:
+        warnings.append(
+            f"horizontal uncertainty {sc.site.horizontal_uncertainty_km:g} km: the window's position "
+            f"term is a local expansion, checked against brute force up to 3000 km; beyond "
+            f"{LOCAL_DISC_LIMIT_KM:g} km plan a full-range (unassisted) search instead")
     unknown_k = np.array([e.info.system == "R" and e.info.glonass_k is None for e in orbits.entries])
     if unknown_k.any():
         warnings.append(
@@ -632,6 +637,10 @@ def _grid_index_at(grid: TimeGrid, visible: np.ndarray, s: int, unix_s: float) -
         k += 1
     return k
 
+
+# Largest horizontal uncertainty for which the position term (a local expansion about the
+# nominal site) is used without a warning; brute-force checks reach 3000 km.
+LOCAL_DISC_LIMIT_KM = 1000.0
 
 # GLONASS FDMA channels k = -7..+6 [pub: GLONASS ICD 5.1].
 _GLONASS_K_RANGE = (-7, 6)
