@@ -360,7 +360,7 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
     if sc.site.horizontal_uncertainty_km > LOCAL_DISC_LIMIT_KM:
         warnings.append(
             f"horizontal uncertainty {sc.site.horizontal_uncertainty_km:g} km: the window's position "
-            f"term is a local expansion, checked against brute force up to 3000 km; beyond "
+            f"term is a local expansion (the tests check it against brute force up to 100 km); beyond "
             f"{LOCAL_DISC_LIMIT_KM:g} km plan a full-range (unassisted) search instead")
     unknown_k = np.array([e.info.system == "R" and e.info.glonass_k is None for e in orbits.entries])
     if unknown_k.any():
@@ -639,7 +639,8 @@ def _grid_index_at(grid: TimeGrid, visible: np.ndarray, s: int, unix_s: float) -
 
 
 # Largest horizontal uncertainty for which the position term (a local expansion about the
-# nominal site) is used without a warning; brute-force checks reach 3000 km.
+# nominal site) is used without a warning; tests/test_windows_bruteforce.py checks it
+# against brute force up to 100 km (a one-off check of 30-3000 km also held).
 LOCAL_DISC_LIMIT_KM = 1000.0
 
 # GLONASS FDMA channels k = -7..+6 [pub: GLONASS ICD 5.1].
