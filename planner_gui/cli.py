@@ -168,8 +168,10 @@ def cmd_passes(args) -> int:
                           "warnings": orbits.warnings}, indent=2), args.output)
     else:
         _print_warnings(orbits.warnings)
+        # A rise (set) equal to the window start (end) means the satellite was already up
+        # (still up): the two flags say which.
         cols = ["id", "rise", "culmination", "set", "max_elevation_deg", "rise_azimuth_deg",
-                "set_azimuth_deg"]
+                "set_azimuth_deg", "rises_in_window", "sets_in_window"]
         _emit(format_rows(rows, args.format, cols), args.output)
     return EXIT_OK
 

@@ -9,9 +9,9 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QBrush, QColor, QFont, QPainterPath, QPen
-from PySide6.QtWidgets import QHBoxLayout, QLabel, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QGraphicsItem, QHBoxLayout, QLabel, QVBoxLayout, QWidget
 
-from ..style import style_for
+from ..style import SYSTEM_STYLES, style_for
 
 _CONFIGURED = False
 
@@ -48,6 +48,20 @@ def pen(system: str, width: float = 1.0, alpha: int = 255,
     p.setStyle(style)
     p.setCosmetic(True)
     return p
+
+
+def system_curves(plot_item, width: float, alpha: int, z: float = 1.0) -> dict[str, pg.PlotDataItem]:
+    """One empty curve per constellation, added to ``plot_item``. The curves change only
+    with the plan, so their pixels are cached: a cursor or marker moving over them does not
+    redraw every curve."""
+    curves: dict[str, pg.PlotDataItem] = {}
+    for system in SYSTEM_STYLES:
+        item = pg.PlotDataItem([], [], pen=pen(system, width, alpha), connect="finite")
+        item.setZValue(z)
+        item.curve.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
+        plot_item.addItem(item)
+        curves[system] = item
+    return curves
 
 
 def cosmetic_pen(c: str | QColor, width: float = 1.0,

@@ -14,7 +14,7 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QPointF, Qt
 from PySide6.QtGui import QPainterPath
-from PySide6.QtWidgets import QCheckBox, QGraphicsItem, QGraphicsPathItem, QLabel, QWidget
+from PySide6.QtWidgets import QCheckBox, QGraphicsPathItem, QLabel, QWidget
 
 from ..models import PlanModel
 from ..style import OKABE_ITO, SYSTEM_STYLES
@@ -27,6 +27,7 @@ from ._common import (
     cosmetic_pen,
     pen,
     small_font,
+    system_curves,
     utc_text,
 )
 
@@ -72,14 +73,7 @@ class DopplerView(ViewFrame):
         self.after_band = QGraphicsPathItem()
         self.after_band.setZValue(-1)
         pi.addItem(self.after_band)
-        self.lines: dict[str, pg.PlotDataItem] = {}
-        for system in SYSTEM_STYLES:
-            item = pg.PlotDataItem([], [], pen=pen(system, 1.0, 170), connect="finite")
-            item.setZValue(1)
-            # Cached pixels: the cursor line moving over them does not redraw every curve.
-            item.curve.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
-            pi.addItem(item)
-            self.lines[system] = item
+        self.lines = system_curves(pi, 1.0, 170)
         self.selected_line = pg.PlotDataItem([], [], pen=cosmetic_pen("#000000", 2.6), connect="finite")
         self.selected_line.setZValue(3)
         pi.addItem(self.selected_line)

@@ -12,10 +12,10 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QPointF, Qt
 from PySide6.QtGui import QPainterPath
-from PySide6.QtWidgets import QGraphicsItem, QGraphicsPathItem, QLabel, QWidget
+from PySide6.QtWidgets import QGraphicsPathItem, QLabel, QWidget
 
 from ..models import PlanModel
-from ..style import SYSTEM_STYLES, style_for
+from ..style import style_for
 from ._common import (
     ViewFrame,
     brush,
@@ -24,6 +24,7 @@ from ._common import (
     cosmetic_pen,
     pen,
     small_font,
+    system_curves,
     utc_text,
 )
 
@@ -97,15 +98,7 @@ class SkyView(ViewFrame):
             pi.addItem(t)
 
         # One track item per constellation, the selected track, cursor markers, labels.
-        self.tracks: dict[str, pg.PlotDataItem] = {}
-        for system in SYSTEM_STYLES:
-            item = pg.PlotDataItem([], [], pen=pen(system, 1.3, 200), connect="finite")
-            item.setZValue(1)
-            # The tracks only change with the plan: cache their pixels so a cursor step
-            # (which moves the markers above them) does not redraw every curve.
-            item.curve.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
-            pi.addItem(item)
-            self.tracks[system] = item
+        self.tracks = system_curves(pi, 1.3, 200)
         self.selected_track = pg.PlotDataItem([], [], pen=cosmetic_pen("#000000", 3.0), connect="finite")
         self.selected_track.setZValue(2)
         pi.addItem(self.selected_track)
