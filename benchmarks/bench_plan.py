@@ -41,8 +41,8 @@ def timed(fn, repeat=5):
 def bare_propagation(orbits, unix_s):
     from sgp4.api import SatrecArray
 
-    from core.almanac_model import AlmanacArrays, almanac_ecef
-    from core.timeutil import jd_split_utc, unix_to_gps_s
+    from core.ground.timeutil import jd_split_utc, unix_to_gps_s
+    from core.orbits.almanac_model import AlmanacArrays, almanac_ecef
 
     alm = [e.almanac for e in orbits.entries if e.almanac is not None]
     tle = [e.satrec for e in orbits.entries if e.satrec is not None]
@@ -54,8 +54,8 @@ def bare_propagation(orbits, unix_s):
 
 
 def case(label, scenario):
-    from core.plan import make_plan, prepare_geometry
-    from core.predict import propagate_ecef
+    from core.plan.pipeline import make_plan, prepare_geometry
+    from core.sky.predict import propagate_ecef
 
     prep = prepare_geometry(scenario)
     u = prep.grid.unix_s
@@ -83,8 +83,8 @@ def case(label, scenario):
 
 
 def main() -> int:
-    from core.demo import write_demo
-    from core.scenario import load_scenario
+    from core.files.demo import write_demo
+    from core.files.scenario import load_scenario
 
     with tempfile.TemporaryDirectory() as tmp:
         path = write_demo(Path(tmp))

@@ -50,10 +50,10 @@ def main() -> int:
     from sgp4.api import SatrecArray
     from skyfield.api import EarthSatellite, load, wgs84
 
-    from core.geodesy import Site
-    from core.predict import predict
-    from core.readers import load_orbit_files
-    from core.timeutil import jd_split_utc, time_grid
+    from core.ground.geodesy import Site
+    from core.ground.timeutil import jd_split_utc, time_grid
+    from core.orbits.readers import load_orbit_files
+    from core.sky.predict import predict
 
     orbits = load_orbit_files([DATA / s for s in SETS])
     site = Site(47.37, 8.54, 420.0)
@@ -74,7 +74,7 @@ def main() -> int:
     t_bare, _ = best_of(bare, args.repeat)
 
     # What predict itself propagates: slow orbits only at 60 s nodes (core.sgp4_model).
-    from core.sgp4_model import NODE_STEP_S
+    from core.orbits.sgp4_model import NODE_STEP_S
 
     def bare_nodes():
         u = np.arange(grid.unix_s[0] - NODE_STEP_S, grid.unix_s[-1] + 2 * NODE_STEP_S, NODE_STEP_S)

@@ -16,7 +16,7 @@ import sys
 from collections.abc import Sequence
 from pathlib import Path
 
-from core.errors import AcqplanError, InputError
+from core.ground.errors import AcqplanError, InputError
 from planner_gui import version
 
 EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT = 0, 1, 2
@@ -63,7 +63,7 @@ def one_line(err: InputError) -> str:
 
 
 def parse_site(text: str):
-    from core.geodesy import Site
+    from core.ground.geodesy import Site
 
     parts = [p.strip() for p in text.split(",")]
     if len(parts) != 3:
@@ -93,7 +93,7 @@ def parse_pair(text: str, field: str) -> tuple[float, float]:
 
 def _emit(text: str, out_path: str | None) -> None:
     if out_path:
-        from core.export import write_text_atomic
+        from core.files.atomic import write_text_atomic
 
         write_text_atomic(out_path, text)
     else:
@@ -139,8 +139,8 @@ def _numeric(s: str) -> bool:
 # --- commands --------------------------------------------------------------------------
 
 def _load(args):
-    from core.readers import load_orbit_files
-    from core.timeutil import parse_iso_utc
+    from core.ground.timeutil import parse_iso_utc
+    from core.orbits.readers import load_orbit_files
 
     start = parse_iso_utc(args.start, "--start")
     end = parse_iso_utc(args.end, "--end")
@@ -157,7 +157,7 @@ def _print_warnings(warnings: list[str]) -> None:
 
 
 def cmd_passes(args) -> int:
-    from core.predict import passes
+    from core.sky.predict import passes
 
     orbits, site, start, end = _load(args)
     found = passes(orbits, site, start, end, mask_deg=args.mask, step_s=args.step)
@@ -179,9 +179,9 @@ def cmd_passes(args) -> int:
 def cmd_doppler(args) -> int:
     import numpy as np
 
-    from core.predict import predict
-    from core.signals import get_signal
-    from core.timeutil import iso_z, time_grid
+    from core.ground.signals import get_signal
+    from core.ground.timeutil import iso_z, time_grid
+    from core.sky.predict import predict
 
     orbits, site, start, end = _load(args)
     if args.signal:
@@ -228,7 +228,7 @@ def cmd_doppler(args) -> int:
 
 
 def cmd_bins(args) -> int:
-    from core.bins import bin_centres, design_bins, loss_curve
+    from core.search.bins import bin_centres, design_bins, loss_curve
 
     design = design_bins(args.coherent_ms / 1000.0, args.max_loss_db)
     out = design.to_dict()
@@ -256,13 +256,19 @@ def cmd_bins(args) -> int:
 
 
 def cmd_plan(args) -> int:
-    from core.plan import SUMMARY_COLUMNS, make_plan, plan_rows, plan_to_json, timeline_rows
-    from core.scenario import load_scenario
+    from core.files.scenario import load_scenario
+    from core.plan.pipeline import (
+        SUMMARY_COLUMNS,
+        make_plan,
+        plan_rows,
+        plan_to_json,
+        timeline_rows,
+    )
 
     scenario = load_scenario(args.scenario)
     plan = make_plan(scenario)
     if args.export_dir:
-        from core.plan_export import export_all
+        from core.files.plan_export import export_all
 
         for path in export_all(plan, args.export_dir, args.stem):
             print(f"wrote {path}", file=sys.stderr)
@@ -283,7 +289,7 @@ def cmd_plan(args) -> int:
 
 
 def cmd_demo(args) -> int:
-    from core.demo import write_demo
+    from core.files.demo import write_demo
 
     path = write_demo(Path(args.directory))
     print(f"demo scenario written to {path}")

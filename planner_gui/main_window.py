@@ -40,8 +40,9 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from core.errors import AcqplanError, InputError
-from core.scenario import Scenario, ScenarioValidationError, load_scenario, save_scenario
+from core.files.scenario import load_scenario, save_scenario
+from core.ground.errors import AcqplanError, InputError
+from core.plan.spec import Scenario, ScenarioValidationError
 
 from .models import PlanModel
 from .scenario_panel import ScenarioPanel
@@ -528,7 +529,7 @@ class PlannerWindow(QMainWindow):
         else:
             import tempfile
 
-            from core.demo import write_demo
+            from core.files.demo import write_demo
 
             path = write_demo(Path(tempfile.mkdtemp(prefix="acqplan-demo-")))
         return self.open_scenario(path, template=True)
@@ -951,7 +952,7 @@ class PlannerWindow(QMainWindow):
 
     def write_data(self, path: Path, fmt: str) -> threading.Thread | None:
         """Write the plan as JSON (``fmt`` "json"), the search summary per satellite
-        ("csv") or the windows per satellite per step ("windows") with core.plan_export,
+        ("csv") or the windows per satellite per step ("windows") with core.files.plan_export,
         in a background thread (the JSON of a two-hour plan takes ~0.2 s to build);
         ``exportFinished`` reports the outcome."""
         plan = self.model.plan
@@ -959,7 +960,11 @@ class PlannerWindow(QMainWindow):
             return None
 
         def job() -> None:
-            from core.plan_export import export_plan_json, export_search_csv, export_windows_csv
+            from core.files.plan_export import (
+                export_plan_json,
+                export_search_csv,
+                export_windows_csv,
+            )
 
             writer = {"csv": export_search_csv, "windows": export_windows_csv}.get(fmt, export_plan_json)
             try:

@@ -1,9 +1,9 @@
 """The "Test set-up" form: one editor per scenario key, grouped as the scenario file is.
 
-Editors are built from :data:`core.scenario.KEY_RULES` (kind, unit, range, doc): every
+Editors are built from :data:`core.plan.spec.KEY_RULES` (kind, unit, range, doc): every
 label names its unit, every numeric widget is limited to the key's allowed range and
 every tooltip repeats the key's documentation. The panel knows nothing of plans: it turns
-a :class:`~core.scenario.Scenario` into widget values (:meth:`ScenarioPanel.set_scenario`,
+a :class:`~core.plan.spec.Scenario` into widget values (:meth:`ScenarioPanel.set_scenario`,
 signals blocked so nothing echoes back), emits :attr:`ScenarioPanel.edited` when the user
 changes a value, returns the nested file-layout dict (:meth:`ScenarioPanel.to_dict`) for
 the core to validate, and marks the fields the core rejected
@@ -46,14 +46,14 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from core.scenario import (
+from core.ground.signals import SIGNALS
+from core.plan.spec import (
     FORMAT_VERSION,
     KEY_RULES,
     RULES_BY_DOTTED,
     KeyRule,
     Scenario,
 )
-from core.signals import SIGNALS
 
 # Group titles, in the order of the scenario file's sections.
 GROUPS: tuple[tuple[str, str], ...] = (
@@ -386,7 +386,7 @@ class TimeEditor(FieldEditor):
 
     def set_value(self, value: Any) -> None:
         if isinstance(value, str):
-            from core.timeutil import parse_iso_utc
+            from core.ground.timeutil import parse_iso_utc
 
             value = parse_iso_utc(value)
         if isinstance(value, datetime):

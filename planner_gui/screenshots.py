@@ -1,7 +1,7 @@
 """Render the planner window and each of its views to PNG files (headless or not).
 
 Every file is written atomically (rendered to bytes, then write-then-rename through
-core.export). Views inside the tab stack are brought to the front one by one so each is
+core.files.atomic). Views inside the tab stack are brought to the front one by one so each is
 rendered at the size it has in the window.
 """
 
@@ -13,7 +13,7 @@ from PySide6.QtCore import QBuffer, QByteArray, QIODevice
 from PySide6.QtGui import QPixmap
 from PySide6.QtWidgets import QApplication, QWidget
 
-from core.export import write_bytes_atomic
+from core.files.atomic import write_bytes_atomic
 
 WINDOW_FILE = "window.png"
 

@@ -16,7 +16,7 @@ Pages, in order:
    searches) with tick boxes, for use in the vehicle.
 
 Every page carries "page x of y", the scenario file name with the short content hash
-(:func:`core.plan_export.content_hash`: first 10 hex digits of the SHA-256 of the scenario
+(:func:`core.files.plan_export.content_hash`: first 10 hex digits of the SHA-256 of the scenario
 file bytes followed by the orbit files' bytes, i.e. ``cat SCENARIO ORBITS... | sha256sum``),
 the generation time and the program version.
 
@@ -43,9 +43,7 @@ from zoneinfo import ZoneInfo
 
 import numpy as np
 
-from core.errors import InputError
-from core.plan import Plan
-from core.plan_export import (
+from core.files.plan_export import (
     ContentHash,
     SearchEntry,
     content_hash,
@@ -54,6 +52,8 @@ from core.plan_export import (
     search_entries,
     view_intervals,
 )
+from core.ground.errors import InputError
+from core.plan.pipeline import Plan
 from planner_gui import sheet_charts as charts
 from planner_gui.sheet_layout import (
     ACCENT,
@@ -1185,13 +1185,13 @@ def write_sheet_pdf(plan: Plan, path: str | os.PathLike[str], paper: str = "a4",
                     on_pages: Callable[[list[Page]], None] | None = None) -> int:
     """Write the sheets as PDF (``paper`` "a4" or "letter", portrait); returns the page count.
 
-    Rendered in memory and written with core.export.write_bytes_atomic (temporary file
+    Rendered in memory and written with core.files.atomic.write_bytes_atomic (temporary file
     in the target folder, fsync, rename; an existing file keeps its mode): any failure
     raises InputError and leaves no partial file.
     """
     from PySide6.QtCore import QBuffer, QIODevice
 
-    from core.export import write_bytes_atomic
+    from core.files.atomic import write_bytes_atomic
 
     paper = paper.lower()
     if paper not in PAPER_MM:
@@ -1258,15 +1258,15 @@ def _paint_guarded(plan: Plan, printer, parent) -> bool:
 
 def run_sheet_command(args) -> int:
     """``acqplan sheet SCENARIO.toml -o plan.pdf [--paper a4|letter] [--demo]``."""
-    from core.plan import make_plan
-    from core.scenario import load_scenario
+    from core.files.scenario import load_scenario
+    from core.plan.pipeline import make_plan
 
     prog = "acqplan sheet"
     try:
         if bool(args.demo) == bool(args.scenario):
             raise InputError("give either a scenario file or --demo")
         if args.demo:
-            from core.demo import write_demo
+            from core.files.demo import write_demo
 
             with tempfile.TemporaryDirectory(prefix="acqplan-demo-") as tmp:
                 plan = make_plan(load_scenario(write_demo(tmp)))

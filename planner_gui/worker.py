@@ -9,7 +9,7 @@ and results carry the request's serial number so the window drops anything stale
 Two stages when only search parameters changed (the geometry is reused): first the plan
 with a single Monte Carlo run (every view except the TTFF percentiles is final), then
 the same plan with the scenario's ``monte_carlo_runs`` added by
-``core.plan.add_monte_carlo`` (the rest of the plan is not computed again). The Monte
+``core.plan.pipeline.add_monte_carlo`` (the rest of the plan is not computed again). The Monte
 Carlo alone takes longer than the 100 ms a search-parameter change may take to show.
 
 :func:`compute` is the same work without Qt, used by the thread, tests and benchmarks.
@@ -25,8 +25,7 @@ from dataclasses import dataclass, field, replace
 
 from PySide6.QtCore import QThread, Signal
 
-from core.bins import loss_curve
-from core.plan import (
+from core.plan.pipeline import (
     Plan,
     PlanCancelled,
     PreparedGeometry,
@@ -34,7 +33,8 @@ from core.plan import (
     geometry_key,
     make_plan,
 )
-from core.scenario import Scenario
+from core.plan.spec import Scenario
+from core.search.bins import loss_curve
 
 # Monte Carlo runs of the quick first stage (the smallest the scenario rules allow).
 QUICK_MONTE_CARLO_RUNS = 1
@@ -217,7 +217,7 @@ class PlanWorker(QThread):
                 self._shown.wait(0.01)
                 self._shown.clear()
 
-        from core.errors import AcqplanError
+        from core.ground.errors import AcqplanError
 
         try:
             for result in compute(request, progress, cancel, between):

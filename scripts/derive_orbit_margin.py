@@ -3,7 +3,7 @@
 
 For every matched pair of public orbit files (``../shared/orbit-data``, see its README,
 "Matched pairs") this script predicts range and Doppler with the planner's own code
-(:func:`core.predict.predict`: IS-GPS-200 almanac model or SGP4 + GMST) at 12 sites spread
+(:func:`core.sky.predict.predict`: IS-GPS-200 almanac model or SGP4 + GMST) at 12 sites spread
 over the globe (latitudes -78..+78 deg), compares them with the same quantities from the
 truth orbit (SP3 precise orbits, Lagrange-interpolated, or IS-GPS-200 broadcast
 ephemerides) for satellites at least 5 deg above the truth horizon, and prints:
@@ -38,21 +38,21 @@ REPO = Path(__file__).resolve().parents[1]
 if str(REPO) not in sys.path:
     sys.path.insert(0, str(REPO))
 
-from core.constants import SECONDS_PER_DAY, SECONDS_PER_WEEK, SPEED_OF_LIGHT_M_S  # noqa: E402
-from core.ephemeris_model import (  # noqa: E402
+from core.ground.constants import SECONDS_PER_DAY, SECONDS_PER_WEEK, SPEED_OF_LIGHT_M_S  # noqa: E402
+from core.ground.geodesy import Site  # noqa: E402
+from core.ground.timeutil import gps_to_unix_s, iso_z, unix_to_gps_s  # noqa: E402
+from core.orbits.ephemeris_model import (  # noqa: E402
     EphemerisArrays,
     broadcast_states,
     ephemeris_ecef,
     screen_records,
 )
-from core.geodesy import Site  # noqa: E402
-from core.orbit_margin import DEFAULT_MARGINS, L1_HZ, line_of_sight  # noqa: E402
-from core.orbits import OrbitSet  # noqa: E402
-from core.predict import predict, propagate_ecef  # noqa: E402
-from core.readers import load_orbits  # noqa: E402
-from core.readers.rinex_nav import read_rinex_nav  # noqa: E402
-from core.readers.sp3 import Sp3Orbits, interpolate_clock, interpolate_sp3, read_sp3  # noqa: E402
-from core.timeutil import gps_to_unix_s, iso_z, unix_to_gps_s  # noqa: E402
+from core.orbits.orbit_margin import DEFAULT_MARGINS, L1_HZ, line_of_sight  # noqa: E402
+from core.orbits.orbit_set import OrbitSet  # noqa: E402
+from core.orbits.readers import load_orbits  # noqa: E402
+from core.orbits.readers.rinex_nav import read_rinex_nav  # noqa: E402
+from core.orbits.readers.sp3 import Sp3Orbits, interpolate_clock, interpolate_sp3, read_sp3  # noqa: E402
+from core.sky.predict import predict, propagate_ecef  # noqa: E402
 
 DEFAULT_DATA = Path(os.environ.get("ACQPLAN_ORBIT_DATA", REPO.parent / "shared" / "orbit-data"))
 

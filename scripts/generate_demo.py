@@ -5,7 +5,7 @@
     python scripts/generate_demo.py OUT_DIR      # write into OUT_DIR instead
     python scripts/generate_demo.py --check      # compare only; exit status 1 if different
 
-All values come from core/demo.py (fixed seed, deterministic): the output is
+All values come from core/files/demo.py (fixed seed, deterministic): the output is
 byte-identical on every run.
 """
 
@@ -19,7 +19,7 @@ REPO = Path(__file__).resolve().parents[1]
 if str(REPO) not in sys.path:
     sys.path.insert(0, str(REPO))
 
-from core.demo import demo_files, write_demo  # noqa: E402
+from core.files.demo import demo_files, write_demo  # noqa: E402
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -1,4 +1,4 @@
-"""Tests of core.bins: coherent frequency loss, bin design, tiling, coherent-time checks."""
+"""Tests of core.search.bins: coherent frequency loss, bin design, tiling, coherent-time checks."""
 
 from __future__ import annotations
 
@@ -10,9 +10,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import integrate, optimize
 
-from core import bins
-from core.errors import InputError
-from core.signals import SIGNALS
+from core.ground.errors import InputError
+from core.ground.signals import SIGNALS
+from core.search import bins
 
 L1_HZ = 1575.42e6  # [pub: IS-GPS-200] GPS L1 carrier
 
@@ -325,7 +325,7 @@ def test_transition_loss_closed_values():
 
 def test_aligned_transition_loss_against_a_symbol_monte_carlo():
     """Code-epoch-aligned coherent sums of +-1 symbols, simulated with numpy [calc]."""
-    from core.bins import aligned_transition_loss_db
+    from core.search.bins import aligned_transition_loss_db
 
     rng = np.random.default_rng(5)
     for n, big_l in [(4, 20), (1, 1), (4, 4), (10, 10), (8, 4), (20, 20), (3, 2)]:

@@ -195,7 +195,7 @@ def test_help_on_every_command():
 
 
 def test_several_scenario_problems_on_one_line(tmp_path, capsys):
-    from core.demo import write_demo
+    from core.files.demo import write_demo
 
     path = write_demo(tmp_path)
     text = path.read_text().replace("channels = 12", "channels = 0").replace("lat_deg = 49.6183", "lat_deg = 95")

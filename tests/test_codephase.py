@@ -9,10 +9,10 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from core import codephase as cp
-from core.constants import SPEED_OF_LIGHT_M_S
-from core.errors import InputError
-from core.signals import SIGNALS
+from core.ground.constants import SPEED_OF_LIGHT_M_S
+from core.ground.errors import InputError
+from core.ground.signals import SIGNALS
+from core.search import codephase as cp
 
 OVERSAMPLE = 48          # samples per chip of the synthetic codes below
 

@@ -18,8 +18,8 @@ import pytest
 from conftest import ORBIT_DATA, requires_orbit_data
 from sgp4.api import Satrec
 
-from core import demo
-from core.scenario import load_scenario
+from core.files import demo
+from core.files.scenario import load_scenario
 
 REPO = Path(__file__).resolve().parents[1]
 SAMPLES = REPO / "sample_almanacs"
@@ -319,11 +319,11 @@ def test_yuma_and_sem_hold_the_same_almanac():
         assert y["Health"] == s["health"] == 0
 
 
-@pytest.mark.skipif(importlib.util.find_spec("core.readers") is None
-                    or not hasattr(importlib.import_module("core.readers"), "load_orbits"),
-                    reason="core.readers.load_orbits is not available yet")
+@pytest.mark.skipif(importlib.util.find_spec("core.orbits.readers") is None
+                    or not hasattr(importlib.import_module("core.orbits.readers"), "load_orbits"),
+                    reason="core.orbits.readers.load_orbits is not available yet")
 def test_project_readers_read_yuma_and_sem_alike():
-    from core.readers import load_orbits
+    from core.orbits.readers import load_orbits
 
     ref = CAMPAIGN_START.timestamp()
     y = load_orbits(SAMPLES / "demo_gps_yuma.txt", ref)

@@ -8,8 +8,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from core import detection as det
-from core.errors import InputError
+from core.ground.errors import InputError
+from core.search import detection as det
 
 
 def _binomial_ok(hits: int, trials: int, p: float, conf: float = 1 - 1e-5) -> bool:

@@ -11,11 +11,17 @@ from conftest import ORBIT_DATA, requires_orbit_data
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from core.almanac_model import AlmanacArrays, almanac_ecef
-from core.geodesy import Site, ecef_to_enu, ecef_to_geodetic, enu_to_az_el_range, geodetic_to_ecef
-from core.orbits import AlmanacRecord
-from core.predict import passes, predict
-from core.timeutil import time_grid
+from core.ground.geodesy import (
+    Site,
+    ecef_to_enu,
+    ecef_to_geodetic,
+    enu_to_az_el_range,
+    geodetic_to_ecef,
+)
+from core.ground.timeutil import time_grid
+from core.orbits.almanac_model import AlmanacArrays, almanac_ecef
+from core.orbits.orbit_set import AlmanacRecord
+from core.sky.predict import passes, predict
 
 C = 299_792_458.0
 L1 = 1575.42e6
@@ -75,7 +81,7 @@ def test_sgp4_path_matches_skyfield_over_a_day(name):
     Limits from the foundation issue: Doppler 0.01 Hz, az/el 0.001 deg, range 1 m."""
     from skyfield.api import EarthSatellite, load, wgs84
 
-    from core.readers import load_orbits
+    from core.orbits.readers import load_orbits
 
     ts = load.timescale(builtin=True)
     orbits = load_orbits(ORBIT_DATA / "tle" / name)
@@ -151,7 +157,7 @@ def test_almanac_velocity_is_derivative_of_position():
 
 @requires_orbit_data
 def test_doppler_rate_matches_finite_difference_and_trade_bounds():
-    from core.readers import load_orbits
+    from core.orbits.readers import load_orbits
 
     orbits = load_orbits(ORBIT_DATA / "tle" / "perylune_gps-ops_2020-04-01.txt")
     site = SITES[0]
@@ -173,7 +179,7 @@ def test_doppler_rate_matches_finite_difference_and_trade_bounds():
 
 @requires_orbit_data
 def test_passes_refined_below_one_second():
-    from core.readers import load_orbits
+    from core.orbits.readers import load_orbits
 
     orbits = load_orbits(ORBIT_DATA / "tle" / "perylune_gps-ops_2020-04-01.txt")
     site = SITES[1]
@@ -202,8 +208,8 @@ def test_passes_refined_below_one_second():
 def test_node_interpolation_equals_direct_sgp4():
     """predict propagates 12 h / 24 h orbits at 60 s nodes and interpolates; it must equal
     SGP4 at every sample to 2 cm and 1e-5 m/s (1e-4 Hz at L1). Reference: sgp4 itself."""
-    from core.readers import load_orbit_files
-    from core.sgp4_model import sgp4_ecef
+    from core.orbits.readers import load_orbit_files
+    from core.orbits.sgp4_model import sgp4_ecef
 
     files = [ORBIT_DATA / "tle" / n for n in TLE_SETS[:4]]
     orbits = load_orbit_files(files)
@@ -217,8 +223,8 @@ def test_node_interpolation_equals_direct_sgp4():
 
 @requires_orbit_data
 def test_low_orbits_are_propagated_directly():
-    from core.readers import load_orbits
-    from core.sgp4_model import HERMITE_MAX_REV_PER_DAY, sgp4_ecef
+    from core.orbits.readers import load_orbits
+    from core.orbits.sgp4_model import HERMITE_MAX_REV_PER_DAY, sgp4_ecef
 
     orbits = load_orbits(ORBIT_DATA / "tle" / "sgp4_SGP4-VER.TLE", strict=False)
     leo = [e.satrec for e in orbits.entries if e.satrec.no_kozai * 1440 / (2 * np.pi) > HERMITE_MAX_REV_PER_DAY][:5]
@@ -234,7 +240,7 @@ def test_low_orbits_are_propagated_directly():
 def test_sgp4_errors_become_nan_and_a_warning_per_satellite():
     """python-sgp4's verification set holds decaying and ill-posed cases (SGP4-VER.TLE):
     their error codes must give NaN samples and one warning per satellite, not a crash."""
-    from core.readers import load_orbits
+    from core.orbits.readers import load_orbits
 
     orbits = load_orbits(ORBIT_DATA / "tle" / "sgp4_SGP4-VER.TLE", strict=False)
     t0 = min(e.info.epoch_unix_s for e in orbits.entries)

@@ -25,9 +25,9 @@ pytestmark = pytest.mark.gui
 
 from PySide6.QtCore import QPointF, Qt  # noqa: E402
 
-from core.demo import write_demo  # noqa: E402
-from core.plan import make_plan, plan_to_json  # noqa: E402
-from core.scenario import load_scenario  # noqa: E402
+from core.files.demo import write_demo  # noqa: E402
+from core.files.scenario import load_scenario  # noqa: E402
+from core.plan.pipeline import make_plan, plan_to_json  # noqa: E402
 
 WAIT_MS = 60_000
 
@@ -280,7 +280,7 @@ def test_invalid_value_marked_at_its_field(qtbot, window, demo):
     start = window.panel.editors["time.start"].edit.dateTime()
     wait_problem(qtbot, window, lambda: editor.edit.setDateTime(start.addSecs(-3600)))
     msg = window.panel.problem_of("time.end")
-    # The core's message (core.scenario: "... is not after start ...").
+    # The core's message (core.plan.spec: "... is not after start ...").
     assert msg is not None and "not after start" in msg
     assert window.model.plan is before
     # Fixing the value clears the mark and plans again.
@@ -534,7 +534,7 @@ def test_drop_orbit_files_and_export(qtbot, window, demo, tmp_path):
     csv = tmp_path / "plan.csv"
     with qtbot.waitSignal(window.exportFinished, timeout=WAIT_MS):
         window.write_data(csv, "csv")
-    from core.plan_export import read_search_csv, read_windows_csv
+    from core.files.plan_export import read_search_csv, read_windows_csv
 
     assert len(read_search_csv(csv)) >= 12
     wcsv = tmp_path / "windows.csv"
@@ -577,7 +577,7 @@ def test_about_names_units_signs_and_safety(window):
 
 
 def test_every_scenario_key_has_an_editor_with_unit_and_range(window):
-    from core.scenario import KEY_RULES
+    from core.plan.spec import KEY_RULES
 
     panel = window.panel
     for rule in KEY_RULES:
@@ -598,7 +598,7 @@ def test_every_scenario_key_has_an_editor_with_unit_and_range(window):
 def test_form_round_trips_every_key(window, demo):
     """Scenario -> form -> dict -> Scenario gives the same scenario (every key, optional
     keys set and unset, a seed beyond 32 bits)."""
-    from core.scenario import Scenario
+    from core.plan.spec import Scenario
 
     base = load_scenario(demo)
     variants = [base, base.with_changes(

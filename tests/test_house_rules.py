@@ -42,3 +42,40 @@ def test_windowless_commands_do_not_load_qt():
     )
     out = subprocess.run([sys.executable, "-c", code], cwd=REPO, capture_output=True, text=True, timeout=120)
     assert "LOADED []" in out.stdout, out.stdout + out.stderr
+
+
+# Stages of the data flow, lowest first: a module may import its own stage and the stages
+# below it, never one above (DEVELOPERS.md, "Layout"). ``records`` sits beside ``files``:
+# both read the plan, neither is read by it.
+STAGES = {"ground": 0, "orbits": 1, "sky": 2, "search": 3, "plan": 4, "records": 5, "files": 5}
+
+
+def _core_targets(path: Path) -> list[tuple[str, int]]:
+    """(stage imported, line) for every import of a core subpackage in ``path``."""
+    rel = path.relative_to(REPO).with_suffix("").parts
+    here = list(rel[:-1])
+    tree = ast.parse(path.read_text(encoding="utf-8"), filename=str(path))
+    out = []
+    for node in ast.walk(tree):
+        if isinstance(node, ast.ImportFrom):
+            if node.level:
+                base = here[: len(here) - (node.level - 1)]
+                mod = base + (node.module.split(".") if node.module else [])
+            else:
+                mod = (node.module or "").split(".")
+            if len(mod) > 1 and mod[0] == "core":
+                out.append((mod[1], node.lineno))
+    return out
+
+
+def test_core_stages_import_downward_only():
+    bad = []
+    for path in sorted((REPO / "core").rglob("*.py")):
+        rel = path.relative_to(REPO).parts
+        if len(rel) < 3 or rel[1] not in STAGES:
+            continue
+        me = rel[1]
+        for target, line in _core_targets(path):
+            if target in STAGES and target != me and STAGES[target] >= STAGES[me]:
+                bad.append(f"{'/'.join(rel)}:{line} ({me}) imports core.{target}")
+    assert not bad, bad

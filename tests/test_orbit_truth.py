@@ -18,16 +18,18 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from core.constants import SECONDS_PER_DAY, SECONDS_PER_WEEK, SPEED_OF_LIGHT_M_S
-from core.ephemeris_model import (
+from core.ground.constants import SECONDS_PER_DAY, SECONDS_PER_WEEK, SPEED_OF_LIGHT_M_S
+from core.ground.errors import InputError, OrbitFormatError
+from core.ground.geodesy import Site
+from core.ground.signals import SIGNALS
+from core.ground.timeutil import gps_to_unix_s
+from core.orbits.ephemeris_model import (
     EphemerisArrays,
     broadcast_states,
     ephemeris_ecef,
     screen_records,
 )
-from core.errors import InputError, OrbitFormatError
-from core.geodesy import Site
-from core.orbit_margin import (
+from core.orbits.orbit_margin import (
     DEFAULT_MARGINS,
     L1_HZ,
     OrbitMarginModel,
@@ -36,13 +38,11 @@ from core.orbit_margin import (
     orbit_margin_hz,
     orbit_range_margin_m,
 )
-from core.orbits import OrbitSet
-from core.predict import predict, propagate_ecef
-from core.readers import load_orbits
-from core.readers.rinex_nav import parse_rinex_float, read_rinex_nav
-from core.readers.sp3 import interpolate_sp3, read_sp3, unlzw
-from core.signals import SIGNALS
-from core.timeutil import gps_to_unix_s
+from core.orbits.orbit_set import OrbitSet
+from core.orbits.readers import load_orbits
+from core.orbits.readers.rinex_nav import parse_rinex_float, read_rinex_nav
+from core.orbits.readers.sp3 import interpolate_sp3, read_sp3, unlzw
+from core.sky.predict import predict, propagate_ecef
 from tests.conftest import HAVE_ORBIT_DATA, ORBIT_DATA
 
 _skip_without_data = pytest.mark.skipif(

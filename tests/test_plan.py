@@ -10,10 +10,10 @@ import numpy as np
 import pytest
 from conftest import ORBIT_DATA, REPO, requires_orbit_data
 
-from core import bins as binlib
-from core.errors import InputError
-from core.plan import geometry_key, make_plan, plan_to_json
-from core.scenario import load_scenario
+from core.files.scenario import load_scenario
+from core.ground.errors import InputError
+from core.plan.pipeline import geometry_key, make_plan, plan_to_json
+from core.search import bins as binlib
 
 DEMO = REPO / "sample_almanacs" / "demo_scenario.toml"
 
@@ -44,7 +44,7 @@ def test_json_schema_of_the_plan(demo_plan):
 
 
 def test_search_summary_follows_the_engine(demo_plan):
-    """Bins and windows in each search summary equal core.bins on the plan's own window."""
+    """Bins and windows in each search summary equal core.search.bins on the plan's own window."""
     sc = demo_plan.scenario
     for sp in demo_plan.satellites:
         if sp.search is None:
@@ -141,7 +141,7 @@ def test_invalid_coherent_time_for_galileo(demo_plan):
 
 
 def test_moved_orbit_file_is_reported(tmp_path):
-    from core.demo import write_demo
+    from core.files.demo import write_demo
 
     path = write_demo(tmp_path)
     sc = load_scenario(path)
@@ -198,7 +198,7 @@ def test_demo_scenario_exists():
 
 
 def test_two_stage_monte_carlo_equals_one_stage(demo_plan):
-    from core.plan import add_monte_carlo
+    from core.plan.pipeline import add_monte_carlo
 
     quick = make_plan(demo_plan.scenario, prepared=demo_plan.prepared, monte_carlo=False)
     assert quick.ttff is None
@@ -210,7 +210,7 @@ def test_two_stage_monte_carlo_equals_one_stage(demo_plan):
 
 def test_tabulated_pd_equals_the_detector_formula(demo_plan):
     """The plan's Pd (tabulated for speed) equals core.detection evaluated directly."""
-    from core import detection
+    from core.search import detection
 
     p = demo_plan
     sc = p.scenario
@@ -220,8 +220,8 @@ def test_tabulated_pd_equals_the_detector_formula(demo_plan):
         if not k.size:
             continue
         # Recompute the effective C/N0 of the plan's model and Pd directly.
-        from core.bins import aligned_transition_loss_db
-        from core.signals import SIGNALS
+        from core.ground.signals import SIGNALS
+        from core.search.bins import aligned_transition_loss_db
 
         sig = SIGNALS[sp.signal_id]
         losses = (sc.signal.extra_loss_db + p.bin_design[sp.signal_id].average_loss_db
@@ -270,7 +270,7 @@ def test_rising_priority_searches_rising_satellites_first(demo_plan):
 
 
 def test_cli_plan_exports(tmp_path, capsys):
-    from core.plan_export import read_search_csv
+    from core.files.plan_export import read_search_csv
     from planner_gui.cli import main
 
     assert main(["plan", str(DEMO), "--format", "csv", "--export-dir", str(tmp_path), "--stem", "run1"]) == 0
@@ -283,7 +283,7 @@ def test_cli_plan_exports(tmp_path, capsys):
 
 
 def test_failed_propagation_samples_do_not_break_the_plan(demo_plan):
-    """SGP4 failures arrive as NaN samples with valid False (core.predict): the plan must
+    """SGP4 failures arrive as NaN samples with valid False (core.sky.predict): the plan must
     treat them as not visible, not crash (search costs need finite inputs)."""
     import copy
 
@@ -308,7 +308,7 @@ def test_failed_propagation_samples_do_not_break_the_plan(demo_plan):
 
 
 def test_table_after_columns_match_the_search_when_after(demo_plan):
-    from core.plan import plan_rows
+    from core.plan.pipeline import plan_rows
 
     rows = {r["id"]: r for r in plan_rows(demo_plan)}
     after = [sp for sp in demo_plan.satellites if sp.search and sp.search.state == "after"]
@@ -321,7 +321,7 @@ def test_table_after_columns_match_the_search_when_after(demo_plan):
 
 
 def test_boc_signals_get_the_boc_code_step_loss(demo_plan):
-    from core.codephase import code_step_loss
+    from core.search.codephase import code_step_loss
 
     step = demo_plan.scenario.search.code_step_chips
     assert demo_plan.code_step_loss["GAL-E1"] == code_step_loss(step, "BOC11")
@@ -334,10 +334,10 @@ def test_unknown_glonass_channel_window_holds_every_channel(tmp_path):
     each true carrier k = -7..+6 (recomputed here with the channel set on the entry)."""
     from dataclasses import replace as dc_replace
 
-    from core.demo import write_demo
-    from core.plan import _uncertainty
-    from core.predict import predict
-    from core.windows import doppler_windows
+    from core.files.demo import write_demo
+    from core.plan.pipeline import _uncertainty
+    from core.search.windows import doppler_windows
+    from core.sky.predict import predict
 
     path = write_demo(tmp_path)
     text = path.read_text().replace('mapping = "demo_glonass_mapping.txt"\n', "")
@@ -349,7 +349,7 @@ def test_unknown_glonass_channel_window_holds_every_channel(tmp_path):
     sub_entries = [g.orbits.entries[i] for i in rows]
     unc = _uncertainty(p.scenario)
     for k in (-7, -3, 0, 4, 6):
-        from core.orbits import OrbitSet
+        from core.orbits.orbit_set import OrbitSet
 
         ents = [dc_replace(e, info=dc_replace(e.info, glonass_k=k)) for e in sub_entries]
         pk = predict(OrbitSet(ents), g.site, g.grid, signals=["GLO-L1OF"])
@@ -363,8 +363,8 @@ def test_unknown_glonass_channel_window_holds_every_channel(tmp_path):
 
 
 def test_monte_carlo_stops_on_cancel(demo_plan):
-    from core.errors import Cancelled
-    from core.plan import add_monte_carlo
+    from core.ground.errors import Cancelled
+    from core.plan.pipeline import add_monte_carlo
 
     calls = []
 

@@ -1,4 +1,4 @@
-"""Exports of a plan (JSON, CSV), the per-search list and the content hash (core.plan_export).
+"""Exports of a plan (JSON, CSV), the per-search list and the content hash (core.files.plan_export).
 
 Checks: the files re-read to the plan's own numbers (within the documented rounding), a
 failed export leaves no file, and the content hash equals the documented
@@ -16,15 +16,15 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from core import bins as binlib
-from core import plan_export as pe
-from core.demo import write_demo
-from core.errors import InputError
-from core.plan import make_plan, plan_to_json
-from core.scenario import load_scenario
+from core.files import plan_export as pe
+from core.files.demo import write_demo
+from core.files.scenario import load_scenario
+from core.ground.errors import InputError
+from core.plan.pipeline import make_plan, plan_to_json
+from core.search import bins as binlib
 from tests.conftest import requires_orbit_data
 
-# Rounding of the exports, as documented in core.plan_export: Hz to 0.01, degrees to
+# Rounding of the exports, as documented in core.files.plan_export: Hz to 0.01, degrees to
 # 0.001, seconds to 0.001, dB to 0.01, Pd to 1e-4 -> half a unit in the last place.
 HZ_TOL = 0.005 + 1e-9
 DEG_TOL = 0.0005 + 1e-9
@@ -119,7 +119,7 @@ def test_windows_csv_round_trip(plan, tmp_path):
         assert r["bins"] == int(plan.bins_first[s, k])
         assert r["bins_after"] == int(plan.bins_after[s, k])
         assert abs(r["expected_search_s"] - float(plan.expected_search_first_s[s, k])) <= S_TOL
-        # The bin count is the tiling of the window by the bin width (core.bins.bin_count).
+        # The bin count is the tiling of the window by the bin width (core.search.bins.bin_count).
         assert r["bins"] == binlib.bin_count(float(wf.low_hz[s, k]), float(wf.high_hz[s, k]),
                                              plan.bin_design[r["signal"]].bin_width_hz)
 
@@ -210,7 +210,7 @@ def test_search_entries_follow_the_timeline(demo_plan):
         [(s.sat_id, s.channel, s.start_unix_s) for s in segs]
     seen = set()
     for e in entries:
-        # Bins tile the window centred on it with the signal's bin width [core.bins doc].
+        # Bins tile the window centred on it with the signal's bin width [core.search.bins doc].
         width = plan.bin_design[e.signal_id].bin_width_hz
         assert e.bins == binlib.bin_count(e.low_hz, e.high_hz, width)
         c = e.bin_centres_hz

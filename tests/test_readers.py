@@ -12,8 +12,8 @@ from datetime import UTC, datetime, timedelta
 
 import pytest
 
-from core.errors import InputError, OrbitFormatError
-from core.readers import (
+from core.ground.errors import InputError, OrbitFormatError
+from core.orbits.readers import (
     detect_format,
     identify_tle,
     load_mapping,
@@ -24,7 +24,7 @@ from core.readers import (
     parse_tle,
     parse_yuma,
 )
-from core.readers.tle import checksum
+from core.orbits.readers.tle import checksum
 
 ICD_PI = 3.1415926535898          # [pub: IS-GPS-200 Table 20-IV, domain-notes section 1]
 

@@ -15,9 +15,16 @@ from conftest import HAVE_ORBIT_DATA, ORBIT_DATA
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from core.errors import InputError
-from core.orbits import OrbitSet
-from core.readers import load_orbits, parse_mapping, parse_orbits, parse_sem, parse_tle, parse_yuma
+from core.ground.errors import InputError
+from core.orbits.orbit_set import OrbitSet
+from core.orbits.readers import (
+    load_orbits,
+    parse_mapping,
+    parse_orbits,
+    parse_sem,
+    parse_tle,
+    parse_yuma,
+)
 
 FUZZ = settings(max_examples=200, deadline=None,
                 suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])

@@ -14,8 +14,8 @@ from datetime import UTC, datetime, timedelta
 import pytest
 from conftest import ORBIT_DATA, requires_orbit_data
 
-from core.errors import OrbitFormatError
-from core.readers import load_orbit_files, load_orbits
+from core.ground.errors import OrbitFormatError
+from core.orbits.readers import load_orbit_files, load_orbits
 
 pytestmark = [requires_orbit_data, pytest.mark.realdata]
 

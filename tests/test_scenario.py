@@ -17,8 +17,9 @@ from pathlib import Path
 
 import pytest
 
-from core.errors import InputError, ScenarioError
-from core.scenario import (
+from core.files.scenario import load_scenario, save_scenario
+from core.ground.errors import InputError, ScenarioError
+from core.plan.spec import (
     KEY_RULES,
     MaskSpec,
     OrbitSpec,
@@ -30,8 +31,6 @@ from core.scenario import (
     SignalSpec,
     SiteSpec,
     TimeSpec,
-    load_scenario,
-    save_scenario,
 )
 
 REPO = Path(__file__).resolve().parents[1]

@@ -26,11 +26,11 @@ import pytest
 pytest.importorskip("PySide6.QtGui")
 pypdf = pytest.importorskip("pypdf")
 
-from core import bins as binlib  # noqa: E402
-from core.demo import write_demo  # noqa: E402
-from core.errors import InputError  # noqa: E402
-from core.plan import make_plan  # noqa: E402
-from core.scenario import load_scenario  # noqa: E402
+from core.files.demo import write_demo  # noqa: E402
+from core.files.scenario import load_scenario  # noqa: E402
+from core.ground.errors import InputError  # noqa: E402
+from core.plan.pipeline import make_plan  # noqa: E402
+from core.search import bins as binlib  # noqa: E402
 from planner_gui import sheets  # noqa: E402
 from planner_gui.sheet_layout import FontSpec, Geometry, Page, Typesetter, layout_problems  # noqa: E402
 from planner_gui.style import SAFETY_CAUTIONS  # noqa: E402
@@ -206,7 +206,7 @@ def test_every_page_carries_page_number_file_hash_time_and_version(rendered, pla
     if name == "demo":                       # the saved file: hash of the file bytes
         data = Path(sc.path).read_bytes()
     else:                                    # edited in memory: the text as planned
-        from core.scenario import scenario_to_toml
+        from core.files.scenario import scenario_to_toml
         data = scenario_to_toml(sc).encode("utf-8")
     digest = hashlib.sha256(data + b"".join(p.read_bytes() for p in files)).hexdigest()[:10]
     n = len(doc["items"])

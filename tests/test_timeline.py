@@ -1,4 +1,4 @@
-"""Tests of core.timeline: channel timeline, first-fix rule, serial-search draws, TTFF Monte Carlo.
+"""Tests of core.plan.timeline: channel timeline, first-fix rule, serial-search draws, TTFF Monte Carlo.
 
 Scenarios are invented (fictional date, satellites named A, B, ...). Expected timelines are
 worked out by hand in the comments; the serial-search mean is checked against the
@@ -14,8 +14,9 @@ import numpy as np
 import pytest
 from scipy.stats import chi2_contingency
 
-from core.errors import InputError
-from core.timeline import (
+from core.ground.errors import InputError
+from core.ground.timeutil import parse_iso_utc, to_unix_s
+from core.plan.timeline import (
     SEARCH,
     TRACK,
     TimelineInputs,
@@ -25,7 +26,6 @@ from core.timeline import (
     sample_timeline,
     serial_search_time_samples,
 )
-from core.timeutil import parse_iso_utc, to_unix_s
 
 T0 = to_unix_s(parse_iso_utc("2031-05-17T06:00:00Z"))   # invented window start
 STEP_S = 30.0

@@ -20,10 +20,10 @@ import pytest
 from conftest import ORBIT_DATA, requires_orbit_data
 from sgp4.api import Satrec
 
-from core.geodesy import Site
-from core.orbits import OrbitEntry, OrbitSet, SatelliteInfo
-from core.predict import predict
-from core.windows import Uncertainty, apparent_doppler_hz, doppler_windows, shift_summary
+from core.ground.geodesy import Site
+from core.orbits.orbit_set import OrbitEntry, OrbitSet, SatelliteInfo
+from core.search.windows import Uncertainty, apparent_doppler_hz, doppler_windows, shift_summary
+from core.sky.predict import predict
 
 C = 299_792_458.0
 L1 = 1575.42e6

@@ -1,9 +1,9 @@
 """Bin loss: the coherent-integration loss against frequency offset for one signal's
 coherent time, with the offsets of 1, 2 and 3 dB and the chosen bin's edges.
 
-Loss is a positive number of dB, -20 log10 |sinc(offset x Tc)| (core.bins). The curve
-and marks come from core.bins.loss_curve, computed with the plan in the worker; the bin
-width from the plan's bin design (core.bins.design_bins for the accepted loss).
+Loss is a positive number of dB, -20 log10 |sinc(offset x Tc)| (core.search.bins). The curve
+and marks come from core.search.bins.loss_curve, computed with the plan in the worker; the bin
+width from the plan's bin design (core.search.bins.design_bins for the accepted loss).
 """
 
 from __future__ import annotations

@@ -1,7 +1,7 @@
 """Bins at the cursor: one row per satellite above the mask, its frequency bins drawn
 across apparent Doppler, with the bin count and width written at the row's end.
 
-Values come from :meth:`core.plan.Plan.search_grid_at` (through the model's cached
+Values come from :meth:`core.plan.pipeline.Plan.search_grid_at` (through the model's cached
 cursor rows). Rows scroll with the wheel or the scroll bar when they do not all fit.
 """
 

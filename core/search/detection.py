@@ -24,7 +24,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 from scipy import stats
 
-from .errors import InputError
+from ..ground.errors import InputError
 
 # Bracket (dB) and steps of the vectorized bisection for the required SNR. The bracket
 # covers N up to ~1e5 (about -25 dB) and Pfa down to 1e-15 at Pd 0.9999 (about 22 dB).

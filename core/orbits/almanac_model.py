@@ -15,8 +15,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .constants import EARTH_ROTATION_RAD_S, GPS_MU_M3_S2, HALF_WEEK_S, SECONDS_PER_WEEK
-from .orbits import AlmanacRecord
+from ..ground.constants import EARTH_ROTATION_RAD_S, GPS_MU_M3_S2, HALF_WEEK_S, SECONDS_PER_WEEK
+from .orbit_set import AlmanacRecord
 
 
 @dataclass(frozen=True)

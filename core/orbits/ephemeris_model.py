@@ -23,8 +23,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..ground.constants import EARTH_ROTATION_RAD_S, GPS_MU_M3_S2, SECONDS_PER_WEEK
 from .almanac_model import solve_kepler
-from .constants import EARTH_ROTATION_RAD_S, GPS_MU_M3_S2, SECONDS_PER_WEEK
 from .readers.rinex_nav import GpsEphemerisRecord
 
 

@@ -21,9 +21,9 @@ from dataclasses import asdict, dataclass
 import numpy as np
 from numpy.typing import ArrayLike
 
-from .constants import SPEED_OF_LIGHT_M_S
-from .errors import InputError
-from .signals import Signal
+from ..ground.constants import SPEED_OF_LIGHT_M_S
+from ..ground.errors import InputError
+from ..ground.signals import Signal
 
 # Breakpoints (|offset| in chips, R) of the piecewise-linear correlation shapes above.
 CORRELATION_SHAPES: dict[str, tuple[tuple[float, ...], tuple[float, ...]]] = {
@@ -99,7 +99,7 @@ class CodeStepLoss:
     ``worst_*``: at the largest offset, half a step. ``average_amplitude``: mean of
     ``|R|``; ``average_amplitude_loss_db = -20 log10(average_amplitude)``.
     ``average_loss_db``: loss of the mean POWER, ``-10 log10 mean(R^2)`` (the expected
-    SNR loss, same convention as ``core.bins``). All losses positive dB.
+    SNR loss, same convention as ``core.search.bins``). All losses positive dB.
     """
 
     step_chips: float

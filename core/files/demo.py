@@ -35,7 +35,7 @@ from pathlib import Path
 
 from sgp4.propagation import gstime
 
-from .constants import (
+from ..ground.constants import (
     DEG,
     EARTH_ROTATION_RAD_S,
     GPS_MU_M3_S2,
@@ -48,7 +48,7 @@ from .constants import (
     WEEKS_PER_ROLLOVER,
     WGS72_MU_M3_S2,
 )
-from .timeutil import from_unix_s, gps_week_tow_to_unix_s, parse_iso_utc, unix_to_gps_s
+from ..ground.timeutil import from_unix_s, gps_week_tow_to_unix_s, parse_iso_utc, unix_to_gps_s
 
 # ---------------------------------------------------------------------------------------
 # The fictional campaign
@@ -624,7 +624,7 @@ Follow traffic law and the rules of the test site.
     python scripts/generate_demo.py            # rewrites this folder
     python scripts/generate_demo.py --check    # only compares
 
-The generator (`core/demo.py`) is deterministic: a fixed seed gives byte-identical files,
+The generator (`core/files/demo.py`) is deterministic: a fixed seed gives byte-identical files,
 and a test checks that the files here equal a fresh regeneration. `acqplan demo DIR`
 writes the same files into DIR.
 """

@@ -26,10 +26,10 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike
 
-from .constants import SECONDS_PER_DAY, SPEED_OF_LIGHT_M_S
-from .errors import InputError
-from .geodesy import Site
-from .signals import SIGNALS
+from ..ground.constants import SECONDS_PER_DAY, SPEED_OF_LIGHT_M_S
+from ..ground.errors import InputError
+from ..ground.geodesy import Site
+from ..ground.signals import SIGNALS
 
 L1_HZ = SIGNALS["GPS-L1CA"].carrier_hz
 
@@ -116,7 +116,7 @@ def margin_extrapolated(source_kind: str, age_s: ArrayLike) -> np.ndarray:
 def line_of_sight(pos_m: np.ndarray, vel_m_s: np.ndarray, site: Site, carrier_hz: float = L1_HZ
                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Geometric range (m), Doppler (Hz at ``carrier_hz``) and elevation (deg) of Earth-fixed
-    states (S, T, 3) seen from ``site``: range = |sat - site| (as :mod:`core.predict`),
+    states (S, T, 3) seen from ``site``: range = |sat - site| (as :mod:`core.sky.predict`),
     Doppler = -(range rate)/wavelength [trade], elevation above the ellipsoid normal."""
     rho = np.asarray(pos_m, dtype=float) - site.ecef_m
     rng = np.linalg.norm(rho, axis=-1)

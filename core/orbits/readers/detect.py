@@ -19,8 +19,8 @@ from collections.abc import Iterable, Mapping
 from datetime import datetime
 from pathlib import Path
 
-from ..errors import InputError, OrbitFormatError
-from ..orbits import OrbitSet
+from ...ground.errors import InputError, OrbitFormatError
+from ..orbit_set import OrbitSet
 from .identity import glonass_k_warning
 from .mapping import as_mapping
 from .sem import is_sem, parse_sem

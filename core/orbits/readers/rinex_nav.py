@@ -27,8 +27,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ..constants import GPS_EPOCH_UNIX_S, HALF_WEEK_S, SECONDS_PER_WEEK
-from ..errors import OrbitFormatError
+from ...ground.constants import GPS_EPOCH_UNIX_S, HALF_WEEK_S, SECONDS_PER_WEEK
+from ...ground.errors import OrbitFormatError
 
 _FIELD_WIDTH = 19
 # A mantissa followed directly by a signed exponent with no letter (e.g. 0.4990-269).

@@ -33,9 +33,9 @@ from pathlib import Path
 import numpy as np
 from sgp4.api import Satrec
 
-from ..constants import SECONDS_PER_DAY, UNIX_JD
-from ..errors import OrbitFormatError
-from ..orbits import OrbitEntry, OrbitFileInfo, OrbitSet, SatelliteInfo
+from ...ground.constants import SECONDS_PER_DAY, UNIX_JD
+from ...ground.errors import OrbitFormatError
+from ..orbit_set import OrbitEntry, OrbitFileInfo, OrbitSet, SatelliteInfo
 from .identity import glonass_k_warning, identify_tle, parse_sat_id, unique_ids
 from .mapping import as_mapping
 

@@ -17,9 +17,9 @@ from __future__ import annotations
 import re
 from datetime import datetime
 
-from ..constants import GPS_PI, GPS_REFERENCE_INCLINATION_SC, QZSS_REFERENCE_INCLINATION_SC
-from ..errors import OrbitFormatError
-from ..orbits import OrbitSet
+from ...ground.constants import GPS_PI, GPS_REFERENCE_INCLINATION_SC, QZSS_REFERENCE_INCLINATION_SC
+from ...ground.errors import OrbitFormatError
+from ..orbit_set import OrbitSet
 from .yuma import RawAlmanac, finish_almanac_set, parse_float, parse_int, reference_to_unix_s
 
 # QZSS almanacs use a 0.25-semicircle inclination reference from PRN 193 on

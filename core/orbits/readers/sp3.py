@@ -25,9 +25,9 @@ from pathlib import Path
 
 import numpy as np
 
-from ..constants import GPS_EPOCH_UNIX_S
-from ..errors import OrbitFormatError
-from ..timeutil import unix_to_gps_s
+from ...ground.constants import GPS_EPOCH_UNIX_S
+from ...ground.errors import OrbitFormatError
+from ...ground.timeutil import unix_to_gps_s
 
 _BAD_CLOCK_US = 999_999.0
 

@@ -20,14 +20,19 @@ from datetime import datetime
 
 import numpy as np
 
-from .almanac_model import AlmanacArrays, almanac_ecef
-from .constants import EARTH_ROTATION_RAD_S, GPS_MU_M3_S2, SPEED_OF_LIGHT_M_S, WGS72_MU_M3_S2
-from .errors import ComputationError, InputError
-from .geodesy import Site
-from .orbits import OrbitSet
-from .sgp4_model import sgp4_ecef, sgp4_error_text
-from .signals import DEFAULT_SIGNAL_FOR_SYSTEM, SIGNALS, get_signal
-from .timeutil import TimeGrid, as_time_grid, iso_z, to_unix_s, unix_to_gps_s
+from ..ground.constants import (
+    EARTH_ROTATION_RAD_S,
+    GPS_MU_M3_S2,
+    SPEED_OF_LIGHT_M_S,
+    WGS72_MU_M3_S2,
+)
+from ..ground.errors import ComputationError, InputError
+from ..ground.geodesy import Site
+from ..ground.signals import DEFAULT_SIGNAL_FOR_SYSTEM, SIGNALS, get_signal
+from ..ground.timeutil import TimeGrid, as_time_grid, iso_z, to_unix_s, unix_to_gps_s
+from ..orbits.almanac_model import AlmanacArrays, almanac_ecef
+from ..orbits.orbit_set import OrbitSet
+from ..orbits.sgp4_model import sgp4_ecef, sgp4_error_text
 
 SignalChoice = str | Sequence[str] | Mapping[str, str] | None
 

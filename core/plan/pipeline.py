@@ -7,13 +7,13 @@ change of search parameters only (coherent time, accepted loss, Pfa, ...) re-pla
 
 Chain, per satellite and grid time (arrays (S, T)):
 
-1. geometry (core.predict) and, for large time uncertainty, shifted predictions;
+1. geometry (core.sky.predict) and, for large time uncertainty, shifted predictions;
 2. Doppler windows for the first search (core.windows) with the orbit-data margin;
-3. bins (core.bins) for each signal's coherent time and the accepted loss;
+3. bins (core.search.bins) for each signal's coherent time and the accepted loss;
 4. code-phase window and cells (core.codephase);
 5. C/N0 from the elevation model, less extra, frequency and code losses; Pd from the
    square-law detector (core.detection); mean serial search time;
-6. the channel timeline (core.timeline) with "first" costs until the first acquisition
+6. the channel timeline (core.plan.timeline) with "first" costs until the first acquisition
    and "after" costs (oscillator known, windows narrowed) from then on, and a seeded
    Monte Carlo for the TTFF figures.
 """
@@ -28,18 +28,15 @@ from functools import lru_cache
 
 import numpy as np
 
-from . import bins as binlib
-from . import codephase, detection
-from . import timeline as tl
-from .errors import Cancelled, ComputationError, InputError
-from .geodesy import Site
-from .orbit_margin import L1_HZ, margin_extrapolated, orbit_margin_hz, orbit_range_margin_m
-from .orbits import OrbitFileInfo, OrbitSet
-from .predict import Pass, Prediction, passes, predict
-from .scenario import Scenario
-from .signals import SIGNALS
-from .timeutil import TimeGrid, iso_z, time_grid
-from .windows import (
+from ..ground.errors import Cancelled, ComputationError, InputError
+from ..ground.geodesy import Site
+from ..ground.signals import SIGNALS
+from ..ground.timeutil import TimeGrid, iso_z, time_grid
+from ..orbits.orbit_margin import L1_HZ, margin_extrapolated, orbit_margin_hz, orbit_range_margin_m
+from ..orbits.orbit_set import OrbitFileInfo, OrbitSet
+from ..search import bins as binlib
+from ..search import codephase, detection
+from ..search.windows import (
     DopplerWindows,
     ShiftSummary,
     Uncertainty,
@@ -48,6 +45,9 @@ from .windows import (
     shift_summary,
     windows_after_first_acquisition,
 )
+from ..sky.predict import Pass, Prediction, passes, predict
+from . import timeline as tl
+from .spec import Scenario
 
 ProgressFn = Callable[[float, str], None]
 CancelFn = Callable[[], bool]
@@ -109,7 +109,7 @@ def _select_satellites(orbits: OrbitSet, signals: tuple[str, ...]) -> tuple[Orbi
 
 def prepare_geometry(sc: Scenario, progress: ProgressFn | None = None,
                      cancel: CancelFn | None = None) -> PreparedGeometry:
-    from .readers import load_orbit_files
+    from ..orbits.readers import load_orbit_files
 
     t0 = _time.perf_counter()
     missing = sc.missing_orbit_files()
@@ -401,7 +401,7 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
         n_nc[rows] = nc
         # Expected loss from data-bit / secondary-code sign changes inside a coherent
         # interval: a serial search dwells on the received code epochs at the signal cell
-        # (aligned model); a parallel (FFT) code search starts anywhere (core.bins).
+        # (aligned model); a parallel (FFT) code search starts anywhere (core.search.bins).
         if sc.receiver.parallel_code_search:
             transition_db[rows] = chk.transition_loss_db
         else:
@@ -630,7 +630,7 @@ def _pd_by_table(cn0_eff_dbhz: np.ndarray, coherent_s: np.ndarray, n_nc: np.ndar
 def _grid_index_at(grid: TimeGrid, visible: np.ndarray, s: int, unix_s: float) -> int:
     """The grid sample whose values a search starting at ``unix_s`` uses: the one at or
     before it, or the next one when the satellite is not yet above the mask there (the
-    rule of core.timeline for a search that starts at a rise)."""
+    rule of core.plan.timeline for a search that starts at a rise)."""
     u = grid.unix_s
     k = int(np.clip(np.searchsorted(u, unix_s, side="right") - 1, 0, u.size - 1))
     if not visible[s, k] and k + 1 < u.size:

@@ -23,8 +23,8 @@ import numpy as np
 from numpy.typing import ArrayLike
 from scipy.special import sici
 
-from .errors import InputError
-from .signals import Signal
+from ..ground.errors import InputError
+from ..ground.signals import Signal
 
 # Relative tolerance used when a ratio "is" a whole number (window / bin width,
 # coherent time / code period): float round-off must not add a bin or fail a check.

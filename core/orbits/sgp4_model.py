@@ -16,7 +16,7 @@ from collections.abc import Sequence
 import numpy as np
 from sgp4.api import SGP4_ERRORS, Satrec, SatrecArray
 
-from .timeutil import jd_split_utc, ut1_split
+from ..ground.timeutil import jd_split_utc, ut1_split
 
 
 def gmst82_rad(jd_ut1_whole: np.ndarray, jd_ut1_frac: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -66,8 +66,8 @@ from typing import Any
 
 import numpy as np
 
-from .errors import Cancelled, InputError
-from .timeutil import iso_z
+from ..ground.errors import Cancelled, InputError
+from ..ground.timeutil import iso_z
 
 SEARCH = "search"
 TRACK = "track"

@@ -37,8 +37,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .constants import WGS84_A_M
-from .predict import Prediction
+from ..ground.constants import WGS84_A_M
+from ..sky.predict import Prediction
 
 TERM_NAMES = ("position", "time", "velocity", "oscillator", "orbit")
 
@@ -282,7 +282,7 @@ def shift_summary(orbits, site, times, time_uncertainty_s: float, signals=None
     """Predictions on the grid moved by :func:`time_shifts_s`, reduced to a
     :class:`ShiftSummary` as they are computed, when the time uncertainty is too large for
     the expansion; None otherwise."""
-    from .predict import predict
+    from ..sky.predict import predict
 
     if time_uncertainty_s <= TAYLOR_LIMIT_S:
         return None

@@ -1,7 +1,7 @@
 """Data exports of a plan (JSON, CSV), the per-search list and the content hash.
 
 Pure computation and file output, no Qt. Every file is written atomically
-(:mod:`core.export`: temporary file in the target folder, then rename), so a failed
+(:mod:`core.files.atomic`: temporary file in the target folder, then rename), so a failed
 export never leaves a half-written file; failures raise :class:`~core.errors.InputError`.
 
 Files
@@ -27,7 +27,7 @@ the mapping file, if any. The printed short form is the first 10 hex digits, the
     cat SCENARIO.toml ORBIT_1 ORBIT_2 ... [MAPPING] | sha256sum | cut -c1-10
 
 When the plan's scenario differs from the file on disk (edited and not saved, or never
-saved), the scenario part is the text :func:`core.scenario.scenario_to_toml` would save,
+saved), the scenario part is the text :func:`core.plan.spec.scenario_to_toml` would save,
 and the hash is marked as not from a saved file.
 """
 
@@ -44,12 +44,13 @@ from pathlib import Path
 
 import numpy as np
 
-from . import bins as binlib
-from .errors import InputError
-from .export import write_text_atomic
-from .plan import Plan, plan_to_json
-from .scenario import Scenario, load_scenario, scenario_to_toml
-from .timeutil import iso_z
+from ..ground.errors import InputError
+from ..ground.timeutil import iso_z
+from ..plan.pipeline import Plan, plan_to_json
+from ..plan.spec import Scenario
+from ..search import bins as binlib
+from .atomic import write_text_atomic
+from .scenario import load_scenario, scenario_to_toml
 
 HASH_DIGITS = 10
 

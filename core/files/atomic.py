@@ -10,7 +10,7 @@ import os
 import tempfile
 from pathlib import Path
 
-from .errors import InputError
+from ..ground.errors import InputError
 
 
 def write_bytes_atomic(path: str | os.PathLike[str], data: bytes,

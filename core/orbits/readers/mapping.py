@@ -23,7 +23,7 @@ import re
 from collections.abc import Mapping as MappingABC
 from pathlib import Path
 
-from ..errors import OrbitFormatError
+from ...ground.errors import OrbitFormatError
 from .identity import parse_sat_id
 
 SatMapping = dict[int, tuple[str, int | None]]

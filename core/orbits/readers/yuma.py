@@ -25,10 +25,10 @@ from numbers import Real
 
 import numpy as np
 
-from ..constants import SECONDS_PER_WEEK, WEEKS_PER_ROLLOVER
-from ..errors import InputError, OrbitFormatError
-from ..orbits import AlmanacRecord, OrbitEntry, OrbitFileInfo, OrbitSet, SatelliteInfo
-from ..timeutil import gps_week_tow_to_unix_s, iso_z, resolve_week, to_unix_s
+from ...ground.constants import SECONDS_PER_WEEK, WEEKS_PER_ROLLOVER
+from ...ground.errors import InputError, OrbitFormatError
+from ...ground.timeutil import gps_week_tow_to_unix_s, iso_z, resolve_week, to_unix_s
+from ..orbit_set import AlmanacRecord, OrbitEntry, OrbitFileInfo, OrbitSet, SatelliteInfo
 from .identity import almanac_identity, unique_ids
 
 # ---------------------------------------------------------------- shared helpers

@@ -21,7 +21,6 @@ import math
 import numbers
 import os
 import re
-import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
 from datetime import UTC, date, datetime, time
@@ -29,12 +28,9 @@ from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError, available_timezones
 
-import tomli_w
-
-from .errors import InputError, ScenarioError
-from .export import write_text_atomic
-from .signals import SIGNALS, Signal
-from .timeutil import TimeGrid, iso_z, parse_iso_utc, time_grid
+from ..ground.errors import InputError, ScenarioError
+from ..ground.signals import SIGNALS, Signal
+from ..ground.timeutil import TimeGrid, iso_z, parse_iso_utc, time_grid
 
 FORMAT_VERSION = 1
 MAX_WINDOW_S = 7 * 86_400.0      # longest planning window accepted (7 days)
@@ -797,91 +793,9 @@ def _check_per_signal(chk: _Checker, v: Any) -> list[tuple[str, SignalOverride]]
     return sorted(out, key=lambda item: item[0])
 
 
-# ---------------------------------------------------------------------------------------
-# Files
-
-def load_scenario(path: str | os.PathLike[str], *, check_files: bool = True) -> Scenario:
-    """Read and validate a scenario file.
-
-    With ``check_files`` (default) a missing orbit or mapping file is one more problem.
-    Raises :class:`ScenarioError` (a :class:`ScenarioValidationError` for bad fields).
-    """
-    p = Path(path)
-    file = str(p)
-    try:
-        raw = p.read_bytes()
-    except OSError as exc:
-        raise ScenarioError(f"cannot read the scenario file: {exc.strerror or exc}", file=file) from None
-    try:
-        text = raw.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise ScenarioError(f"the file is not UTF-8 text (byte {exc.start})", file=file) from None
-    try:
-        d = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        m = re.search(r"line (\d+)", str(exc))
-        raise ScenarioError(f"not valid TOML: {exc}", file=file,
-                            line=int(m.group(1)) if m else None) from None
-    sc = _build(d, base_dir=p.resolve().parent, path=p, text=text)
-    if check_files:
-        loc = _Locator(text)
-        problems = []
-        for f, resolved in zip(sc.orbits.files, sc.resolved_orbit_files()):
-            if not resolved.is_file():
-                problems.append(ScenarioError(f"orbit file '{f}' not found (looked for {resolved})",
-                                              file=file, line=loc.line_of("orbits.files"),
-                                              field="orbits.files"))
-        m_path = sc.resolved_mapping()
-        if m_path is not None and not m_path.is_file():
-            problems.append(ScenarioError(f"mapping file '{sc.orbits.mapping}' not found "
-                                          f"(looked for {m_path})", file=file,
-                                          line=loc.line_of("orbits.mapping"), field="orbits.mapping"))
-        if problems:
-            raise ScenarioValidationError(problems, file=file)
-    return sc
-
-
-def _rebase(name: str, old_dir: Path, new_dir: Path) -> str:
-    """A relative orbit file name re-expressed for a scenario saved in another folder."""
-    p = Path(name).expanduser()
-    if p.is_absolute():
-        return name
-    if Path(old_dir).resolve() == Path(new_dir).resolve():
-        return name
-    target = (Path(old_dir) / p).resolve()
-    try:
-        return Path(os.path.relpath(target, Path(new_dir).resolve())).as_posix()
-    except ValueError:            # another drive (Windows)
-        return str(target)
-
-
-def scenario_to_toml(scenario: Scenario) -> str:
-    """The TOML text :func:`save_scenario` writes."""
-    head = ("# acqplan scenario. Keys, units and allowed ranges: docs/scenario-keys.md\n"
-            "# Relative file names are relative to this file's folder.\n\n")
-    return head + tomli_w.dumps(scenario.to_dict())
-
-
-def save_scenario(scenario: Scenario, path: str | os.PathLike[str]) -> Scenario:
-    """Write the scenario atomically (temporary file in the same folder, then rename).
-
-    Relative orbit file names are rewritten so they still point at the same files from
-    the new folder. Returns the scenario as saved (``path`` and ``base_dir`` updated).
-    """
-    p = Path(path)
-    folder = p.resolve().parent
-    orbits = replace(scenario.orbits,
-                     files=tuple(_rebase(f, scenario.base_dir, folder) for f in scenario.orbits.files),
-                     mapping=(None if scenario.orbits.mapping is None
-                              else _rebase(scenario.orbits.mapping, scenario.base_dir, folder)))
-    saved = replace(scenario, orbits=orbits, path=p, base_dir=folder)
-    write_text_atomic(p, scenario_to_toml(saved), ScenarioError, "save the scenario")
-    return saved
-
-
 __all__ = [
     "FORMAT_VERSION", "KEY_RULES", "KeyRule", "MAX_WINDOW_S", "MaskSpec", "OrbitSpec",
     "PER_SIGNAL_KEYS", "PRIORITIES", "REQUIRED", "ReceiverSpec", "Scenario",
     "ScenarioValidationError", "SearchSpec", "SignalOverride", "SignalSpec", "SiteSpec",
-    "TimeSpec", "load_scenario", "save_scenario", "scenario_to_toml",
+    "TimeSpec",
 ]

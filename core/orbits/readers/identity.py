@@ -23,7 +23,7 @@ import re
 from collections.abc import Iterable
 from dataclasses import dataclass
 
-from ..orbits import OrbitEntry
+from ..orbit_set import OrbitEntry
 
 RINEX_LETTERS = "GRECJSI"
 

@@ -1,0 +1,1 @@
+"""What the receiver recorded, and its comparison with the plan."""
