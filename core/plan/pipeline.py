@@ -5,17 +5,23 @@ expensive part (orbit loading and propagation over the test window) once, so tha
 change of search parameters only (coherent time, accepted loss, Pfa, ...) re-plans with
 ``make_plan(scenario, prepared=...)`` without propagating again.
 
-Chain, per satellite and grid time (arrays (S, T)):
+The chain is a sequence of named stages over arrays (S, T) (satellite x grid time), each
+a function of its inputs that another kind of acquisition can call with its own:
 
-1. geometry (core.sky.predict) and, for large time uncertainty, shifted predictions;
-2. Doppler windows for the first search (core.windows) with the orbit-data margin;
-3. bins (core.search.bins) for each signal's coherent time and the accepted loss;
-4. code-phase window and cells (core.codephase);
-5. C/N0 from the elevation model, less extra, frequency and code losses; Pd from the
-   square-law detector (core.detection); mean serial search time;
-6. the channel timeline (core.plan.timeline) with "first" costs until the first acquisition
-   and "after" costs (oscillator known, windows narrowed) from then on, and a seeded
-   Monte Carlo for the TTFF figures.
+0. :func:`prepare_geometry`: orbits, geometry (core.sky.predict), shifted predictions
+   for a large time uncertainty, passes and visibility;
+1. :func:`orbit_margins`: orbit-data margins from the data's kind and age;
+2. :func:`first_windows`: Doppler windows before any acquisition (core.search.windows);
+3. :func:`integration`: coherent/non-coherent integration, bins (core.search.bins) and
+   code-step and transition losses per signal;
+4. :func:`code_windows`: code-phase window and cells (core.search.codephase);
+5. :func:`detection_figures`: C/N0 from the elevation model less the losses, Pd of the
+   square-law detector (core.search.detection);
+6. :func:`search_costs`: bins per window and the serial-search figures;
+7. :func:`after_first_acquisition`: the narrowed windows once the oscillator is known;
+8. the channel timeline (core.plan.timeline) with "first" costs until the first
+   acquisition and "after" costs from then on, and the seeded Monte Carlo for TTFF;
+9. :func:`satellite_summaries`: per satellite, its passes and first search.
 """
 
 from __future__ import annotations
@@ -47,7 +53,7 @@ from ..search.windows import (
 )
 from ..sky.predict import Pass, Prediction, passes, predict
 from . import timeline as tl
-from .spec import Scenario
+from .spec import Scenario, SearchSpec
 
 ProgressFn = Callable[[float, str], None]
 CancelFn = Callable[[], bool]
@@ -304,7 +310,8 @@ def _fmt_s(v: float | None) -> str:
 
 # --- the chain --------------------------------------------------------------------------
 
-def _uncertainty(sc: Scenario) -> Uncertainty:
+def acquisition_uncertainty(sc: Scenario) -> Uncertainty:
+    """What the receiver does not know at the start of the window, from the scenario."""
     return Uncertainty(horizontal_m=sc.site.horizontal_uncertainty_km * 1000.0,
                        vertical_m=sc.site.vertical_uncertainty_m,
                        time_s=sc.time.uncertainty_s,
@@ -314,72 +321,115 @@ def _uncertainty(sc: Scenario) -> Uncertainty:
                        oscillator_uncertainty_ppb=sc.receiver.oscillator_uncertainty_ppb)
 
 
+_uncertainty = acquisition_uncertainty     # the name the tests and the window know
+
+
 def _data_age_s(orbits: OrbitSet, at_unix_s: float) -> np.ndarray:
     return np.array([at_unix_s - e.info.epoch_unix_s for e in orbits.entries])
 
 
-def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
-              progress: ProgressFn | None = None, cancel: CancelFn | None = None,
-              monte_carlo: bool = True) -> Plan:
-    """The full plan. Pass ``prepared`` (from an earlier plan or prepare_geometry) to skip
-    propagation when only search parameters changed; it is rebuilt if it does not fit.
+# --- the stages of a plan -----------------------------------------------------------------
+#
+# make_plan runs them in order; an acquisition planned elsewhere (another start, another
+# geometry) calls the same stages with its own inputs.
 
-    With ``monte_carlo=False`` the TTFF statistics are left out (``plan.ttff`` is None)
-    so that an interactive re-plan returns fast; :func:`add_monte_carlo` fills them in."""
-    t_start = _time.perf_counter()
-    reused = prepared is not None and prepared.key == geometry_key(sc)
-    if not reused:
-        prepared = prepare_geometry(sc, progress, cancel)
-    assert prepared is not None
-    g = prepared
+@dataclass(frozen=True)
+class OrbitMargins:
+    """Orbit-data margins per (S, T), from the kind and age of each satellite's data."""
+
+    doppler_hz: np.ndarray
+    range_m: np.ndarray
+    age_s: np.ndarray
+    kinds: tuple[str, ...]
+    warnings: list[str]
+
+
+def orbit_margins(search: SearchSpec, g: PreparedGeometry) -> OrbitMargins:
+    """Stage 1: the Doppler and range margins for orbit-data error at each grid time."""
     pred, orbits, grid = g.prediction, g.orbits, g.grid
-    warnings = list(g.warnings)
     n_s, n_t = pred.elevation_deg.shape
-    signals = [SIGNALS[s] for s in g.signal_ids]
-    _report(progress, 0.6, "computing Doppler windows")
-
-    # Orbit-data margin per satellite and time, from the data age at each grid time.
     epochs = np.array([e.info.epoch_unix_s for e in orbits.entries])
     age = grid.unix_s[None, :] - epochs[:, None]                     # (S, T) seconds
-    kinds = [e.info.source_kind for e in orbits.entries]
-    if sc.search.orbit_margin_hz is not None:
-        margin_t = (np.full(n_s, float(sc.search.orbit_margin_hz)) * pred.carrier_hz / L1_HZ)[:, None] \
+    kinds = tuple(e.info.source_kind for e in orbits.entries)
+    if search.orbit_margin_hz is not None:
+        margin_t = (np.full(n_s, float(search.orbit_margin_hz)) * pred.carrier_hz / L1_HZ)[:, None] \
             * np.ones((1, n_t))
     else:
         margin_t = np.stack([orbit_margin_hz(k, a, f) for k, a, f in zip(kinds, age, pred.carrier_hz)])
     range_margin = np.stack([orbit_range_margin_m(k, a) for k, a in zip(kinds, age)])
+    warnings = []
     old = sorted({e.info.sat_id for e, k, a in zip(orbits.entries, kinds, age)
                   if bool(np.any(margin_extrapolated(k, a)))})
-    if old and sc.search.orbit_margin_hz is None:
+    if old and search.orbit_margin_hz is None:
         warnings.append(
             f"orbit data older than the ages the default margin was derived for "
             f"(docs/orbit-margin.md) for {len(old)} satellite(s) ({', '.join(old[:6])}"
             f"{', ...' if len(old) > 6 else ''}): windows may be too narrow; use fresher "
             "data or set [search] orbit_margin_hz")
-    unc = _uncertainty(sc)
+    return OrbitMargins(margin_t, range_margin, age, kinds, warnings)
+
+
+def unknown_glonass_k(g: PreparedGeometry) -> np.ndarray:
+    """(S,) True for GLONASS satellites whose frequency channel is not known."""
+    return np.array([e.info.system == "R" and e.info.glonass_k is None for e in g.orbits.entries])
+
+
+def uncertainty_warnings(sc: Scenario, g: PreparedGeometry) -> list[str]:
+    warnings = []
     if sc.site.horizontal_uncertainty_km > LOCAL_DISC_LIMIT_KM:
         warnings.append(
             f"horizontal uncertainty {sc.site.horizontal_uncertainty_km:g} km: the window's position "
             f"term is a local expansion (the tests check it against brute force up to 100 km); beyond "
             f"{LOCAL_DISC_LIMIT_KM:g} km plan a full-range (unassisted) search instead")
-    unknown_k = np.array([e.info.system == "R" and e.info.glonass_k is None for e in orbits.entries])
+    unknown_k = unknown_glonass_k(g)
     if unknown_k.any():
         warnings.append(
             f"GLONASS channel k unknown for {int(unknown_k.sum())} satellite(s): windows are "
             "planned on the k = 0 carrier and widened to hold every channel -7..+6 (and the "
             "receiver must also find the channel); give k in a mapping file ([orbits] mapping)")
-    # Windows depend on the uncertainties and the margin only: cached per prepared geometry.
-    wkey = (unc, margin_t.tobytes())
+    return warnings
+
+
+def first_windows(g: PreparedGeometry, unc: Uncertainty, margins: OrbitMargins
+                  ) -> tuple[DopplerWindows, DopplerWindows]:
+    """Stage 2: Doppler windows before any acquisition, as computed (``raw``) and widened
+    for unknown GLONASS channels. They depend on the uncertainties and the margin only,
+    so they are cached on the prepared geometry."""
+    wkey = (unc, margins.doppler_hz.tobytes())
     cached = g.window_cache.get(wkey)
     if cached is None:
-        w_raw = doppler_windows(pred, unc, margin_t, shifted=g.shifted)
-        cached = (w_raw, _widen_for_unknown_k(w_raw, unknown_k))
+        w_raw = doppler_windows(g.prediction, unc, margins.doppler_hz, shifted=g.shifted)
+        cached = (w_raw, _widen_for_unknown_k(w_raw, unknown_glonass_k(g)))
         g.window_cache.clear()
         g.window_cache[wkey] = cached
-    w_raw, w_first = cached
+    return cached
 
-    # Coherent integration per signal, checked against the signal; code-step loss per
-    # signal (BOC(1,1) for Galileo E1 and BeiDou B1C, BPSK for the rest).
+
+@dataclass(frozen=True)
+class Integration:
+    """Coherent and non-coherent integration per satellite row, with the losses that follow
+    from it: bin design and code-step loss per signal, per-row arrays (S,) or (S, 1)."""
+
+    design: dict[str, binlib.BinDesign]
+    code_loss: dict[str, codephase.CodeStepLoss]
+    coherent_s: np.ndarray          # (S,)
+    noncoherent: np.ndarray         # (S,) int
+    transition_db: np.ndarray       # (S,)
+    code_loss_db: np.ndarray        # (S,)
+    bin_width_hz: np.ndarray        # (S, 1)
+    average_frequency_loss_db: np.ndarray   # (S, 1)
+    warnings: list[str]
+
+    @property
+    def dwell_s(self) -> np.ndarray:
+        return self.coherent_s * self.noncoherent
+
+
+def integration(sc: Scenario, signal_ids: list[str]) -> Integration:
+    """Stage 3: coherent integration per signal, checked against the signal; bins; the
+    code-step loss (BOC(1,1) for Galileo E1 and BeiDou B1C, BPSK for the rest) and the
+    expected loss from data-bit / secondary-code sign changes."""
+    n_s = len(signal_ids)
     step = sc.search.code_step_chips
     design: dict[str, binlib.BinDesign] = {}
     code_loss: dict[str, codephase.CodeStepLoss] = {}
@@ -387,7 +437,8 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
     n_nc = np.zeros(n_s, dtype=int)
     transition_db = np.zeros(n_s)
     code_loss_db = np.zeros(n_s)
-    for sid in sorted(set(g.signal_ids)):
+    warnings: list[str] = []
+    for sid in sorted(set(signal_ids)):
         sig = SIGNALS[sid]
         coh_ms, nc = sc.search.integration_for(sid)
         chk = binlib.check_coherent_time(sig, coh_ms / 1000.0)
@@ -396,140 +447,214 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
         warnings.extend(f"{sid}: {w}" for w in chk.warnings)
         design[sid] = binlib.design_bins(coh_ms / 1000.0, sc.search.max_frequency_loss_db)
         code_loss[sid] = codephase.code_step_loss(step, codephase.correlation_shape_for(sig))
-        rows = [i for i, x in enumerate(g.signal_ids) if x == sid]
+        rows = [i for i, x in enumerate(signal_ids) if x == sid]
         tc_s[rows] = coh_ms / 1000.0
         n_nc[rows] = nc
-        # Expected loss from data-bit / secondary-code sign changes inside a coherent
-        # interval: a serial search dwells on the received code epochs at the signal cell
-        # (aligned model); a parallel (FFT) code search starts anywhere (core.search.bins).
+        # A serial search dwells on the received code epochs at the signal cell (aligned
+        # model); a parallel (FFT) code search starts anywhere (core.search.bins).
         if sc.receiver.parallel_code_search:
             transition_db[rows] = chk.transition_loss_db
         else:
             transition_db[rows] = binlib.aligned_transition_loss_db(
                 coh_ms / 1000.0, sig.symbol_period_s, sig.code_period_s)
         code_loss_db[rows] = code_loss[sid].average_loss_db
-    width = np.array([design[x].bin_width_hz for x in g.signal_ids])[:, None]
-    half = width / 2.0
-    avg_freq_loss = np.array([design[x].average_loss_db for x in g.signal_ids])[:, None]
+    width = np.array([design[x].bin_width_hz for x in signal_ids])[:, None]
+    avg_freq_loss = np.array([design[x].average_loss_db for x in signal_ids])[:, None]
+    return Integration(design, code_loss, tc_s, n_nc, transition_db, code_loss_db, width,
+                       avg_freq_loss, warnings)
 
-    # Code phase.
+
+@dataclass(frozen=True)
+class CodeWindows:
+    """Code-phase windows (chips) before any acquisition, the non-clock part of the range
+    uncertainty (m) that stays after it, and the cells the first window needs."""
+
+    first_chips: np.ndarray
+    after_base_m: np.ndarray
+    cells_first: np.ndarray
+    code_length_chips: np.ndarray    # (S, 1)
+    chip_length_m: np.ndarray        # (S, 1)
+    fine_time: bool
+    warnings: list[str]
+
+
+def code_windows(sc: Scenario, g: PreparedGeometry, unc: Uncertainty,
+                 margins: OrbitMargins) -> CodeWindows:
+    """Stage 4: the code window: the whole code, or with fine time the range uncertainty
+    (position, satellite motion over the fine-time error, orbit margin, satellite clock)."""
+    pred = g.prediction
+    n_s, n_t = pred.elevation_deg.shape
+    signals = [SIGNALS[s] for s in g.signal_ids]
     code_len = np.array([float(x.code_length_chips) for x in signals])[:, None]
     chip_m = np.array([x.chip_length_m for x in signals])[:, None]
     fine = sc.search.fine_time_uncertainty_us
+    range_margin = margins.range_m
+    warnings: list[str] = []
     if fine is not None:
         # Satellite clock: a TLE carries none (broadcast offsets reach 0.57 ms, 171 km,
         # in the TLE pairs of docs/orbit-margin.md), so fine time cannot narrow the code
         # window of a TLE satellite; almanac clock terms were off by 190 m at 1 day and
         # 1161 m at 27.8 days there: margin 200 m + 40 m per day of age.
-        is_alm = np.array(kinds)[:, None] == "almanac"
-        clock_m = np.where(is_alm, 200.0 + 40.0 * np.abs(age) / 86400.0, np.inf)
+        is_alm = np.array(margins.kinds)[:, None] == "almanac"
+        clock_m = np.where(is_alm, 200.0 + 40.0 * np.abs(margins.age_s) / 86400.0, np.inf)
         range_margin = range_margin + clock_m
         if not is_alm.all():
             warnings.append("fine time does not narrow the code window of TLE satellites "
                             "(a TLE holds no satellite clock): they search the whole code")
-    el_ok = np.where(pred.valid, pred.elevation_deg, -90.0)
     if fine is None:
         cw_first = np.broadcast_to(code_len, (n_s, n_t)).copy()
         cw_after_base = cw_first.copy()
     else:
+        el_ok = np.where(pred.valid, pred.elevation_deg, -90.0)
         budget = codephase.range_uncertainty_budget(
             unc.horizontal_m, unc.vertical_m, el_ok, fine * 1e-6,
             np.where(pred.valid, pred.range_rate_m_s, 0.0), fine * 1e-6)
         non_clock = np.asarray(budget.position_m) + np.asarray(budget.satellite_motion_m) + range_margin
         cw_first = np.minimum(2.0 * (non_clock + np.asarray(budget.clock_m)) / chip_m, code_len)
         cw_after_base = non_clock
-    cells_first = np.maximum(codephase.code_cells(cw_first, step), 1)
+    cells_first = np.maximum(codephase.code_cells(cw_first, sc.search.code_step_chips), 1)
+    return CodeWindows(cw_first, cw_after_base, cells_first, code_len, chip_m, fine is not None,
+                       warnings)
 
-    # Detection (failed propagation samples count as below the mask: never searched).
-    mask = sc.mask.elevation_deg
+
+@dataclass(frozen=True)
+class DetectionFigures:
+    """C/N0 per (S, T) from the elevation model, the losses, Pd per (S, T) and the
+    sensitivity (C/N0 for Pd = 0.9) per signal."""
+
+    cn0_dbhz: np.ndarray
+    losses_db: np.ndarray
+    pd: np.ndarray
+    sensitivity_dbhz: dict[str, float]
+
+
+def detection_figures(sc: Scenario, g: PreparedGeometry, integ: Integration,
+                      extra_loss_db: np.ndarray | float = 0.0) -> DetectionFigures:
+    """Stage 5: C/N0 less the extra, average frequency, code-step and transition losses,
+    and Pd of the square-law detector. ``extra_loss_db`` adds attenuation per (S, T)
+    (surroundings) on top of the scenario's ``[signal] extra_loss_db``. Failed
+    propagation samples count as below the mask: never searched."""
+    pred = g.prediction
+    el_ok = np.where(pred.valid, pred.elevation_deg, -90.0)
     cn0 = detection.cn0_at_elevation_dbhz(el_ok, sc.signal.cn0_zenith_dbhz,
-                                          sc.signal.cn0_at_mask_dbhz, mask)
-    losses_db = sc.signal.extra_loss_db + avg_freq_loss + (code_loss_db + transition_db)[:, None]
-    cn0_eff = np.asarray(cn0) - losses_db
+                                          sc.signal.cn0_at_mask_dbhz, sc.mask.elevation_deg)
+    losses_db = (sc.signal.extra_loss_db + integ.average_frequency_loss_db
+                 + (integ.code_loss_db + integ.transition_db)[:, None])
+    cn0_eff = np.asarray(cn0) - losses_db - extra_loss_db
     pfa = sc.search.false_alarm_per_cell
-    pd = _pd_by_table(np.asarray(cn0_eff, dtype=float), tc_s, n_nc, pfa)
+    pd = _pd_by_table(np.asarray(cn0_eff, dtype=float), integ.coherent_s, integ.noncoherent, pfa)
     sens = {}
-    for sid in design:
+    for sid in integ.design:
         row = g.signal_ids.index(sid)
         coh_ms, nc = sc.search.integration_for(sid)
         sens[sid] = _sensitivity_dbhz(float(pfa), int(nc), coh_ms / 1000.0, float(losses_db[row, 0]))
+    return DetectionFigures(np.asarray(cn0), losses_db, pd, sens)
 
-    def costs(windows: DopplerWindows, cells: np.ndarray):
-        nb = np.maximum(np.asarray(binlib.bin_count(windows.low_hz, windows.high_hz, width)), 1)
-        cost = detection.search_cost(nb, cells, sc.receiver.correlators_per_channel,
-                                     sc.receiver.parallel_code_search, tc_s[:, None], n_nc[:, None],
-                                     pfa, pd, sc.search.false_alarm_penalty_s)
-        return nb, cost
 
-    _report(progress, 0.7, "search costs")
-    bins_first, cost_first = costs(w_first, cells_first)
+def search_costs(sc: Scenario, integ: Integration, det: DetectionFigures,
+                 windows: DopplerWindows, cells: np.ndarray):
+    """Stage 6: bins over each window and the serial-search figures (positions, Pfa per
+    position, mean search time) per (S, T)."""
+    nb = np.maximum(np.asarray(binlib.bin_count(windows.low_hz, windows.high_hz,
+                                                integ.bin_width_hz)), 1)
+    pfa = sc.search.false_alarm_per_cell
+    cost = detection.search_cost(nb, cells, sc.receiver.correlators_per_channel,
+                                 sc.receiver.parallel_code_search, integ.coherent_s[:, None],
+                                 integ.noncoherent[:, None], pfa, det.pd,
+                                 sc.search.false_alarm_penalty_s)
+    return nb, cost
 
+
+def refined_passes(g: PreparedGeometry) -> dict[str, list[tuple[float, float]]]:
+    """Refined (rise, set) pairs per healthy satellite; unhealthy ones get none."""
     refined: dict[str, list[tuple[float, float]]] = {}
     for ps in g.passes:
         refined.setdefault(ps.sat_id, []).append((ps.rise_unix_s, ps.set_unix_s))
-    healthy_ids = {e.info.sat_id for e in orbits.entries if e.info.healthy}
+    healthy_ids = {e.info.sat_id for e in g.orbits.entries if e.info.healthy}
     refined = {k: v for k, v in refined.items() if k in healthy_ids}
-    for sid in pred.ids:
+    for sid in g.prediction.ids:
         if sid not in healthy_ids:
             refined[sid] = []
+    return refined
 
-    def timeline_inputs(cost_after):
-        return tl.TimelineInputs(
-            times_unix_s=grid.unix_s, sat_ids=tuple(pred.ids), visible=g.visible,
-            priority=np.where(g.visible, _priority(sc.search.priority, pred), -1000.0),
-            expected_search_first_s=np.where(g.visible, cost_first.expected_search_s, np.inf),
-            expected_search_after_s=np.where(g.visible, cost_after.expected_search_s, np.inf),
-            n_channels=sc.receiver.channels, first_fix_satellites=sc.search.first_fix_satellites,
-            ephemeris_wait_s=sc.search.ephemeris_wait_s,
-            q_first=np.asarray(cost_first.positions), q_after=np.asarray(cost_after.positions),
-            pd_first=pd, pd_after=pd,
-            pfa_position=np.asarray(cost_first.pfa_position),
-            pfa_position_after=np.asarray(cost_after.pfa_position),
-            dwell_s=np.broadcast_to((tc_s * n_nc)[:, None], (n_s, n_t)).copy(),
-            penalty_s=sc.search.false_alarm_penalty_s, set_unix_s=refined)
 
-    # Pass 1 finds the searches that run before any acquisition (they use "first" costs,
-    # so the after-costs cannot change them). Any of them may be the first acquired in a
-    # real run (or a Monte Carlo run), so the after-windows take the worst of them: the
-    # largest (half bin + own non-oscillator uncertainty) / carrier at its search start.
-    _check_cancel(cancel)
-    _report(progress, 0.75, "channel timeline")
-    first_tl = tl.expected_timeline(timeline_inputs(cost_first))
+def timeline_inputs(sc: Scenario, g: PreparedGeometry, integ: Integration,
+                    det: DetectionFigures, cost_first, cost_after,
+                    refined: dict[str, list[tuple[float, float]]]) -> tl.TimelineInputs:
+    """What the channel simulation needs, with the "first" costs until the first
+    acquisition and the "after" costs from then on."""
+    pred = g.prediction
+    n_s, n_t = pred.elevation_deg.shape
+    return tl.TimelineInputs(
+        times_unix_s=g.grid.unix_s, sat_ids=tuple(pred.ids), visible=g.visible,
+        priority=np.where(g.visible, _priority(sc.search.priority, pred), -1000.0),
+        expected_search_first_s=np.where(g.visible, cost_first.expected_search_s, np.inf),
+        expected_search_after_s=np.where(g.visible, cost_after.expected_search_s, np.inf),
+        n_channels=sc.receiver.channels, first_fix_satellites=sc.search.first_fix_satellites,
+        ephemeris_wait_s=sc.search.ephemeris_wait_s,
+        q_first=np.asarray(cost_first.positions), q_after=np.asarray(cost_after.positions),
+        pd_first=det.pd, pd_after=det.pd,
+        pfa_position=np.asarray(cost_first.pfa_position),
+        pfa_position_after=np.asarray(cost_after.pfa_position),
+        dwell_s=np.broadcast_to(integ.dwell_s[:, None], (n_s, n_t)).copy(),
+        penalty_s=sc.search.false_alarm_penalty_s, set_unix_s=refined)
+
+
+@dataclass(frozen=True)
+class AfterAcquisition:
+    """The narrowed search once the first satellite is acquired (oscillator measured)."""
+
+    first_acquired: str | None
+    windows: DopplerWindows
+    code_window_chips: np.ndarray
+
+
+def after_first_acquisition(sc: Scenario, g: PreparedGeometry, integ: Integration,
+                            cw: CodeWindows, w_raw: DopplerWindows, w_first: DopplerWindows,
+                            first_inputs: tl.TimelineInputs) -> AfterAcquisition:
+    """Stage 7: windows after the first acquisition.
+
+    A first timeline pass finds the searches that run before any acquisition (they use
+    "first" costs, so the after-costs cannot change them). Any of them may be the first
+    acquired in a real run (or a Monte Carlo run), so the after-windows take the worst of
+    them: the largest (half bin + own non-oscillator uncertainty) / carrier at its search
+    start."""
+    pred, grid = g.prediction, g.grid
+    first_tl = tl.expected_timeline(first_inputs)
     first_id = min(first_tl.acquisition_unix_s, key=first_tl.acquisition_unix_s.get, default=None)
     candidates = [(pred.ids.index(seg.sat_id), _grid_index_at(grid, g.visible, pred.ids.index(seg.sat_id),
                                                               seg.start_unix_s))
                   for seg in first_tl.segments if seg.kind == "search" and seg.search_state == "first"]
-    if first_id is not None and candidates:
-        c_s = [c[0] for c in candidates]
-        c_k = [c[1] for c in candidates]
-        frac = oscillator_fraction_after(w_first, pred.carrier_hz, c_s, c_k, half[c_s, 0])
-        w_after = _widen_for_unknown_k(
-            windows_after_first_acquisition(w_raw, pred.carrier_hz, frac),
-            unknown_k)
-        if fine is None:
-            cw_after = cw_first
-        else:
-            own = max(cw_after_base[s1, k1] + 0.5 * step * chip_m[s1, 0] for s1, k1 in candidates)
-            cw_after = np.minimum(np.minimum(2.0 * (cw_after_base + own) / chip_m, code_len), cw_first)
+    if first_id is None or not candidates:
+        return AfterAcquisition(first_id, w_first, cw.first_chips)
+    half = integ.bin_width_hz / 2.0
+    c_s = [c[0] for c in candidates]
+    c_k = [c[1] for c in candidates]
+    frac = oscillator_fraction_after(w_first, pred.carrier_hz, c_s, c_k, half[c_s, 0])
+    w_after = _widen_for_unknown_k(windows_after_first_acquisition(w_raw, pred.carrier_hz, frac),
+                                   unknown_glonass_k(g))
+    if not cw.fine_time:
+        cw_after = cw.first_chips
     else:
-        w_after, cw_after = w_first, cw_first
-    cells_after = np.maximum(codephase.code_cells(cw_after, step), 1)
-    bins_after, cost_after = costs(w_after, cells_after)
-    inputs = timeline_inputs(cost_after)
-    timeline = tl.expected_timeline(inputs)
-    warnings.extend(timeline.warnings)
-    _check_cancel(cancel)
-    ttff = None
-    if monte_carlo:
-        _report(progress, 0.85, "Monte Carlo of the time to first fix")
-        ttff = tl.monte_carlo_ttff(inputs, sc.search.monte_carlo_runs, sc.search.seed, cancel)
-        warnings.extend(ttff.warnings)
+        step = sc.search.code_step_chips
+        own = max(cw.after_base_m[s1, k1] + 0.5 * step * cw.chip_length_m[s1, 0]
+                  for s1, k1 in candidates)
+        cw_after = np.minimum(np.minimum(2.0 * (cw.after_base_m + own) / cw.chip_length_m,
+                                         cw.code_length_chips), cw.first_chips)
+    return AfterAcquisition(first_id, w_after, cw_after)
 
-    # Per-satellite search summaries from the timeline's first search of each satellite.
+
+def satellite_summaries(g: PreparedGeometry, integ: Integration, det: DetectionFigures,
+                        timeline: tl.Timeline, w_first: DopplerWindows, w_after: DopplerWindows,
+                        cw_first: np.ndarray, cw_after: np.ndarray, cells_first: np.ndarray,
+                        cells_after: np.ndarray, cost_first, cost_after) -> list[SatellitePlan]:
+    """Stage 8: per satellite, its passes and the first search the timeline gives it."""
+    pred, orbits, grid = g.prediction, g.orbits, g.grid
     first_search: dict[str, tl.TimelineSegment] = {}
     for seg in timeline.segments:
         if seg.kind == "search" and seg.sat_id not in first_search:
             first_search[seg.sat_id] = seg
+    width = integ.bin_width_hz
     sats: list[SatellitePlan] = []
     ages = _data_age_s(orbits, grid.start_unix_s)
     for s, e in enumerate(orbits.entries):
@@ -548,24 +673,79 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
                 bin_width_hz=float(width[s, 0]), bins=int(centres.size), bin_centres_hz=centres,
                 code_window_chips=float((cw_after if after else cw_first)[s, k]),
                 code_cells=int((cells_after if after else cells_first)[s, k]),
-                cn0_dbhz=float(np.asarray(cn0)[s, k]), pd=float(pd[s, k]),
-                dwell_s=float(tc_s[s] * n_nc[s]),
+                cn0_dbhz=float(det.cn0_dbhz[s, k]), pd=float(det.pd[s, k]),
+                dwell_s=float(integ.dwell_s[s]),
                 expected_search_s=float(np.asarray(cost.expected_search_s)[s, k]),
                 channel=seg.channel, acquired_unix_s=timeline.acquisition_unix_s.get(sid))
         sats.append(SatellitePlan(sid, g.signal_ids[s], e.info.system, float(pred.carrier_hz[s]),
                                   e.info.glonass_k, e.info.source_kind, float(ages[s]), e.info.healthy,
                                   [p for p in g.passes if p.sat_id == sid], summary))
+    return sats
+
+
+def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
+              progress: ProgressFn | None = None, cancel: CancelFn | None = None,
+              monte_carlo: bool = True) -> Plan:
+    """The full plan. Pass ``prepared`` (from an earlier plan or prepare_geometry) to skip
+    propagation when only search parameters changed; it is rebuilt if it does not fit.
+
+    With ``monte_carlo=False`` the TTFF statistics are left out (``plan.ttff`` is None)
+    so that an interactive re-plan returns fast; :func:`add_monte_carlo` fills them in."""
+    t_start = _time.perf_counter()
+    reused = prepared is not None and prepared.key == geometry_key(sc)
+    if not reused:
+        prepared = prepare_geometry(sc, progress, cancel)
+    assert prepared is not None
+    g = prepared
+    warnings = list(g.warnings)
+
+    _report(progress, 0.6, "computing Doppler windows")
+    margins = orbit_margins(sc.search, g)
+    unc = acquisition_uncertainty(sc)
+    warnings += margins.warnings + uncertainty_warnings(sc, g)
+    w_raw, w_first = first_windows(g, unc, margins)
+    integ = integration(sc, g.signal_ids)
+    warnings += integ.warnings
+    cw = code_windows(sc, g, unc, margins)
+    warnings += cw.warnings
+    det = detection_figures(sc, g, integ)
+
+    _report(progress, 0.7, "search costs")
+    bins_first, cost_first = search_costs(sc, integ, det, w_first, cw.cells_first)
+    refined = refined_passes(g)
+
+    _check_cancel(cancel)
+    _report(progress, 0.75, "channel timeline")
+    after = after_first_acquisition(sc, g, integ, cw, w_raw, w_first,
+                                    timeline_inputs(sc, g, integ, det, cost_first, cost_first, refined))
+    cells_after = np.maximum(codephase.code_cells(after.code_window_chips, sc.search.code_step_chips), 1)
+    bins_after, cost_after = search_costs(sc, integ, det, after.windows, cells_after)
+    inputs = timeline_inputs(sc, g, integ, det, cost_first, cost_after, refined)
+    timeline = tl.expected_timeline(inputs)
+    warnings.extend(timeline.warnings)
+    _check_cancel(cancel)
+    ttff = None
+    if monte_carlo:
+        _report(progress, 0.85, "Monte Carlo of the time to first fix")
+        ttff = tl.monte_carlo_ttff(inputs, sc.search.monte_carlo_runs, sc.search.seed, cancel)
+        warnings.extend(ttff.warnings)
+
+    sats = satellite_summaries(g, integ, det, timeline, w_first, after.windows, cw.first_chips,
+                               after.code_window_chips, cw.cells_first, cells_after,
+                               cost_first, cost_after)
     _report(progress, 1.0, "done")
-    plan = Plan(scenario=sc, times=grid, satellites=sats, prediction=pred, visible=g.visible,
-                windows_first=w_first, windows_after=w_after, bin_design=design,
-                bins_first=bins_first, bins_after=bins_after,
-                code_window_first_chips=cw_first, code_window_after_chips=cw_after,
-                code_cells_first=np.asarray(cells_first), code_cells_after=np.asarray(cells_after),
-                cn0_dbhz=np.asarray(cn0), pd_first=pd, pd_after=pd,
+    plan = Plan(scenario=sc, times=g.grid, satellites=sats, prediction=g.prediction,
+                visible=g.visible, windows_first=w_first, windows_after=after.windows,
+                bin_design=integ.design, bins_first=bins_first, bins_after=bins_after,
+                code_window_first_chips=cw.first_chips,
+                code_window_after_chips=after.code_window_chips,
+                code_cells_first=np.asarray(cw.cells_first), code_cells_after=np.asarray(cells_after),
+                cn0_dbhz=det.cn0_dbhz, pd_first=det.pd, pd_after=det.pd,
                 expected_search_first_s=np.asarray(cost_first.expected_search_s),
                 expected_search_after_s=np.asarray(cost_after.expected_search_s),
-                sensitivity_dbhz=sens, code_step_loss=code_loss, timeline=timeline, ttff=ttff,
-                first_acquired=first_id, orbit_files=list(orbits.files), warnings=_dedupe(warnings),
+                sensitivity_dbhz=det.sensitivity_dbhz, code_step_loss=integ.code_loss,
+                timeline=timeline, ttff=ttff, first_acquired=after.first_acquired,
+                orbit_files=list(g.orbits.files), warnings=_dedupe(warnings),
                 propagate_s=g.propagate_s, reused_geometry=reused,
                 first_fix_unix_s=timeline.first_fix_unix_s)
     plan.compute_s = _time.perf_counter() - t_start
