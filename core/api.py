@@ -1,0 +1,114 @@
+"""The public calls of acqplan's core, in one place.
+
+The command line and the window import from here::
+
+    from core.api import load_scenario, make_plan, plan_to_json
+
+Names are resolved on first use (PEP 562), so importing this module costs nothing and a
+command pays only for the stages it runs (``acqplan bins`` never loads the propagators).
+The table below is the whole public surface; everything else in ``core`` is internal to
+its stage and may change.
+"""
+
+from __future__ import annotations
+
+import importlib
+from typing import TYPE_CHECKING, Any
+
+# public name -> module that defines it, grouped by stage of the data flow
+_PUBLIC: dict[str, str] = {
+    # ground: errors, time, geodesy, signals
+    "AcqplanError": "core.ground.errors",
+    "InputError": "core.ground.errors",
+    "ComputationError": "core.ground.errors",
+    "Cancelled": "core.ground.errors",
+    "TimeGrid": "core.ground.timeutil",
+    "time_grid": "core.ground.timeutil",
+    "parse_iso_utc": "core.ground.timeutil",
+    "iso_z": "core.ground.timeutil",
+    "Site": "core.ground.geodesy",
+    "SIGNALS": "core.ground.signals",
+    "get_signal": "core.ground.signals",
+    # orbits: files in, satellite states out
+    "OrbitSet": "core.orbits.orbit_set",
+    "load_orbits": "core.orbits.readers",
+    "load_orbit_files": "core.orbits.readers",
+    "load_mapping": "core.orbits.readers",
+    # sky: what the receiver sees
+    "Prediction": "core.sky.predict",
+    "Pass": "core.sky.predict",
+    "predict": "core.sky.predict",
+    "passes": "core.sky.predict",
+    # search: one acquisition's search space
+    "Uncertainty": "core.search.windows",
+    "doppler_windows": "core.search.windows",
+    "design_bins": "core.search.bins",
+    "bin_centres": "core.search.bins",
+    "loss_curve": "core.search.bins",
+    # plan: acquisitions over time
+    "Scenario": "core.plan.spec",
+    "ScenarioValidationError": "core.plan.spec",
+    "KEY_RULES": "core.plan.spec",
+    "Plan": "core.plan.pipeline",
+    "PreparedGeometry": "core.plan.pipeline",
+    "prepare_geometry": "core.plan.pipeline",
+    "make_plan": "core.plan.pipeline",
+    "add_monte_carlo": "core.plan.pipeline",
+    "plan_to_json": "core.plan.pipeline",
+    "plan_rows": "core.plan.pipeline",
+    "timeline_rows": "core.plan.pipeline",
+    "SUMMARY_COLUMNS": "core.plan.pipeline",
+    # files: text in and out
+    "load_scenario": "core.files.scenario",
+    "save_scenario": "core.files.scenario",
+    "scenario_to_toml": "core.files.scenario",
+    "export_all": "core.files.plan_export",
+    "content_hash": "core.files.plan_export",
+    "write_text_atomic": "core.files.atomic",
+    "write_bytes_atomic": "core.files.atomic",
+    "write_demo": "core.files.demo",
+}
+
+__all__ = sorted(_PUBLIC)
+
+
+def __getattr__(name: str) -> Any:
+    try:
+        module = _PUBLIC[name]
+    except KeyError:
+        raise AttributeError(f"module 'core.api' has no attribute '{name}'") from None
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value          # resolved once
+    return value
+
+
+def __dir__() -> list[str]:
+    return __all__
+
+
+if TYPE_CHECKING:  # the same names, for type checkers and editors
+    from core.files.atomic import write_bytes_atomic, write_text_atomic  # noqa: F401
+    from core.files.demo import write_demo  # noqa: F401
+    from core.files.plan_export import content_hash, export_all  # noqa: F401
+    from core.files.scenario import load_scenario, save_scenario, scenario_to_toml  # noqa: F401
+    from core.ground.errors import AcqplanError, Cancelled, ComputationError, InputError  # noqa: F401
+    from core.ground.geodesy import Site  # noqa: F401
+    from core.ground.signals import SIGNALS, get_signal  # noqa: F401
+    from core.ground.timeutil import TimeGrid, iso_z, parse_iso_utc, time_grid  # noqa: F401
+    from core.orbits.orbit_set import OrbitSet  # noqa: F401
+    from core.orbits.readers import load_mapping, load_orbit_files, load_orbits  # noqa: F401
+    from core.plan.pipeline import (  # noqa: F401
+        SUMMARY_COLUMNS,
+        Plan,
+        PreparedGeometry,
+        add_monte_carlo,
+        make_plan,
+        plan_rows,
+        plan_to_json,
+        prepare_geometry,
+        timeline_rows,
+    )
+    from core.plan.spec import KEY_RULES, Scenario, ScenarioValidationError  # noqa: F401
+    from core.search.bins import bin_centres, design_bins, loss_curve  # noqa: F401
+    from core.search.windows import Uncertainty, doppler_windows  # noqa: F401
+    from core.sky.predict import Pass, Prediction, passes, predict  # noqa: F401
