@@ -40,9 +40,14 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from core.files.scenario import load_scenario, save_scenario
-from core.ground.errors import AcqplanError, InputError
-from core.plan.spec import Scenario, ScenarioValidationError
+from core.api import (
+    AcqplanError,
+    InputError,
+    Scenario,
+    ScenarioValidationError,
+    load_scenario,
+    save_scenario,
+)
 
 from .models import PlanModel
 from .scenario_panel import ScenarioPanel
@@ -529,7 +534,7 @@ class PlannerWindow(QMainWindow):
         else:
             import tempfile
 
-            from core.files.demo import write_demo
+            from core.api import write_demo
 
             path = write_demo(Path(tempfile.mkdtemp(prefix="acqplan-demo-")))
         return self.open_scenario(path, template=True)

@@ -29,7 +29,7 @@ from PySide6.QtCore import (
 )
 from PySide6.QtGui import QBrush, QColor
 
-from core.plan.pipeline import Plan
+from core.api import Plan
 
 from .qt_compat import guard_singleton_refcounts
 from .style import style_for

@@ -46,7 +46,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from core.ground.signals import SIGNALS
+from core.api import SIGNALS
 from core.plan.spec import (
     FORMAT_VERSION,
     KEY_RULES,
@@ -386,7 +386,7 @@ class TimeEditor(FieldEditor):
 
     def set_value(self, value: Any) -> None:
         if isinstance(value, str):
-            from core.ground.timeutil import parse_iso_utc
+            from core.api import parse_iso_utc
 
             value = parse_iso_utc(value)
         if isinstance(value, datetime):

@@ -13,7 +13,7 @@ from PySide6.QtCore import QBuffer, QByteArray, QIODevice
 from PySide6.QtGui import QPixmap
 from PySide6.QtWidgets import QApplication, QWidget
 
-from core.files.atomic import write_bytes_atomic
+from core.api import write_bytes_atomic
 
 WINDOW_FILE = "window.png"
 

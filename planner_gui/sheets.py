@@ -43,6 +43,7 @@ from zoneinfo import ZoneInfo
 
 import numpy as np
 
+from core.api import InputError, Plan
 from core.files.plan_export import (
     ContentHash,
     SearchEntry,
@@ -52,8 +53,6 @@ from core.files.plan_export import (
     search_entries,
     view_intervals,
 )
-from core.ground.errors import InputError
-from core.plan.pipeline import Plan
 from planner_gui import sheet_charts as charts
 from planner_gui.sheet_layout import (
     ACCENT,
@@ -1191,7 +1190,7 @@ def write_sheet_pdf(plan: Plan, path: str | os.PathLike[str], paper: str = "a4",
     """
     from PySide6.QtCore import QBuffer, QIODevice
 
-    from core.files.atomic import write_bytes_atomic
+    from core.api import write_bytes_atomic
 
     paper = paper.lower()
     if paper not in PAPER_MM:
@@ -1258,15 +1257,14 @@ def _paint_guarded(plan: Plan, printer, parent) -> bool:
 
 def run_sheet_command(args) -> int:
     """``acqplan sheet SCENARIO.toml -o plan.pdf [--paper a4|letter] [--demo]``."""
-    from core.files.scenario import load_scenario
-    from core.plan.pipeline import make_plan
+    from core.api import load_scenario, make_plan
 
     prog = "acqplan sheet"
     try:
         if bool(args.demo) == bool(args.scenario):
             raise InputError("give either a scenario file or --demo")
         if args.demo:
-            from core.files.demo import write_demo
+            from core.api import write_demo
 
             with tempfile.TemporaryDirectory(prefix="acqplan-demo-") as tmp:
                 plan = make_plan(load_scenario(write_demo(tmp)))

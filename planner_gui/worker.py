@@ -25,6 +25,7 @@ from dataclasses import dataclass, field, replace
 
 from PySide6.QtCore import QThread, Signal
 
+from core.api import Scenario, loss_curve
 from core.plan.pipeline import (
     Plan,
     PlanCancelled,
@@ -33,8 +34,6 @@ from core.plan.pipeline import (
     geometry_key,
     make_plan,
 )
-from core.plan.spec import Scenario
-from core.search.bins import loss_curve
 
 # Monte Carlo runs of the quick first stage (the smallest the scenario rules allow).
 QUICK_MONTE_CARLO_RUNS = 1
@@ -217,7 +216,7 @@ class PlanWorker(QThread):
                 self._shown.wait(0.01)
                 self._shown.clear()
 
-        from core.ground.errors import AcqplanError
+        from core.api import AcqplanError
 
         try:
             for result in compute(request, progress, cancel, between):

@@ -1,0 +1,70 @@
+"""The ``acqplan`` command line.
+
+One module per command (or pair of related commands), each with a ``register(sub)`` that
+adds its sub-parser; :data:`COMMANDS` lists them in the order ``--help`` shows. Commands
+that need no window never import Qt; ``gui`` and ``sheet`` import it only when run. Every
+command prints ``--help``; bad input ends with exit code 2 and ONE line on stderr naming
+file, line and field.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from collections.abc import Sequence
+
+from core.api import AcqplanError, InputError
+from planner_gui import version
+
+from . import bins, demo, geometry, plan, window
+from ._common import (
+    EXIT_BAD_INPUT,
+    EXIT_FAILURE,
+    EXIT_OK,
+    Parser,
+    format_rows,
+    join_signed_values,
+    one_line,
+    parse_pair,
+    parse_site,
+)
+
+COMMANDS = (geometry, bins, plan, demo, window)
+
+__all__ = ["EXIT_BAD_INPUT", "EXIT_FAILURE", "EXIT_OK", "build_parser", "format_rows", "main",
+           "one_line", "parse_pair", "parse_site"]
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = Parser(prog="acqplan", description="Plan GNSS acquisition searches from almanac or TLE files.")
+    p.add_argument("--version", action="version", version=f"acqplan {version()}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=Parser)
+    for command in COMMANDS:
+        command.register(sub)
+    return p
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    argv = list(sys.argv[1:] if argv is None else argv)
+    parser = build_parser()
+    args = parser.parse_args(join_signed_values(argv))
+    if not getattr(args, "func", None):
+        parser.print_help()
+        return EXIT_BAD_INPUT
+    try:
+        return args.func(args)
+    except InputError as err:
+        print(f"acqplan {args.command}: {one_line(err)}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except AcqplanError as err:
+        print(f"acqplan {args.command}: {err}", file=sys.stderr)
+        return EXIT_FAILURE
+    except OSError as err:
+        name = getattr(err, "filename", None)
+        where = f"{name}: " if name else ""
+        print(f"acqplan {args.command}: {where}{err.strerror or err}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except Exception as err:  # a defect, not bad input: still one line, no traceback
+        print(f"acqplan {args.command}: internal error ({type(err).__name__}: {err}); "
+              "please report it with the command line used", file=sys.stderr)
+        return EXIT_FAILURE

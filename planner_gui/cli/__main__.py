@@ -1,0 +1,3 @@
+from planner_gui.cli import main
+
+raise SystemExit(main())

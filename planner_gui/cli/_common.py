@@ -1,0 +1,138 @@
+"""What every ``acqplan`` command shares: the one-line error form, argument parsing of
+sites and pairs, table/CSV formatting and atomic output."""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import io
+import sys
+from collections.abc import Sequence
+
+from core.api import InputError
+
+EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT = 0, 1, 2
+
+# Options whose values may start with a minus sign (southern/western coordinates,
+# negative frequencies): "--site -33.9,-70.6,520" is rewritten to "--site=-33.9,..."
+# before argparse sees it, since argparse would take the value for an option.
+SIGNED_VALUE_OPTIONS = ("--site", "--span-hz")
+
+
+def join_signed_values(argv: Sequence[str]) -> list[str]:
+    out: list[str] = []
+    i = 0
+    while i < len(argv):
+        arg = argv[i]
+        if arg in SIGNED_VALUE_OPTIONS and i + 1 < len(argv):
+            out.append(f"{arg}={argv[i + 1]}")
+            i += 2
+            continue
+        out.append(arg)
+        i += 1
+    return out
+
+
+class Parser(argparse.ArgumentParser):
+    """argparse whose usage errors are one line and exit 2."""
+
+    def error(self, message: str):  # noqa: D401
+        self.exit(EXIT_BAD_INPUT, f"{self.prog}: error: {message}\n")
+
+
+def one_line(err: InputError) -> str:
+    """The error as one line; several scenario problems are joined with '; '."""
+    problems = getattr(err, "problems", None) or []
+    if len(problems) > 1:
+        file = problems[0].file or err.file
+        parts = []
+        for p in problems:
+            where = ", ".join(x for x in (f"line {p.line}" if p.line is not None else "",
+                                          f"field '{p.field}'" if p.field else "") if x)
+            parts.append(f"{where}: {p.message}" if where else p.message)
+        return f"{file}: {len(problems)} problems: " + "; ".join(parts)
+    return " ".join(str(err).split("\n")) if "\n" in str(err) else str(err)
+
+
+def parse_site(text: str):
+    from core.api import Site
+
+    parts = [p.strip() for p in text.split(",")]
+    if len(parts) != 3:
+        raise InputError(f"'{text}' must be LAT_DEG,LON_DEG,HEIGHT_M (e.g. 47.4,8.5,420)", field="--site")
+    try:
+        lat, lon, h = (float(p) for p in parts)
+    except ValueError:
+        raise InputError(f"'{text}' must be three numbers LAT_DEG,LON_DEG,HEIGHT_M", field="--site") from None
+    try:
+        return Site(lat, lon, h)
+    except InputError as err:
+        raise InputError(err.message, field=f"--site {err.field}") from None
+
+
+def parse_pair(text: str, field: str) -> tuple[float, float]:
+    parts = text.split(",")
+    try:
+        a, b = (float(p) for p in parts)
+    except ValueError:
+        raise InputError(f"'{text}' must be two numbers LOW,HIGH", field=field) from None
+    if not b > a:
+        raise InputError(f"'{text}': HIGH must be above LOW", field=field)
+    return a, b
+
+
+# --- output ------------------------------------------------------------------------------
+
+def emit(text: str, out_path: str | None) -> None:
+    if out_path:
+        from core.api import write_text_atomic
+
+        write_text_atomic(out_path, text)
+    else:
+        sys.stdout.write(text)
+        if not text.endswith("\n"):
+            sys.stdout.write("\n")
+
+
+def format_rows(rows: list[dict], fmt: str, columns: list[str] | None = None) -> str:
+    columns = columns or (list(rows[0]) if rows else [])
+    if fmt == "csv":
+        buf = io.StringIO()
+        w = csv.DictWriter(buf, fieldnames=columns, extrasaction="ignore", lineterminator="\n")
+        w.writeheader()
+        w.writerows(rows)
+        return buf.getvalue()
+    # Table: aligned columns, numbers right-aligned.
+    cells = [[_cell(r.get(c)) for c in columns] for r in rows]
+    widths = [max([len(c)] + [len(row[i]) for row in cells]) for i, c in enumerate(columns)]
+    lines = ["  ".join(c.ljust(w) for c, w in zip(columns, widths))]
+    lines.append("  ".join("-" * w for w in widths))
+    for row in cells:
+        lines.append("  ".join(v.rjust(w) if _numeric(v) else v.ljust(w) for v, w in zip(row, widths)))
+    return "\n".join(lines) + "\n"
+
+
+def _cell(v) -> str:
+    if v is None:
+        return ""
+    if isinstance(v, float):
+        return f"{v:.3f}"
+    return str(v)
+
+
+def _numeric(s: str) -> bool:
+    try:
+        float(s)
+        return True
+    except ValueError:
+        return False
+
+
+def print_warnings(warnings: list[str]) -> None:
+    for w in warnings:
+        print(f"warning: {w}", file=sys.stderr)
+
+
+def output_options(sp) -> None:
+    sp.add_argument("--format", choices=("table", "csv", "json"), default="table")
+    sp.add_argument("-o", "--output", metavar="FILE", help="write to FILE (atomically) instead of stdout")

@@ -1,0 +1,46 @@
+"""``acqplan bins``: the frequency-bin width for a coherent time and accepted loss."""
+
+from __future__ import annotations
+
+import json
+
+from ._common import EXIT_OK, emit, format_rows, output_options, parse_pair
+
+
+def cmd_bins(args) -> int:
+    from core.api import bin_centres, design_bins, loss_curve
+
+    design = design_bins(args.coherent_ms / 1000.0, args.max_loss_db)
+    out = design.to_dict()
+    if args.span_hz:
+        low, high = parse_pair(args.span_hz, "--span-hz")
+        out["span_hz"] = [low, high]
+        out["bins"] = [round(float(c), 6) for c in bin_centres(low, high, design.bin_width_hz)]
+    if args.curve:
+        curve = loss_curve(args.coherent_ms / 1000.0)
+        out["curve"] = {"offset_hz": [round(float(v), 4) for v in curve["offset_hz"]],
+                        "loss_db": [round(float(v), 5) for v in curve["loss_db"]],
+                        "marks": {k: round(float(v), 4) for k, v in curve["marks"].items()}}
+    if args.format == "json":
+        emit(json.dumps(out, indent=1), args.output)
+    else:
+        rows = [{"key": k, "value": v if not isinstance(v, list | dict) else json.dumps(v)}
+                for k, v in out.items() if k != "curve"]
+        text = format_rows(rows, args.format, ["key", "value"])
+        if args.curve:
+            pts = [{"offset_hz": o, "loss_db": v} for o, v in
+                   zip(out["curve"]["offset_hz"], out["curve"]["loss_db"])]
+            text += "\n" + format_rows(pts, args.format, ["offset_hz", "loss_db"])
+        emit(text, args.output)
+    return EXIT_OK
+
+
+def register(sub) -> None:
+    sp = sub.add_parser("bins", help="frequency-bin width for a coherent time and accepted loss")
+    sp.add_argument("--coherent-ms", type=float, required=True, metavar="MS")
+    sp.add_argument("--max-loss-db", type=float, required=True, metavar="DB",
+                    help="largest accepted frequency-error loss (positive dB)")
+    sp.add_argument("--span-hz", metavar="LOW,HIGH", help="window to tile with bins (lists centres)")
+    sp.add_argument("--curve", action="store_true", help="include the loss curve")
+    output_options(sp)
+    sp.set_defaults(func=cmd_bins)

@@ -1,0 +1,123 @@
+"""``acqplan passes`` and ``acqplan doppler``: satellite geometry at one site over a window."""
+
+from __future__ import annotations
+
+import json
+
+from core.api import InputError
+
+from ._common import EXIT_OK, emit, format_rows, output_options, parse_site, print_warnings
+
+
+def _load(args):
+    from core.api import load_orbit_files, parse_iso_utc
+
+    start = parse_iso_utc(args.start, "--start")
+    end = parse_iso_utc(args.end, "--end")
+    if end <= start:
+        raise InputError(f"end {args.end} is not after start {args.start}", field="--end")
+    orbits = load_orbit_files(args.orbits, reference_time=start, mapping=args.mapping,
+                              strict=not args.skip_bad_records)
+    return orbits, parse_site(args.site), start, end
+
+
+def cmd_passes(args) -> int:
+    from core.api import passes
+
+    orbits, site, start, end = _load(args)
+    found = passes(orbits, site, start, end, mask_deg=args.mask, step_s=args.step)
+    rows = [p.to_dict() for p in found]
+    if args.format == "json":
+        emit(json.dumps({"site": [site.lat_deg, site.lon_deg, site.height_m],
+                          "mask_deg": args.mask, "passes": rows,
+                          "warnings": orbits.warnings}, indent=2), args.output)
+    else:
+        print_warnings(orbits.warnings)
+        # A rise (set) equal to the window start (end) means the satellite was already up
+        # (still up): the two flags say which.
+        cols = ["id", "rise", "culmination", "set", "max_elevation_deg", "rise_azimuth_deg",
+                "set_azimuth_deg", "rises_in_window", "sets_in_window"]
+        emit(format_rows(rows, args.format, cols), args.output)
+    return EXIT_OK
+
+
+def cmd_doppler(args) -> int:
+    import numpy as np
+
+    from core.api import get_signal, iso_z, predict, time_grid
+
+    orbits, site, start, end = _load(args)
+    if args.signal:
+        sig = get_signal(args.signal)
+        keep = [e.info.sat_id for e in orbits.entries if e.info.system == sig.system]
+        if not keep:
+            raise InputError(f"no satellite of the {sig.description} system in the orbit files",
+                             field="--signal")
+        orbits = orbits.select(keep)
+    grid = time_grid(start, end, args.step)
+    pred = predict(orbits, site, grid, signals=args.signal)
+    iso = grid.iso()
+    sats = []
+    for k, sid in enumerate(pred.ids):
+        show = np.nonzero(pred.valid[k] & (pred.elevation_deg[k] >= args.mask))[0]
+        if not show.size:
+            continue
+        samples = [{"time": iso[j],
+                    "azimuth_deg": round(float(pred.azimuth_deg[k, j]), 4),
+                    "elevation_deg": round(float(pred.elevation_deg[k, j]), 4),
+                    "range_m": round(float(pred.range_m[k, j]), 3),
+                    "range_rate_m_s": round(float(pred.range_rate_m_s[k, j]), 4),
+                    "doppler_hz": round(float(pred.doppler_hz[k, j]), 3),
+                    "doppler_rate_hz_s": round(float(pred.doppler_rate_hz_s[k, j]), 5)}
+                   for j in show]
+        info = orbits.entries[k].info
+        sats.append({"id": sid, "signal": pred.signal_ids[k],
+                     "carrier_hz": float(pred.carrier_hz[k]), "healthy": info.healthy,
+                     "samples": samples})
+    warnings = pred.warnings
+    if args.format == "json":
+        emit(json.dumps({"site": [site.lat_deg, site.lon_deg, site.height_m],
+                          "start": iso_z(grid.start_unix_s), "end": iso_z(grid.end_unix_s),
+                          "step_s": args.step, "mask_deg": args.mask,
+                          "satellites": sats, "warnings": warnings}, indent=1), args.output)
+    else:
+        print_warnings(warnings)
+        rows = [{"id": s["id"], "signal": s["signal"], **smp} for s in sats for smp in s["samples"]]
+        cols = ["time", "id", "signal", "azimuth_deg", "elevation_deg", "range_m",
+                "range_rate_m_s", "doppler_hz", "doppler_rate_hz_s"]
+        rows.sort(key=lambda r: (r["time"], r["id"]))
+        emit(format_rows(rows, args.format, cols), args.output)
+    return EXIT_OK
+
+
+def _geometry_options(sp, step_default: float | None) -> None:
+    sp.add_argument("--orbits", action="append", required=True, metavar="FILE",
+                    help="YUMA, SEM or TLE file (repeat to mix constellations)")
+    sp.add_argument("--mapping", metavar="FILE",
+                    help="optional catalogue-number -> ID (and GLONASS k) mapping file")
+    sp.add_argument("--skip-bad-records", action="store_true",
+                    help="skip TLE records with a bad checksum or field (with a warning) "
+                         "instead of stopping")
+    sp.add_argument("--site", required=True, metavar="LAT,LON,HEIGHT_M",
+                    help="receiver site, degrees and metres above the WGS-84 ellipsoid "
+                         "(negative values work as typed: --site -33.92,-70.65,520)")
+    sp.add_argument("--start", required=True, metavar="ISO", help="start, ISO 8601 UTC")
+    sp.add_argument("--end", required=True, metavar="ISO", help="end, ISO 8601 UTC")
+    sp.add_argument("--mask", type=float, default=10.0, metavar="DEG",
+                    help="elevation mask in degrees (default 10; -90 keeps all)")
+    sp.add_argument("--step", type=float, default=step_default, required=step_default is None,
+                    metavar="S", help="time step in seconds")
+
+
+def register(sub) -> None:
+    sp = sub.add_parser("passes", help="rise, culmination and set of each satellite above the mask")
+    _geometry_options(sp, step_default=60.0)
+    output_options(sp)
+    sp.set_defaults(func=cmd_passes)
+
+    sp = sub.add_parser("doppler", help="azimuth, elevation, range, range rate and Doppler over time")
+    _geometry_options(sp, step_default=None)
+    sp.add_argument("--signal", metavar="ID", help="signal ID (GPS-L1CA, GPS-L5, GAL-E1, GAL-E5A, "
+                    "BDS-B1I, BDS-B1C, GLO-L1OF, QZS-L1CA); default: each system's first")
+    output_options(sp)
+    sp.set_defaults(func=cmd_doppler)
