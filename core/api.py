@@ -39,6 +39,11 @@ _PUBLIC: dict[str, str] = {
     "Pass": "core.sky.predict",
     "predict": "core.sky.predict",
     "passes": "core.sky.predict",
+    "Route": "core.sky.route",
+    "RouteFile": "core.sky.route",
+    "read_route_file": "core.sky.route",
+    "time_route": "core.sky.route",
+    "route_file_summary": "core.sky.route",
     # search: one acquisition's search space
     "Uncertainty": "core.search.windows",
     "doppler_windows": "core.search.windows",
@@ -112,3 +117,4 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     from core.search.bins import bin_centres, design_bins, loss_curve  # noqa: F401
     from core.search.windows import Uncertainty, doppler_windows  # noqa: F401
     from core.sky.predict import Pass, Prediction, passes, predict  # noqa: F401
+    from core.sky.route import Route, RouteFile, read_route_file, route_file_summary, time_route  # noqa: F401

@@ -1,0 +1,560 @@
+"""Drive routes: read a route file, time it, and say where the vehicle is at any time.
+
+Input (``read_route_file``):
+
+* GPX 1.0/1.1 through gpxpy: track points (all tracks and segments in file order; empty
+  segments are skipped with a note), else route points; named waypoints (``<wpt>``) are
+  kept and placed on the route at their nearest point;
+* CSV with a header ``time_utc, lat_deg, lon_deg, height_m`` and an optional ``name``
+  column (a named row is a waypoint on the route), ``#`` comment lines; ``time_utc`` may be
+  empty on every row (an untimed route).
+
+Timing (``time_route``): a file whose every point holds a time is driven as recorded,
+optionally shifted so that it starts at a given instant. Times that cannot be driven
+(missing on some points, all equal, before 1980, going backwards) are never guessed: the
+route is timed from a planned speed (one value, or per stretch between distances) with
+dwell times at named waypoints, and the reason is kept as a note; without a planned speed
+they are refused with one message naming the file and the point.
+
+Along the route (``Route.state_at``): position, speed, heading and distance at any times,
+on the WGS-84 ellipsoid: the legs between points are geodesics (geographiclib), a point
+between two route points lies on their geodesic at the distance driven (never a chord
+through the Earth). Heights are interpolated linearly in distance.
+
+Schedule slip (``Route.slip_range_m``): being up to ``slip_s`` early or late means being
+anywhere between the positions the timetable gives at t - slip and t + slip.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+from geographiclib.geodesic import Geodesic
+
+from ..ground.constants import GPS_EPOCH_UNIX_S
+from ..ground.errors import InputError
+from ..ground.timeutil import iso_z, parse_iso_utc, to_unix_s
+
+GEOD = Geodesic.WGS84
+CSV_COLUMNS = ("time_utc", "lat_deg", "lon_deg", "height_m")
+
+
+@dataclass(frozen=True)
+class Waypoint:
+    """A named place on the route: its own coordinates and where it falls on the route."""
+
+    name: str
+    lat_deg: float
+    lon_deg: float
+    index: int                 # nearest route point
+    distance_m: float          # distance along the route of that point
+    offset_m: float            # geodesic distance from the waypoint to that point
+
+    def to_dict(self) -> dict:
+        return {"name": self.name, "lat_deg": round(self.lat_deg, 7), "lon_deg": round(self.lon_deg, 7),
+                "distance_m": round(self.distance_m, 1), "offset_m": round(self.offset_m, 1)}
+
+
+@dataclass
+class RouteFile:
+    """What a route file holds, before timing. Arrays have one entry per route point;
+    ``time_unix_s`` is NaN where a point holds no time. ``segments`` are (first, last + 1)
+    index pairs into the arrays (GPX track segments; one for a GPX route or a CSV file)."""
+
+    path: str
+    kind: str                        # "gpx-track", "gpx-route" or "csv"
+    lat_deg: np.ndarray
+    lon_deg: np.ndarray
+    height_m: np.ndarray
+    time_unix_s: np.ndarray
+    segments: list[tuple[int, int]]
+    waypoints: list[Waypoint]
+    elements: list[str]              # per point, where it is in the file ("trk 1 seg 2 pt 5", "line 7")
+    problems: list[str] = field(default_factory=list)
+
+    @property
+    def n_points(self) -> int:
+        return int(self.lat_deg.size)
+
+    def time_problem(self) -> str | None:
+        """Why the recorded times cannot be driven, or None when they can."""
+        t = self.time_unix_s
+        if t.size == 0:
+            return None
+        have = np.isfinite(t)
+        if not have.any():
+            return "the file holds no times"
+        if not have.all():
+            k = int(np.argmin(have))
+            return f"times on only {int(have.sum())} of {t.size} points (first missing at {self.elements[k]})"
+        if t[0] < GPS_EPOCH_UNIX_S or t.min() < GPS_EPOCH_UNIX_S:
+            k = int(np.argmin(t))
+            return f"times before 1980 ({iso_z(float(t[k]))} at {self.elements[k]})"
+        if np.all(t == t[0]):
+            return f"all {t.size} times are equal ({iso_z(float(t[0]))})"
+        back = np.nonzero(np.diff(t) < 0)[0]
+        if back.size:
+            k = int(back[0]) + 1
+            return (f"times go backwards at {self.elements[k]} ({iso_z(float(t[k]))} after "
+                    f"{iso_z(float(t[k - 1]))})")
+        return None
+
+
+def _check_coordinates(lat: float, lon: float, file: str, line: int | None, where: str) -> None:
+    if not (math.isfinite(lat) and -90.0 <= lat <= 90.0):
+        raise InputError(f"latitude {lat} deg is outside -90..90 deg", file=file, line=line,
+                         field=f"{where} lat")
+    if not (math.isfinite(lon) and -180.0 <= lon <= 360.0):
+        raise InputError(f"longitude {lon} deg is outside -180..180 deg", file=file, line=line,
+                         field=f"{where} lon")
+
+
+def _read_gpx(path: str, text: str) -> RouteFile:
+    import gpxpy
+    import gpxpy.gpx
+
+    try:
+        gpx = gpxpy.parse(text)
+    except gpxpy.gpx.GPXXMLSyntaxException as exc:
+        line = None
+        msg = str(exc)
+        if "line " in msg:
+            try:
+                line = int(msg.rsplit("line ", 1)[1].split(",")[0])
+            except ValueError:
+                line = None
+        raise InputError(f"not a readable GPX file ({msg.split(':', 1)[-1].strip()})", file=path,
+                         line=line) from None
+    except gpxpy.gpx.GPXException as exc:
+        raise InputError(f"not a usable GPX file ({exc})", file=path) from None
+    lat, lon, h, t, elements = [], [], [], [], []
+    segments: list[tuple[int, int]] = []
+    problems: list[str] = []
+
+    def add(p, where):
+        _check_coordinates(p.latitude, p.longitude, path, None, where)
+        lat.append(p.latitude)
+        lon.append(p.longitude)
+        h.append(p.elevation if p.elevation is not None else math.nan)
+        t.append(p.time.timestamp() if p.time is not None else math.nan)
+        elements.append(where)
+
+    for i, trk in enumerate(gpx.tracks, 1):
+        for j, seg in enumerate(trk.segments, 1):
+            if not seg.points:
+                problems.append(f"track {i} segment {j} holds no points; skipped")
+                continue
+            first = len(lat)
+            for k, p in enumerate(seg.points, 1):
+                add(p, f"trk {i} seg {j} pt {k}")
+            segments.append((first, len(lat)))
+    kind = "gpx-track"
+    if not lat:
+        for i, rte in enumerate(gpx.routes, 1):
+            if not rte.points:
+                problems.append(f"route {i} holds no points; skipped")
+                continue
+            first = len(lat)
+            for k, p in enumerate(rte.points, 1):
+                add(p, f"rte {i} pt {k}")
+            segments.append((first, len(lat)))
+        kind = "gpx-route"
+    if not lat:
+        problems.append("the file holds no track or route points")
+    rf = RouteFile(path, kind, np.array(lat, float), np.array(lon, float), np.array(h, float),
+                   np.array(t, float), segments, [], elements, problems)
+    named = []
+    for k, w in enumerate(gpx.waypoints, 1):
+        _check_coordinates(w.latitude, w.longitude, path, None, f"wpt {k}")
+        if w.name:
+            named.append((w.name.strip(), w.latitude, w.longitude))
+        else:
+            problems.append(f"waypoint {k} has no name; ignored")
+    _fill_heights(rf)
+    rf.waypoints = place_waypoints(rf, named)
+    return rf
+
+
+def _read_csv(path: str, text: str) -> RouteFile:
+    rows = []
+    header = None
+    for n, raw in enumerate(io.StringIO(text), 1):
+        s = raw.strip()
+        if not s or s.startswith("#"):
+            continue
+        cells = [c.strip() for c in next(csv.reader([s]))]
+        if header is None:
+            header = [c.lower() for c in cells]
+            missing = [c for c in CSV_COLUMNS if c not in header]
+            if missing:
+                raise InputError(f"the header must name {', '.join(CSV_COLUMNS)} (missing "
+                                 f"{', '.join(missing)})", file=path, line=n, field="header")
+            continue
+        if len(cells) < len(header):
+            cells += [""] * (len(header) - len(cells))
+        rows.append((n, dict(zip(header, cells))))
+    if header is None:
+        raise InputError("empty route file (no header)", file=path)
+    lat, lon, h, t, elements, names = [], [], [], [], [], []
+    for n, row in rows:
+        vals = {}
+        for col in ("lat_deg", "lon_deg", "height_m"):
+            text_v = row[col]
+            if col == "height_m" and text_v == "":
+                vals[col] = math.nan
+                continue
+            try:
+                vals[col] = float(text_v)
+            except ValueError:
+                raise InputError(f"'{text_v}' is not a number", file=path, line=n, field=col) from None
+        _check_coordinates(vals["lat_deg"], vals["lon_deg"], path, n, "row")
+        if row["time_utc"]:
+            try:
+                t.append(to_unix_s(parse_iso_utc(row["time_utc"], field="time_utc")))
+            except InputError as exc:
+                raise InputError(exc.message, file=path, line=n, field="time_utc") from None
+        else:
+            t.append(math.nan)
+        lat.append(vals["lat_deg"])
+        lon.append(vals["lon_deg"])
+        h.append(vals["height_m"])
+        elements.append(f"line {n}")
+        nm = row.get("name", "")
+        if nm:
+            names.append((nm, vals["lat_deg"], vals["lon_deg"]))
+    problems = [] if lat else ["the file holds no route points"]
+    rf = RouteFile(path, "csv", np.array(lat, float), np.array(lon, float), np.array(h, float),
+                   np.array(t, float), [(0, len(lat))] if lat else [], [], elements, problems)
+    _fill_heights(rf)
+    rf.waypoints = place_waypoints(rf, names)
+    return rf
+
+
+def _fill_heights(rf: RouteFile) -> None:
+    h = rf.height_m
+    bad = ~np.isfinite(h)
+    if not bad.any() or h.size == 0:
+        return
+    if bad.all():
+        rf.height_m = np.zeros_like(h)
+        rf.problems.append("no heights in the file; 0 m above the ellipsoid assumed")
+        return
+    idx = np.arange(h.size)
+    rf.height_m = np.interp(idx, idx[~bad], h[~bad])
+    rf.problems.append(f"{int(bad.sum())} points without a height; interpolated from their neighbours")
+
+
+def read_route_file(path: str | Path) -> RouteFile:
+    """Read a GPX or CSV route file (chosen by content: XML is GPX, otherwise CSV)."""
+    p = Path(path)
+    try:
+        raw = p.read_bytes()
+    except OSError as exc:
+        raise InputError(f"cannot read the route file ({exc.strerror})", file=str(p)) from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise InputError(f"not a text file (byte {exc.start} is not UTF-8)", file=str(p)) from None
+    head = text.lstrip()[:200].lower()
+    if head.startswith("<?xml") or head.startswith("<gpx"):
+        return _read_gpx(str(p), text)
+    if head.startswith("<"):
+        raise InputError("an XML file that is not GPX", file=str(p))
+    return _read_csv(str(p), text)
+
+
+# --- geodesics along the polyline --------------------------------------------------------
+
+def leg_geodesics(lat_deg: np.ndarray, lon_deg: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Length (m) and start azimuth (deg) of the geodesic from each point to the next."""
+    n = lat_deg.size
+    s12 = np.zeros(max(n - 1, 0))
+    azi = np.zeros(max(n - 1, 0))
+    for k in range(n - 1):
+        g = GEOD.Inverse(lat_deg[k], lon_deg[k], lat_deg[k + 1], lon_deg[k + 1],
+                         Geodesic.DISTANCE | Geodesic.AZIMUTH)
+        s12[k] = g["s12"]
+        azi[k] = g["azi1"]
+    return s12, azi
+
+
+def place_waypoints(rf: RouteFile, named: list[tuple[str, float, float]]) -> list[Waypoint]:
+    """Each named waypoint on its nearest route point (geodesic distance)."""
+    if not named or rf.n_points == 0:
+        return []
+    s12, _ = leg_geodesics(rf.lat_deg, rf.lon_deg)
+    dist = np.concatenate(([0.0], np.cumsum(s12)))
+    out = []
+    for name, la, lo in named:
+        # Coarse nearest by a local flat metric, then exact geodesic on the few best.
+        d2 = (rf.lat_deg - la) ** 2 + ((rf.lon_deg - lo) * math.cos(math.radians(la))) ** 2
+        best = np.argsort(d2)[:5]
+        offs = [GEOD.Inverse(la, lo, rf.lat_deg[b], rf.lon_deg[b], Geodesic.DISTANCE)["s12"] for b in best]
+        k = int(best[int(np.argmin(offs))])
+        out.append(Waypoint(name, float(la), float(lo), k, float(dist[k]), float(min(offs))))
+    out.sort(key=lambda w: w.distance_m)
+    return out
+
+
+# --- a timed route -------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class SpeedStretch:
+    """A planned speed between two distances along the route (m)."""
+
+    from_m: float
+    to_m: float
+    speed_m_s: float
+
+
+@dataclass
+class RouteStates:
+    """The vehicle at each of T times (arrays (T,))."""
+
+    unix_s: np.ndarray
+    lat_deg: np.ndarray
+    lon_deg: np.ndarray
+    height_m: np.ndarray
+    speed_m_s: np.ndarray          # horizontal speed along the route
+    heading_deg: np.ndarray        # direction of travel, clockwise from north (geodesic azimuth)
+    vertical_m_s: np.ndarray       # rate of climb
+    distance_m: np.ndarray         # along the route from its first point
+
+    def velocity_enu_m_s(self) -> np.ndarray:
+        """(T, 3) east, north, up velocity."""
+        hd = np.radians(self.heading_deg)
+        return np.stack((self.speed_m_s * np.sin(hd), self.speed_m_s * np.cos(hd), self.vertical_m_s), axis=-1)
+
+
+@dataclass
+class Route:
+    """A timed route: points, their cumulative distance and the time the vehicle is at
+    each. A point may appear twice in a row (a dwell: equal position, later time)."""
+
+    path: str
+    lat_deg: np.ndarray
+    lon_deg: np.ndarray
+    height_m: np.ndarray
+    time_unix_s: np.ndarray        # non-decreasing
+    distance_m: np.ndarray         # non-decreasing, 0 at the first point
+    leg_azimuth_deg: np.ndarray    # (N - 1,) start azimuth of each leg
+    waypoints: list[Waypoint]
+    timing: str                    # "recorded", "recorded, shifted by ... s", "planned speed"
+    notes: list[str] = field(default_factory=list)
+
+    @property
+    def length_m(self) -> float:
+        return float(self.distance_m[-1])
+
+    @property
+    def start_unix_s(self) -> float:
+        return float(self.time_unix_s[0])
+
+    @property
+    def end_unix_s(self) -> float:
+        return float(self.time_unix_s[-1])
+
+    @property
+    def duration_s(self) -> float:
+        return self.end_unix_s - self.start_unix_s
+
+    def waypoint(self, name: str) -> Waypoint:
+        for w in self.waypoints:
+            if w.name == name:
+                return w
+        known = ", ".join(w.name for w in self.waypoints) or "none"
+        raise KeyError(f"no waypoint named '{name}' on the route (known: {known})")
+
+    def distance_at(self, unix_s) -> np.ndarray:
+        """Distance along the route at the given times (clamped to the route's ends)."""
+        t = np.asarray(unix_s, dtype=float)
+        return np.interp(t, self.time_unix_s, self.distance_m)
+
+    def time_at_distance(self, distance_m: float) -> float:
+        """First instant the vehicle is at ``distance_m`` (m along the route)."""
+        d = self.distance_m
+        k = int(np.clip(np.searchsorted(d, distance_m, side="left"), 0, d.size - 1))
+        if k == 0:
+            return float(self.time_unix_s[0])
+        d0, d1 = d[k - 1], d[k]
+        t0, t1 = self.time_unix_s[k - 1], self.time_unix_s[k]
+        return float(t1 if d1 == d0 else t0 + (distance_m - d0) / (d1 - d0) * (t1 - t0))
+
+    def positions_at_distance(self, distance_m) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Latitude, longitude, height and heading (deg) at distances along the route, on
+        each leg's geodesic."""
+        dq = np.clip(np.atleast_1d(np.asarray(distance_m, dtype=float)), 0.0, self.length_m)
+        d = self.distance_m
+        n = d.size
+        if n == 1:
+            z = np.zeros_like(dq)
+            return z + self.lat_deg[0], z + self.lon_deg[0], z + self.height_m[0], z
+        k = np.clip(np.searchsorted(d, dq, side="right") - 1, 0, n - 2)
+        # Skip zero-length legs (dwells) backwards to a leg that moves, for the heading.
+        lat = np.empty_like(dq)
+        lon = np.empty_like(dq)
+        hd = np.empty_like(dq)
+        leg_len = np.diff(d)
+        moving = np.nonzero(leg_len > 0)[0]
+        for i, (kk, s) in enumerate(zip(k, dq)):
+            s_in = s - d[kk]
+            if leg_len[kk] <= 0:      # at the very end after a dwell, or a route that never moves
+                lat[i], lon[i] = self.lat_deg[kk], self.lon_deg[kk]
+                before = moving[moving < kk]
+                hd[i] = (self._heading_on_leg(int(before[-1]), float(leg_len[before[-1]])) if before.size
+                         else float(self.leg_azimuth_deg[int(moving[0])]) if moving.size else 0.0)
+                continue
+            g = GEOD.Direct(self.lat_deg[kk], self.lon_deg[kk], self.leg_azimuth_deg[kk], s_in,
+                            Geodesic.LATITUDE | Geodesic.LONGITUDE | Geodesic.AZIMUTH
+                            | Geodesic.LONG_UNROLL)
+            lat[i], lon[i], hd[i] = g["lat2"], g["lon2"], g["azi2"]
+        lon = (lon + 180.0) % 360.0 - 180.0
+        frac = np.where(leg_len[k] > 0, (dq - d[k]) / np.where(leg_len[k] > 0, leg_len[k], 1.0), 1.0)
+        h = self.height_m[k] + frac * (self.height_m[k + 1] - self.height_m[k])
+        return lat, lon, h, hd % 360.0
+
+    def _heading_on_leg(self, k: int, s_m: float) -> float:
+        g = GEOD.Direct(self.lat_deg[k], self.lon_deg[k], self.leg_azimuth_deg[k], s_m, Geodesic.AZIMUTH)
+        return float(g["azi2"])
+
+    def state_at(self, unix_s) -> RouteStates:
+        """Position, speed, heading and distance at the given times; before the start the
+        vehicle waits at the first point, after the end at the last (speed 0)."""
+        t = np.atleast_1d(np.asarray(unix_s, dtype=float))
+        dist = self.distance_at(t)
+        lat, lon, h, hd = self.positions_at_distance(dist)
+        tt, dd, hh = self.time_unix_s, self.distance_m, self.height_m
+        if tt.size == 1:
+            zero = np.zeros_like(t)
+            return RouteStates(t, lat, lon, h, zero, hd, zero, dist)
+        k = np.clip(np.searchsorted(tt, t, side="right") - 1, 0, tt.size - 2)
+        dt = tt[k + 1] - tt[k]
+        inside = (t >= tt[0]) & (t < tt[-1]) & (dt > 0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            speed = np.where(inside, (dd[k + 1] - dd[k]) / dt, 0.0)
+            climb = np.where(inside, (hh[k + 1] - hh[k]) / dt, 0.0)
+        return RouteStates(t, lat, lon, h, speed, hd, climb, dist)
+
+    def slip_range_m(self, unix_s, slip_s: float) -> tuple[np.ndarray, np.ndarray]:
+        """Distances along the route the vehicle may be at when up to ``slip_s`` early or
+        late: [d(t - slip), d(t + slip)]."""
+        t = np.asarray(unix_s, dtype=float)
+        return self.distance_at(t - slip_s), self.distance_at(t + slip_s)
+
+    def summary(self) -> dict:
+        return {"length_m": round(self.length_m, 1), "duration_s": round(self.duration_s, 1),
+                "start": iso_z(self.start_unix_s), "end": iso_z(self.end_unix_s),
+                "timing": self.timing, "waypoints": [w.to_dict() for w in self.waypoints]}
+
+
+def time_route(rf: RouteFile, *, start_unix_s: float | None = None, shift_to_start: bool = False,
+               speed_m_s: float | None = None, stretch_speeds: list[SpeedStretch] = (),
+               dwell_s: dict[str, float] | None = None, field_prefix: str = "route") -> Route:
+    """Time a route file: as recorded (shifted to ``start_unix_s`` when ``shift_to_start``),
+    or, when ``speed_m_s`` is given or the times cannot be driven, from the planned speed
+    (``stretch_speeds`` override it between distances) starting at ``start_unix_s``, with
+    ``dwell_s`` seconds at the named waypoints."""
+    if rf.n_points == 0:
+        raise InputError("the route file holds no track or route points", file=rf.path)
+    s12, azi = leg_geodesics(rf.lat_deg, rf.lon_deg)
+    dist = np.concatenate(([0.0], np.cumsum(s12)))
+    notes = list(rf.problems)
+    problem = rf.time_problem()
+    dwell_s = dict(dwell_s or {})
+    use_speed = speed_m_s is not None or bool(stretch_speeds) or problem is not None
+    if not use_speed:
+        t = rf.time_unix_s.copy()
+        timing = "recorded"
+        if shift_to_start and start_unix_s is not None:
+            shift = start_unix_s - t[0]
+            t = t + shift
+            timing = f"recorded, shifted by {shift:+.0f} s to start at {iso_z(start_unix_s)}"
+        return Route(rf.path, rf.lat_deg.copy(), rf.lon_deg.copy(), rf.height_m.copy(), t, dist,
+                     azi, list(rf.waypoints), timing, notes)
+    if speed_m_s is None and not stretch_speeds:
+        raise InputError(f"the recorded times cannot be driven: {problem}; give a planned speed "
+                         f"({field_prefix}.speed_kmh) to time the route", file=rf.path)
+    if problem is not None and rf.time_unix_s.size and np.isfinite(rf.time_unix_s).any():
+        notes.append(f"recorded times not used ({problem}); timed from the planned speed")
+    if speed_m_s is not None and not (math.isfinite(speed_m_s) and speed_m_s > 0):
+        raise InputError(f"planned speed {speed_m_s * 3.6:g} km/h must be above 0",
+                         field=f"{field_prefix}.speed_kmh")
+    if start_unix_s is None:
+        raise InputError("a route timed from a planned speed needs a start time", field="time.start")
+    # Speed of each leg: the stretch covering the leg's middle, else the overall speed.
+    mid = 0.5 * (dist[:-1] + dist[1:])
+    v = np.full(mid.shape, speed_m_s if speed_m_s is not None else math.nan)
+    for st in stretch_speeds:
+        inside = (mid >= st.from_m) & (mid < st.to_m)
+        v[inside] = st.speed_m_s
+    if np.isnan(v).any():
+        k = int(np.argmax(np.isnan(v)))
+        raise InputError(f"no planned speed at {dist[k] / 1000:.3f} km along the route (give "
+                         f"{field_prefix}.speed_kmh for the parts no stretch covers)",
+                         field=f"{field_prefix}.speed_kmh")
+    dt_leg = np.where(s12 > 0, s12 / v, 0.0)
+    # Dwell: duplicate the waypoint's point with a later time.
+    dwell_at = np.zeros(rf.n_points)
+    names = {w.name: w for w in rf.waypoints}
+    for name, secs in dwell_s.items():
+        if name not in names:
+            known = ", ".join(names) or "none"
+            raise InputError(f"no waypoint named '{name}' on the route (known: {known})",
+                             field=f"{field_prefix}.dwell_s")
+        if not (math.isfinite(secs) and secs >= 0):
+            raise InputError(f"dwell {secs} s must be 0 or more", field=f"{field_prefix}.dwell_s.{name}")
+        dwell_at[names[name].index] += secs
+    idx, times = [], []
+    t = start_unix_s
+    for k in range(rf.n_points):
+        idx.append(k)
+        times.append(t)
+        if dwell_at[k] > 0:
+            t += dwell_at[k]
+            idx.append(k)
+            times.append(t)
+        if k < rf.n_points - 1:
+            t += dt_leg[k]
+    idx_a = np.array(idx)
+    d_out = dist[idx_a]
+    az_full = np.concatenate((azi, [azi[-1] if azi.size else 0.0]))
+    az_out = az_full[idx_a[:-1]]
+    wps = [Waypoint(w.name, w.lat_deg, w.lon_deg, int(np.searchsorted(idx_a, w.index)), w.distance_m, w.offset_m)
+           for w in rf.waypoints]
+    timing = "planned speed" + (" per stretch" if stretch_speeds else "")
+    return Route(rf.path, rf.lat_deg[idx_a], rf.lon_deg[idx_a], rf.height_m[idx_a], np.array(times),
+                 d_out, az_out, wps, timing, notes)
+
+
+def route_file_summary(rf: RouteFile, speed_m_s: float | None = None) -> dict:
+    """What ``acqplan route`` prints: length, duration (recorded or at the planned speed),
+    points, segments (each with its points, length and times) and problems."""
+    s12, _ = leg_geodesics(rf.lat_deg, rf.lon_deg) if rf.n_points else (np.zeros(0), None)
+    problems = list(rf.problems)
+    segments = []
+    for a, b in rf.segments:
+        seg_len = float(np.sum(s12[a:b - 1])) if b - a > 1 else 0.0
+        t = rf.time_unix_s[a:b]
+        have = np.isfinite(t)
+        segments.append({"first_point": a + 1, "points": b - a, "length_m": round(seg_len, 1),
+                         "start": iso_z(float(t[have][0])) if have.any() else None,
+                         "end": iso_z(float(t[have][-1])) if have.any() else None})
+    length = float(s12.sum())
+    problem = rf.time_problem()
+    duration = None
+    if speed_m_s is not None:
+        duration = length / speed_m_s
+    elif problem is None and rf.n_points:
+        duration = float(rf.time_unix_s[-1] - rf.time_unix_s[0])
+    if problem is not None and rf.n_points:
+        problems.append(f"recorded times unusable: {problem}" if np.isfinite(rf.time_unix_s).any()
+                        else "no times in the file: give a planned speed to time it")
+    return {"file": rf.path, "kind": rf.kind, "length_m": round(length, 1),
+            "duration_s": None if duration is None else round(duration, 1), "points": rf.n_points,
+            "segments": segments, "waypoints": [w.to_dict() for w in rf.waypoints],
+            "problems": problems}
