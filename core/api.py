@@ -26,6 +26,16 @@ _PUBLIC: dict[str, str] = {
     "time_grid": "core.ground.timeutil",
     "parse_iso_utc": "core.ground.timeutil",
     "iso_z": "core.ground.timeutil",
+    "clock_text": "core.ground.display",
+    "utc_stamp": "core.ground.display",
+    "iso_utc": "core.ground.display",
+    "hz_text": "core.ground.display",
+    "hz_range_text": "core.ground.display",
+    "state_word": "core.ground.display",
+    "STATE_MEANING": "core.ground.display",
+    "gps_week_tow": "core.ground.display",
+    "gps_text": "core.ground.display",
+    "whole_second": "core.ground.display",
     "Site": "core.ground.geodesy",
     "SIGNALS": "core.ground.signals",
     "get_signal": "core.ground.signals",
@@ -96,6 +106,18 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     from core.files.demo import write_demo  # noqa: F401
     from core.files.plan_export import content_hash, export_all  # noqa: F401
     from core.files.scenario import load_scenario, save_scenario, scenario_to_toml  # noqa: F401
+    from core.ground.display import (  # noqa: F401
+        STATE_MEANING,
+        clock_text,
+        gps_text,
+        gps_week_tow,
+        hz_range_text,
+        hz_text,
+        iso_utc,
+        state_word,
+        utc_stamp,
+        whole_second,
+    )
     from core.ground.errors import AcqplanError, Cancelled, ComputationError, InputError  # noqa: F401
     from core.ground.geodesy import Site  # noqa: F401
     from core.ground.signals import SIGNALS, get_signal  # noqa: F401

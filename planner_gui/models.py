@@ -29,7 +29,7 @@ from PySide6.QtCore import (
 )
 from PySide6.QtGui import QBrush, QColor
 
-from core.api import Plan
+from core.api import STATE_MEANING, Plan, clock_text, hz_text, state_word
 
 from .qt_compat import guard_singleton_refcounts
 from .style import style_for
@@ -157,23 +157,27 @@ class Column:
 COLUMNS: tuple[Column, ...] = (
     Column("id", "ID", "satellite ID (RINEX system letter + number)"),
     Column("signal", "Signal", "acquisition signal of this satellite"),
-    Column("elevation_deg", "Elevation\n(°)", "elevation above the horizon at the cursor", 1),
-    Column("azimuth_deg", "Azimuth\n(°)", "azimuth from north through east at the cursor", 1),
+    Column("elevation_deg", "Elev.\n(°)", "elevation above the horizon at the cursor", 1),
+    Column("azimuth_deg", "Azim.\n(°)", "azimuth from north through east at the cursor", 1),
     Column("nominal_hz", "Doppler\n(Hz)", "nominal Doppler at the nominal site and time "
-           "(positive while approaching), oscillator offset included", 1),
-    Column("low_hz", "Window low\n(Hz)", "lower edge of the Doppler search window", 1),
-    Column("high_hz", "Window high\n(Hz)", "upper edge of the Doppler search window", 1),
+           "(positive while approaching), oscillator offset included", 0),
+    Column("low_hz", "Low\n(Hz)", "lower edge of the Doppler search window", 0),
+    Column("high_hz", "High\n(Hz)", "upper edge of the Doppler search window", 0),
     Column("bins", "Bins", "frequency bins tiling the window", 0),
-    Column("bin_width_hz", "Bin width\n(Hz)", "width of one frequency bin", 1),
+    Column("bin_width_hz", "Bin\n(Hz)", "width of one frequency bin", 1),
     Column("code_cells", "Code\ncells", "code-phase cells searched per bin", 0),
     Column("cn0_dbhz", "C/N0\n(dB-Hz)", "expected carrier-to-noise density at this elevation", 1),
-    Column("pd", "Pd\n(0–1)", "detection probability per dwell at the signal's cell", 3),
-    Column("expected_search_s", "Exp. search\n(s)", "expected (mean) serial search time", 1),
-    Column("channel", "Chan-\nnel", "receiver channel working on this satellite at the cursor "
+    Column("pd", "Pd", "detection probability per dwell at the signal's cell (0 to 1)", 3),
+    Column("expected_search_s", "Search\n(s)", "expected (mean) serial search time", 1),
+    Column("channel", "Ch.", "receiver channel working on this satellite at the cursor "
            "(blank: waiting)", 0),
-    Column("state", "Window", "'first': oscillator still unknown; 'narrowed': after the first "
-           "acquisition the common oscillator error is known"),
+    Column("acquired", "Acquired\n(UTC)", "planned acquisition time (expected search "
+           "times); blank: not acquired in the window"),
+    Column("state", "Window", "'first': " + STATE_MEANING["first"] + "; 'narrowed': "
+           + STATE_MEANING["narrowed"]),
 )
+# Shown when the window opens; the others are one right-click on the header away.
+DEFAULT_HIDDEN = frozenset({"azimuth_deg", "bin_width_hz", "code_cells"})
 COLUMN_INDEX = {c.key: i for i, c in enumerate(COLUMNS)}
 
 
@@ -195,6 +199,7 @@ def rows_at_index(plan: Plan, k: int) -> list[dict[str, Any]]:
     t = float(plan.times.unix_s[k])
     index = {sid: s for s, sid in enumerate(plan.ids)}
     on_channel = channel_at(plan, t)
+    acquired = plan.timeline.acquisition_unix_s
     rows = []
     for g in plan.search_grid_at(k):
         s = index[g["id"]]
@@ -214,7 +219,9 @@ def rows_at_index(plan: Plan, k: int) -> list[dict[str, Any]]:
                                         else plan.expected_search_first_s)[s, k]),
             "channel": None if chan is None else chan[0],
             "channel_kind": None if chan is None else chan[1],
-            "state": "narrowed" if after else "first",
+            "acquired": (None if g["id"] not in acquired
+                         else clock_text(acquired[g["id"]])),
+            "state": state_word(g["state"]),
         })
     return rows
 
@@ -228,7 +235,7 @@ def format_value(column: Column, value: Any) -> str:
     if not math.isfinite(v):
         return "∞" if v > 0 else ("−∞" if v < 0 else "—")
     if column.decimals == 0:
-        return f"{int(round(v))}"
+        return hz_text(v)                 # whole numbers: the rounding of every face
     text = f"{v:.{column.decimals}f}"
     return text.replace("-", "−")
 
@@ -273,7 +280,7 @@ class SatelliteTableModel(QAbstractTableModel):
             return format_value(col, value)
         if role == SORT_ROLE:
             if col.decimals is None:
-                return str(value)
+                return "" if value is None else str(value)
             if value is None:
                 return math.inf
             return float(value)

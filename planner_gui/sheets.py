@@ -43,7 +43,7 @@ from zoneinfo import ZoneInfo
 
 import numpy as np
 
-from core.api import InputError, Plan
+from core.api import InputError, Plan, clock_text, hz_text, utc_stamp, whole_second
 from core.files.plan_export import (
     ContentHash,
     SearchEntry,
@@ -130,9 +130,8 @@ F_CARD_SOFT = FontSpec(7.0, condensed=True)
 # --------------------------------------------------------------------------- formats
 
 def fmt_hz(v: float) -> str:
-    """Frequencies on the sheets: whole hertz (no '-0')."""
-    r = int(round(v))
-    return str(r)
+    """Frequencies on the sheets: whole hertz (no '-0'), the rounding of every face."""
+    return hz_text(v, unicode_minus=False)
 
 
 def fmt_bin_width(v: float) -> str:
@@ -182,14 +181,13 @@ class Clock:
 
     @staticmethod
     def _utc(u: float) -> datetime:
-        return datetime.fromtimestamp(round(u), UTC)
+        return datetime.fromtimestamp(whole_second(u), UTC)
 
     def _loc(self, u: float) -> datetime:
         return self._utc(u).astimezone(self.zone)
 
     def hms(self, u: float) -> str:
-        d = self._utc(u)
-        return d.strftime("%d %H:%M:%S" if self.multi_day else "%H:%M:%S")
+        return clock_text(u, day=self.multi_day)
 
     def hm(self, u: float) -> str:
         d = datetime.fromtimestamp(u, UTC).replace(second=0, microsecond=0)
@@ -201,7 +199,7 @@ class Clock:
         return f"{body} {d.tzname()}"
 
     def full(self, u: float) -> str:
-        return self._utc(u).strftime("%Y-%m-%d %H:%M:%S UTC")
+        return utc_stamp(u)
 
     def full_local(self, u: float) -> str:
         d = self._loc(u)

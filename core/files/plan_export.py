@@ -44,8 +44,8 @@ from pathlib import Path
 
 import numpy as np
 
+from ..ground.display import iso_utc
 from ..ground.errors import InputError
-from ..ground.timeutil import iso_z
 from ..plan.pipeline import Plan, plan_to_json
 from ..plan.spec import Scenario
 from ..search import bins as binlib
@@ -290,8 +290,8 @@ def search_rows(plan: Plan) -> list[dict]:
         row.update({"id": sp.sat_id, "signal": sp.signal_id, "system": sp.system,
                     "carrier_hz": sp.carrier_hz, "glonass_k": sp.glonass_k, "source": sp.source_kind,
                     "data_age_days": round(sp.data_age_s / 86400.0, 3), "passes": len(iv),
-                    "in_view_from": iso_z(iv[0][0], 1) if iv else None,
-                    "in_view_to": iso_z(iv[-1][1], 1) if iv else None,
+                    "in_view_from": iso_utc(iv[0][0]) if iv else None,
+                    "in_view_to": iso_utc(iv[-1][1]) if iv else None,
                     "max_elevation_deg": _r(max_elevation_deg(plan, s), 3)})
         if sp.search is not None:
             d = sp.search.to_dict()

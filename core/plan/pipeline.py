@@ -34,6 +34,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from ..ground.display import iso_utc
 from ..ground.errors import Cancelled, ComputationError, InputError
 from ..ground.geodesy import Site
 from ..ground.signals import SIGNALS
@@ -191,7 +192,7 @@ class SearchSummary:
     acquired_unix_s: float | None
 
     def to_dict(self) -> dict:
-        return {"start": iso_z(self.start_unix_s, 1), "state": self.state,
+        return {"start": iso_utc(self.start_unix_s), "state": self.state,
                 "low_hz": round(self.low_hz, 2), "high_hz": round(self.high_hz, 2),
                 "bin_width_hz": round(self.bin_width_hz, 3), "bins": int(self.bins),
                 "first_bin_hz": round(float(self.bin_centres_hz[0]), 2),
@@ -200,7 +201,7 @@ class SearchSummary:
                 "code_cells": int(self.code_cells), "cn0_dbhz": round(self.cn0_dbhz, 2),
                 "pd": round(self.pd, 4), "dwell_s": round(self.dwell_s, 6),
                 "expected_search_s": round(self.expected_search_s, 3), "channel": self.channel,
-                "acquired": None if self.acquired_unix_s is None else iso_z(self.acquired_unix_s, 1)}
+                "acquired": iso_utc(self.acquired_unix_s)}
 
 
 @dataclass
@@ -291,7 +292,7 @@ class Plan:
 
     def summary_text(self) -> str:
         n_vis = int(self.visible.any(axis=1).sum())
-        ff = "none in the window" if self.timeline.first_fix_unix_s is None else iso_z(self.timeline.first_fix_unix_s, 1)
+        ff = "none in the window" if self.timeline.first_fix_unix_s is None else iso_utc(self.timeline.first_fix_unix_s)
         mc = ("Monte Carlo not run" if self.ttff is None else
               f"median {_fmt_s(self.ttff.median_s)}, 95th percentile {_fmt_s(self.ttff.p95_s)} "
               f"({self.ttff.n_runs} Monte Carlo runs)")
@@ -899,11 +900,11 @@ def plan_to_json(plan: Plan) -> dict:
         "code_step_loss": {k: v.to_dict() for k, v in plan.code_step_loss.items()},
         "satellites": sats,
         "timeline": [{"channel": seg.channel, "id": seg.sat_id, "kind": seg.kind,
-                      "start": iso_z(seg.start_unix_s, 1), "end": iso_z(seg.end_unix_s, 1),
+                      "start": iso_utc(seg.start_unix_s), "end": iso_utc(seg.end_unix_s),
                       "acquired": seg.acquired} for seg in plan.timeline.segments],
-        "acquisitions": {k: iso_z(v, 1) for k, v in plan.timeline.acquisition_unix_s.items()},
+        "acquisitions": {k: iso_utc(v) for k, v in plan.timeline.acquisition_unix_s.items()},
         "first_acquired": plan.first_acquired,
-        "first_fix_time": None if plan.timeline.first_fix_unix_s is None else iso_z(plan.timeline.first_fix_unix_s, 1),
+        "first_fix_time": iso_utc(plan.timeline.first_fix_unix_s),
         "ttff_s": _round(plan.timeline.ttff_s, 2),
         "ttff_median_s": None if plan.ttff is None else _round(plan.ttff.median_s, 2),
         "ttff_p95_s": None if plan.ttff is None else _round(plan.ttff.p95_s, 2),
@@ -927,7 +928,7 @@ def timeline_rows(plan: Plan) -> list[dict]:
     """One row per timeline segment, channel by channel."""
     segs = sorted(plan.timeline.segments, key=lambda g: (g.channel, g.start_unix_s))
     return [{"channel": g.channel, "id": g.sat_id, "kind": g.kind,
-             "start": iso_z(g.start_unix_s, 1)[11:21], "end": iso_z(g.end_unix_s, 1)[11:21],
+             "start": iso_utc(g.start_unix_s), "end": iso_utc(g.end_unix_s),
              "duration_s": round(g.end_unix_s - g.start_unix_s, 1),
              "result": "window end" if g.end_unix_s >= plan.times.end_unix_s - 1e-6 else g.end_reason}
             for g in segs]
@@ -944,16 +945,16 @@ def plan_rows(plan: Plan) -> list[dict]:
         if not plan.visible[s].any():
             continue
         row = {"id": sp.sat_id, "signal": sp.signal_id,
-               "in_view": f"{100.0 * plan.visible[s].mean():.0f}%",
+               "in_view": round(float(plan.visible[s].mean()), 3),
                "max_el_deg": round(float(np.max(plan.prediction.elevation_deg[s][plan.visible[s]])), 1)}
         if sp.search:
             d = sp.search.to_dict()
             k = plan.index_at(sp.search.start_unix_s)
-            row.update({"search_start": d["start"][11:21], "state": d["state"], "low_hz": d["low_hz"],
+            row.update({"search_start": d["start"], "state": d["state"], "low_hz": d["low_hz"],
                         "high_hz": d["high_hz"], "bin_width_hz": d["bin_width_hz"], "bins": d["bins"],
                         "code_window_chips": d["code_window_chips"], "code_cells": d["code_cells"],
                         "cn0_dbhz": d["cn0_dbhz"], "pd": d["pd"], "expected_search_s": d["expected_search_s"],
-                        "channel": d["channel"], "acquired": (d["acquired"] or "")[11:21],
+                        "channel": d["channel"], "acquired": d["acquired"] or "",
                         "after_low_hz": round(float(plan.windows_after.low_hz[s, k]), 2),
                         "after_high_hz": round(float(plan.windows_after.high_hz[s, k]), 2),
                         "after_bins": int(plan.bins_after[s, k])})

@@ -11,6 +11,8 @@ from PySide6.QtCore import Qt
 from PySide6.QtGui import QBrush, QColor, QFont, QPainterPath, QPen
 from PySide6.QtWidgets import QGraphicsItem, QHBoxLayout, QLabel, QVBoxLayout, QWidget
 
+from core.api import clock_text
+
 from ..style import SYSTEM_STYLES, style_for
 
 _CONFIGURED = False
@@ -29,10 +31,12 @@ def configure_pyqtgraph() -> None:
 
 
 def utc_text(unix_s: float, seconds: bool = True) -> str:
+    """Clock text of a planned instant: the one rounding of core.ground.display."""
     if not math.isfinite(unix_s):
         return "—"
-    fmt = "%H:%M:%S" if seconds else "%H:%M"
-    return datetime.fromtimestamp(unix_s, UTC).strftime(fmt)
+    if not seconds:          # axis ticks: minutes, truncated like a clock face
+        return datetime.fromtimestamp(unix_s, UTC).strftime("%H:%M")
+    return clock_text(unix_s)
 
 
 def colour(system: str, alpha: int = 255) -> QColor:
