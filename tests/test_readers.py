@@ -33,7 +33,7 @@ ICD_PI = 3.1415926535898          # [pub: IS-GPS-200 Table 20-IV, domain-notes s
 
 def _yuma_record(prn: int, week_text: str = "Week 105", health: str = "000",
                  ecc: str = "0.1000000000E-001", toa: str = "405504.0000",
-                 inc: str = "0.9738937226", trailing: str = "") -> str:
+                 inc: str = "0.9738937226", trailing: str = "", sqrt_a: str = "5153.600000") -> str:
     # Invented values (fictional almanac); inclination 0.31 semicircles = 0.9738937226 rad [calc].
     return (f"******** {week_text} almanac for PRN-{prn:02d} ********{trailing}\n"
             f"ID:                         {prn:02d}{trailing}\n"
@@ -42,7 +42,7 @@ def _yuma_record(prn: int, week_text: str = "Week 105", health: str = "000",
             f"Time of Applicability(s):  {toa}\n"
             f"Orbital Inclination(rad):   {inc}\n"
             f"Rate of Right Ascen(r/s):  -0.2513274123E-008\n"
-            f"SQRT(A)  (m 1/2):           5153.600000{trailing}\n"
+            f"SQRT(A)  (m 1/2):           {sqrt_a}{trailing}\n"
             f"Right Ascen at Week(rad):   0.1570796327E+001\n"
             f"Argument of Perigee(rad):  -0.785398163\n"
             f"Mean Anom(rad):             0.3141592654E+000\n"
@@ -104,7 +104,9 @@ def test_yuma_header_tolerance_two_spaces_trailing_blanks_crlf_and_exponents():
 
 def test_yuma_qzss_prns_become_j_ids():
     # QZSS L1 C/A PRN 193 -> J01, 199 -> J07 [mem: RINEX 3.04 satellite numbers: Jnn = PRN - 192].
-    text = _yuma_record(193, inc="0.7204137038") + _yuma_record(199, inc="0.0007490141")
+    # sqrt(A) of a geosynchronous orbit, 6493.3 m^1/2 = 42,164 km [calc].
+    text = _yuma_record(193, inc="0.7204137038", sqrt_a="6493.3") \
+        + _yuma_record(199, inc="0.0007490141", sqrt_a="6493.3")
     s = parse_yuma(text, "q.alm", reference_time=1.6e9)
     assert s.ids == ["J01", "J07"]
     assert [e.info.system for e in s.entries] == ["J", "J"]
@@ -126,7 +128,8 @@ def test_sem_conversion_semicircles_and_inclination_reference():
 
 
 def test_sem_qzss_uses_quarter_semicircle_reference():
-    text = SEM_TEXT.replace("\n7\n", "\n193\n")
+    # A QZSS record carries a geosynchronous sqrt(A), 6493.3 m^1/2 = 42,164 km [calc].
+    text = SEM_TEXT.replace("\n7\n", "\n193\n").replace(" 5.15360000000000E+03", " 6.49330000000000E+03")
     a = parse_sem(text, "q.al3", reference_time=1.6e9).entries[0].almanac
     # QZSS almanac reference inclination 0.25 semicircles [pub: IS-QZSS-PNT, domain-notes 2].
     assert a.inclination_rad == pytest.approx((0.25 + 0.01) * ICD_PI, rel=1e-15)

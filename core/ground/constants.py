@@ -24,6 +24,11 @@ GPS_PI = 3.1415926535898          # the ICD's own value of pi, used for semicirc
 GPS_REFERENCE_INCLINATION_SC = 0.30   # SEM delta-i reference, semicircles [pub: ICD-GPS-240]
 QZSS_REFERENCE_INCLINATION_SC = 0.25  # QZSS almanac reference [pub: IS-QZSS-PNT]
 
+# Second zonal harmonic of the Earth's gravity field, J2 = -sqrt(5) C20 with the normalized
+# C20 = -484.16685e-6 [mem: NIMA TR8350.2 (WGS-84), Table 3.1; calc]. Used only for the
+# plausible range of a nodal rate (core.orbits.plausibility).
+EARTH_J2 = 1.08263e-3
+
 # Earth gravitational parameter used for the two-body acceleration of TLE orbits
 # (WGS-72, as SGP4 itself uses) [pub: AIAA 2006-6753, Table 1].
 WGS72_MU_M3_S2 = 3.986008e14

@@ -80,9 +80,9 @@ def parse_orbits(text: str, source: str, reference_time: datetime | float | None
     reference_unix_s = reference_to_unix_s(reference_time)
     fmt = detect_format(text)
     if fmt == "YUMA":
-        return parse_yuma(text, source, reference_unix_s)
+        return parse_yuma(text, source, reference_unix_s, strict=strict)
     if fmt == "SEM":
-        return parse_sem(text, source, reference_unix_s)
+        return parse_sem(text, source, reference_unix_s, strict=strict)
     if fmt == "TLE":
         return with_reference(parse_tle(text, source, mapping, strict=strict,
                                         k_warning=k_warning), reference_unix_s)
@@ -99,8 +99,9 @@ def load_orbits(path: str | Path, reference_time: datetime | float | None = None
     ``reference_time``: the planned start (aware datetime or UTC POSIX seconds), used to
     resolve 10-bit almanac weeks and to compute the data age. ``mapping``: a mapping file
     path or a dict {catalogue number: (sat_id, glonass_k)}, applied to TLE records.
-    ``strict``: TLE records with a bad checksum or field raise (True) or are skipped with a
-    warning (False). Errors are :class:`OrbitFormatError` (file problems) or
+    ``strict``: TLE records with a bad checksum or field, and records of any format whose
+    values are physically implausible (:mod:`core.orbits.plausibility`), raise (True) or
+    are skipped with a warning (False). Errors are :class:`OrbitFormatError` (file problems) or
     :class:`InputError` (a bad argument).
     """
     table = as_mapping(mapping)

@@ -29,6 +29,13 @@ _QZSS_FIRST_PRN = 193
 _FIELDS = ("PRN", "SVN", "URA", "eccentricity", "delta_i", "omega_dot", "sqrt_a", "omega0",
            "arg_perigee", "mean_anomaly", "af0", "af1", "health", "configuration")
 _INT_FIELDS = {"PRN", "SVN", "URA", "health", "configuration"}
+# plausibility quantity -> SEM field (named in messages as the reader names the column)
+_QUANTITY_FIELDS = {
+    "sqrt_a_m05": "sqrt_a", "eccentricity": "eccentricity", "inclination_rad": "delta_i",
+    "node_rate_rad_s": "omega_dot", "angle_rad:right ascension at week": "omega0",
+    "angle_rad:argument of perigee": "arg_perigee", "angle_rad:mean anomaly": "mean_anomaly",
+    "clock_bias_s": "af0", "clock_drift_s_s": "af1",
+}
 
 _COUNT_LINE = re.compile(r"^\s*(\d{1,4})(?:\s+(.*))?$")
 _WEEK_LINE = re.compile(r"^\s*(\d{1,5})\s+(\d{1,7}(?:\.\d*)?)\s*$")
@@ -53,8 +60,11 @@ def is_sem(text: str) -> bool:
 
 
 def parse_sem(text: str, source: str = "<sem>",
-              reference_time: datetime | float | None = None) -> OrbitSet:
-    """Parse SEM almanac text into an OrbitSet (same result as YUMA for the same almanac)."""
+              reference_time: datetime | float | None = None, *,
+              strict: bool = True) -> OrbitSet:
+    """Parse SEM almanac text into an OrbitSet (same result as YUMA for the same almanac).
+
+    ``strict``: as for :func:`core.orbits.readers.yuma.parse_yuma`."""
     reference_unix_s = reference_to_unix_s(reference_time)
     lines = _content_lines(text)
     if not lines:
@@ -97,7 +107,9 @@ def parse_sem(text: str, source: str = "<sem>",
         prn = int(values["PRN"])
         ref_sc = QZSS_REFERENCE_INCLINATION_SC if prn >= _QZSS_FIRST_PRN \
             else GPS_REFERENCE_INCLINATION_SC
+        lines = {name: line_no for name, (_, line_no) in zip(_FIELDS, chunk)}
         raws.append(RawAlmanac(
+            field_lines={q: lines[name] for q, name in _QUANTITY_FIELDS.items()},
             prn=prn, line=chunk[0][1], health=int(values["health"]), week_raw=week, toa_s=toa_s,
             eccentricity=values["eccentricity"],
             inclination_rad=(ref_sc + values["delta_i"]) * GPS_PI,
@@ -111,4 +123,5 @@ def parse_sem(text: str, source: str = "<sem>",
     if raws and count != len(raws):
         warnings.append(f"{source}: the header announces {count} records but the file holds "
                         f"{len(raws)}")
-    return finish_almanac_set(raws, "SEM", source, reference_unix_s, warnings)
+    return finish_almanac_set(raws, "SEM", source, reference_unix_s, warnings,
+                              dict(_QUANTITY_FIELDS), strict=strict)

@@ -14,6 +14,9 @@ Policy:
   :class:`OrbitFormatError` naming the line and the field (``checksum`` for checksums).
 * ``strict=False``: such a record is skipped with one warning naming its line; the
   rest of the file is read. A file with no usable record is an error either way.
+* Plausibility: mean motion, eccentricity, inclination and B* are checked against the
+  orbit shell of the satellite's system (:mod:`core.orbits.plausibility`); an implausible
+  record follows the same ``strict`` policy.
 * Satrec: ``sgp4.api.Satrec.twoline2rv(line1[:69], line2[:69])`` with its default
   gravity model WGS-72, the one the element sets are fitted with [pub: AIAA 2006-6753].
   The epoch (UTC) is ``jdsatepoch + jdsatepochF``.
@@ -36,6 +39,7 @@ from sgp4.api import Satrec
 from ...ground.constants import SECONDS_PER_DAY, UNIX_JD
 from ...ground.errors import OrbitFormatError
 from ..orbit_set import OrbitEntry, OrbitFileInfo, OrbitSet, SatelliteInfo
+from ..plausibility import RecordScreen
 from .identity import glonass_k_warning, identify_tle, parse_sat_id, unique_ids
 from .mapping import as_mapping
 
@@ -163,6 +167,19 @@ def _satrec(l1: str, l2: str, n1: int) -> Satrec:
     return sat
 
 
+# plausibility quantity -> the field as the user finds it in the record
+_QUANTITY_NAMES = {"mean_motion_rev_day": "line 2 mean motion",
+                   "eccentricity": "line 2 eccentricity",
+                   "inclination_rad": "line 2 inclination",
+                   "bstar_per_earth_radius": "line 1 B*"}
+
+
+def _plausibility_values(sat: Satrec) -> dict[str, float]:
+    return {"mean_motion_rev_day": sat.no_kozai * 1440.0 / (2.0 * math.pi),
+            "eccentricity": sat.ecco, "inclination_rad": sat.inclo,
+            "bstar_per_earth_radius": sat.bstar}
+
+
 def parse_tle(text: str, source: str = "<tle>",
               mapping: str | Path | Mapping[int, tuple[str, int | None]] | None = None, *,
               strict: bool = True, k_warning: bool = True) -> OrbitSet:
@@ -177,6 +194,7 @@ def parse_tle(text: str, source: str = "<tle>",
     items: list[tuple[OrbitEntry, int]] = []
     warnings: list[str] = []
     skipped = 0
+    screen = RecordScreen(source, strict)
 
     def problem(p: _Problem) -> None:
         nonlocal skipped
@@ -230,6 +248,11 @@ def parse_tle(text: str, source: str = "<tle>",
             mapped = parse_sat_id(mapped_id)
             if mapped is not None:
                 sat_id, system, prn = mapped.sat_id, mapped.system, mapped.prn
+        label = this_name if this_name else f"NORAD {cat:05d}"
+        if not screen.keep(system, _plausibility_values(sat), _QUANTITY_NAMES,
+                           record=f"TLE record for {label} ({sat_id})", line=n2,
+                           lines={"bstar_per_earth_radius": line_no}, kind="tle"):
+            continue
         epoch = (sat.jdsatepoch - UNIX_JD) * SECONDS_PER_DAY + sat.jdsatepochF * SECONDS_PER_DAY
         info = SatelliteInfo(sat_id=sat_id, system=system,
                              name=this_name if this_name else f"NORAD {cat:05d}",
@@ -239,10 +262,12 @@ def parse_tle(text: str, source: str = "<tle>",
     if name is not None:
         problem(_Problem(f"name line '{name[:30]}' is not followed by TLE lines", name_line,
                          "line 1"))
+    skipped += len(screen.dropped)
     if not items:
         why = f" ({skipped} bad record(s) skipped)" if skipped else ""
         raise OrbitFormatError(f"no usable TLE records{why}", file=source)
     entries, dup = unique_ids(items, source)
+    warnings.extend(screen.warnings)
     warnings.extend(dup)
     if k_warning:
         kw = glonass_k_warning(entries)

@@ -9,8 +9,10 @@ inclination is the FULL inclination (not an offset) [pub: domain-notes section 2
 
 Tolerated: any run of spaces ('Week  377'), trailing spaces, CRLF, 'E-02' / 'E-002' / 'D'
 exponents, QZSS PRNs 193-202 (-> J01-J10). Labels are matched by their leading words,
-case-insensitively; an unknown label is ignored with one warning. Week numbers are
-10-bit: they are placed in a 1024-week era by :func:`core.timeutil.resolve_week`
+case-insensitively; an unknown label is ignored with one warning. A record's ``week``
+line must agree with its header's week (an error naming the record otherwise). Each
+record is checked against the physical ranges of its system
+(:mod:`core.orbits.plausibility`). Week numbers are 10-bit: they are placed in a 1024-week era by :func:`core.timeutil.resolve_week`
 using the reference time (the planned start), never the computer clock.
 """
 
@@ -19,7 +21,7 @@ from __future__ import annotations
 import math
 import re
 from collections import Counter
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from datetime import datetime
 from numbers import Real
 
@@ -29,14 +31,17 @@ from ...ground.constants import SECONDS_PER_WEEK, WEEKS_PER_ROLLOVER
 from ...ground.errors import InputError, OrbitFormatError
 from ...ground.timeutil import gps_week_tow_to_unix_s, iso_z, resolve_week, to_unix_s
 from ..orbit_set import AlmanacRecord, OrbitEntry, OrbitFileInfo, OrbitSet, SatelliteInfo
+from ..plausibility import RecordScreen
 from .identity import almanac_identity, unique_ids
 
 # ---------------------------------------------------------------- shared helpers
 
 _NUMBER = re.compile(r"^[+-]?(?:\d{1,30}(?:\.\d{0,30})?|\.\d{1,30})(?:[EeDd][+-]?\d{1,4})?$")
 _INTEGER = re.compile(r"^[+-]?\d{1,9}$")
-# Largest week accepted (full weeks run to about 2170 before 5 digits are needed).
-_WEEK_MAX = 9999
+# Largest week any file can hold: the widest GPS week field has 13 bits (0..8191, the year
+# 2137) [mem: IS-GPS-200 30.3.3.1.1, CNAV week number]. 10-bit weeks are 0..1023; a larger
+# value is taken as a full week.
+_WEEK_MAX = 8191
 _HEALTH_MAX = 255
 
 
@@ -97,6 +102,17 @@ class RawAlmanac:
     mean_anomaly_rad: float
     af0_s: float
     af1_s_s: float
+    # line of each value in the file, by element name (for messages); empty = record line
+    field_lines: dict[str, int] = field(default_factory=dict)
+
+    def plausibility_values(self) -> dict[str, float]:
+        """The record's elements under the quantity names of core.orbits.plausibility."""
+        return {"sqrt_a_m05": self.sqrt_a_m05, "eccentricity": self.eccentricity,
+                "inclination_rad": self.inclination_rad, "node_rate_rad_s": self.omega_dot_rad_s,
+                "angle_rad:right ascension at week": self.omega0_rad,
+                "angle_rad:argument of perigee": self.arg_perigee_rad,
+                "angle_rad:mean anomaly": self.mean_anomaly_rad,
+                "clock_bias_s": self.af0_s, "clock_drift_s_s": self.af1_s_s}
 
 
 def _check_raw(r: RawAlmanac, source: str) -> None:
@@ -107,12 +123,6 @@ def _check_raw(r: RawAlmanac, source: str) -> None:
         raise bad(f"week {r.week_raw} is outside 0..{_WEEK_MAX}", "week")
     if not 0.0 <= r.toa_s < SECONDS_PER_WEEK:
         raise bad(f"time of applicability {r.toa_s} s is outside one week", "toa")
-    if not 0.0 <= r.eccentricity < 1.0:
-        raise bad(f"eccentricity {r.eccentricity} is outside 0..1", "eccentricity")
-    if not r.sqrt_a_m05 > 0.0:
-        raise bad(f"sqrt(A) {r.sqrt_a_m05} must be positive", "sqrt_a")
-    if not 0.0 <= r.inclination_rad <= math.pi:
-        raise bad(f"inclination {r.inclination_rad} rad is outside 0..pi", "inclination")
     if not 0 <= r.health <= _HEALTH_MAX:
         raise bad(f"health {r.health} is outside 0..{_HEALTH_MAX}", "health")
 
@@ -126,18 +136,33 @@ def _era_note(week_raw: int, toa_s: float) -> str:
 
 
 def finish_almanac_set(raws: list[RawAlmanac], fmt: str, source: str,
-                       reference_unix_s: float | None, warnings: list[str]) -> OrbitSet:
-    """Build the OrbitSet of an almanac file: IDs, full weeks, epochs, health warnings."""
+                       reference_unix_s: float | None, warnings: list[str],
+                       field_names: dict[str, str] | None = None, *,
+                       strict: bool = True) -> OrbitSet:
+    """Build the OrbitSet of an almanac file: IDs, full weeks, epochs, health warnings.
+
+    Each record is checked against the physical ranges of its system
+    (:mod:`core.orbits.plausibility`, ``field_names`` maps its quantity names to the
+    file's labels): ``strict`` stops at the first implausible record, otherwise it is
+    dropped with a warning."""
     if not raws:
         raise OrbitFormatError(f"no almanac records found in this {fmt} file", file=source)
     items: list[tuple[OrbitEntry, int]] = []
     unhealthy: list[str] = []
+    screen = RecordScreen(source, strict)
+    names = field_names or {}
+    kept: list[RawAlmanac] = []
     for r in raws:
         _check_raw(r, source)
         ident = almanac_identity(r.prn)
         if ident is None:
             raise OrbitFormatError(f"PRN {r.prn} is neither GPS (1-63) nor QZSS (193-202)",
                                    file=source, line=r.line, field="ID")
+        if not screen.keep(ident.system, r.plausibility_values(), names,
+                           record=f"record for PRN-{r.prn:02d}", line=r.line,
+                           lines=r.field_lines, kind="almanac"):
+            continue
+        kept.append(r)
         if reference_unix_s is None:
             week_full = r.week_raw
         else:
@@ -155,8 +180,12 @@ def finish_almanac_set(raws: list[RawAlmanac], fmt: str, source: str,
         if r.health != 0:
             unhealthy.append(f"{ident.sat_id} (health {r.health:03d})")
         items.append((OrbitEntry(info=info, almanac=alm), r.line))
+    if not items:
+        raise OrbitFormatError(f"no usable almanac records ({len(raws)} implausible record(s) "
+                               "dropped)", file=source)
+    raws = kept
     entries, dup_warnings = unique_ids(items, source)
-    warnings = list(warnings) + dup_warnings
+    warnings = list(warnings) + screen.warnings + dup_warnings
     if unhealthy:
         warnings.append(f"{source}: {len(unhealthy)} satellite(s) flagged unhealthy, kept and "
                         f"marked healthy=False: {', '.join(unhealthy)}")
@@ -212,6 +241,14 @@ _FIELD_NAMES = {
 }
 _REQUIRED = ("health", "e", "toa", "i", "omega_dot", "sqrt_a", "omega0", "argp", "m0", "af0",
              "af1")
+# plausibility quantity -> YUMA field key
+_QUANTITY_KEYS = {
+    "sqrt_a_m05": "sqrt_a", "eccentricity": "e", "inclination_rad": "i",
+    "node_rate_rad_s": "omega_dot", "angle_rad:right ascension at week": "omega0",
+    "angle_rad:argument of perigee": "argp", "angle_rad:mean anomaly": "m0",
+    "clock_bias_s": "af0", "clock_drift_s_s": "af1",
+}
+_QUANTITY_NAMES = {q: _FIELD_NAMES[k] for q, k in _QUANTITY_KEYS.items()}
 
 
 def _label_key(label: str) -> str | None:
@@ -250,16 +287,33 @@ def _record(header_line: int, header_week: int, header_prn: int, fields: dict[st
         raise OrbitFormatError(f"ID {prn} differs from the header's PRN-{header_prn:02d}",
                                file=source, line=fields["id"][1], field="ID")
     week = whole("week") if "week" in fields else header_week
+    if "week" in fields and not _same_week(week, header_week):
+        # A record cut short or pasted from another file: its week would move the satellite
+        # by years (seen: 'week: 8' under 'Week 862' put one satellite 102 deg off).
+        raise OrbitFormatError(
+            f"record for PRN-{header_prn:02d}: week {week} differs from week {header_week} in "
+            f"its header (line {header_line})", file=source, line=fields["week"][1],
+            field="week")
     return RawAlmanac(prn=prn, line=header_line, health=whole("health"), week_raw=week,
                       toa_s=num("toa"), eccentricity=num("e"), inclination_rad=num("i"),
                       omega_dot_rad_s=num("omega_dot"), sqrt_a_m05=num("sqrt_a"),
                       omega0_rad=num("omega0"), arg_perigee_rad=num("argp"),
-                      mean_anomaly_rad=num("m0"), af0_s=num("af0"), af1_s_s=num("af1"))
+                      mean_anomaly_rad=num("m0"), af0_s=num("af0"), af1_s_s=num("af1"),
+                      field_lines={q: fields[k][1] for q, k in _QUANTITY_KEYS.items()})
+
+
+def _same_week(a: int, b: int) -> bool:
+    """Equal weeks, or the same week once as a full and once as a 10-bit number."""
+    return a == b or (min(a, b) < WEEKS_PER_ROLLOVER and a % WEEKS_PER_ROLLOVER == b % WEEKS_PER_ROLLOVER)
 
 
 def parse_yuma(text: str, source: str = "<yuma>",
-               reference_time: datetime | float | None = None) -> OrbitSet:
-    """Parse YUMA almanac text into an OrbitSet (see the module docstring)."""
+               reference_time: datetime | float | None = None, *,
+               strict: bool = True) -> OrbitSet:
+    """Parse YUMA almanac text into an OrbitSet (see the module docstring).
+
+    ``strict``: a physically implausible record stops reading (True) or is dropped with a
+    warning (False); see :mod:`core.orbits.plausibility`."""
     reference_unix_s = reference_to_unix_s(reference_time)
     raws: list[RawAlmanac] = []
     unknown: dict[str, int] = {}
@@ -298,4 +352,5 @@ def parse_yuma(text: str, source: str = "<yuma>",
     if unknown:
         listed = ", ".join(f"'{k}' (line {v})" for k, v in unknown.items())
         warnings.append(f"{source}: unknown YUMA labels ignored: {listed}")
-    return finish_almanac_set(raws, "YUMA", source, reference_unix_s, warnings)
+    return finish_almanac_set(raws, "YUMA", source, reference_unix_s, warnings,
+                              _QUANTITY_NAMES, strict=strict)
