@@ -310,7 +310,7 @@ def evaluate(pair: Pair, sites: tuple[Site, ...] = SITES, mask_deg: float = MASK
     out: dict[str, list[np.ndarray]] = {k: [] for k in
                                         ("age", "pos", "rng", "dop", "sat", "site", "el")}
     for k, site in enumerate(sites):
-        pred = predict(pair.test, site, pair.unix_s)
+        pred = predict(pair.test, site, pair.unix_s, keep_states=True)
         if not np.allclose(pred.carrier_hz, L1_HZ):       # all tested sets here are GPS
             raise RuntimeError(f"{pair.key}: a satellite is not predicted at L1")
         r0, d0, el0 = line_of_sight(pair.truth_pos_m, pair.truth_vel_m_s, site, L1_HZ)

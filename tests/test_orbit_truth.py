@@ -342,7 +342,7 @@ def test_line_of_sight_matches_predict():
                       reference_time=1_414_792_800.0)
     site = Site(-34.0, -70.0, 500.0)
     u = 1_414_792_800.0 + np.arange(0.0, 7200.0, 600.0)
-    pred = predict(tle, site, u)
+    pred = predict(tle, site, u, keep_states=True)
     rng, dop, el = line_of_sight(pred.sat_pos_ecef_m, pred.sat_vel_ecef_m_s, site, L1_HZ)
     np.testing.assert_allclose(rng, pred.range_m, rtol=0, atol=1e-6)
     np.testing.assert_allclose(dop, pred.doppler_hz, rtol=0, atol=1e-9)

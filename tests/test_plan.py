@@ -290,7 +290,7 @@ def test_failed_propagation_samples_do_not_break_the_plan(demo_plan):
     g = copy.copy(demo_plan.prepared)
     pred = copy.copy(g.prediction)
     s = 3
-    for name in ("elevation_deg", "azimuth_deg", "doppler_hz", "range_rate_m_s", "range_m",
+    for name in ("elevation_deg", "azimuth_deg", "doppler_hz", "range_m",
                  "doppler_rate_hz_s", "elevation_rate_deg_s"):
         arr = getattr(pred, name).copy()
         arr[s, 100:] = np.nan

@@ -129,19 +129,23 @@ def builtin_timescale():
     return load.timescale(builtin=True)
 
 
+DUT1_KNOT_S = 3600.0
+
+
 def ut1_split(unix_s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """UT1 Julian date as (whole, fraction) from skyfield's built-in UT1-UTC table."""
     whole, frac = jd_split_utc(unix_s)
     ts = builtin_timescale()
-    # dut1 varies slowly: evaluate on a coarse subset and interpolate (saves time on long grids).
+    # dut1 varies slowly: evaluate it at whole hours and interpolate (saves time on long
+    # grids; the same knots whatever part of a grid is asked, so blocks agree).
     u = np.asarray(unix_s, dtype=float)
-    if u.size > 64:
-        knots = np.linspace(u.min(), u.max(), max(8, min(512, u.size // 16)))
-    else:
-        knots = u
+    if u.size == 0:
+        return whole, frac
+    h = DUT1_KNOT_S
+    knots = h * np.arange(np.floor(u.min() / h), np.floor(u.max() / h) + 2.0)
     tt = ts.utc(1970, 1, 1, 0, 0, knots)
     dut1_knots = np.atleast_1d(tt.dut1)
-    dut1 = np.interp(u, np.atleast_1d(knots), dut1_knots) if u.size > 1 else dut1_knots[:1].repeat(u.size)
+    dut1 = np.interp(u, knots, dut1_knots)
     frac_ut1 = frac + dut1 / SECONDS_PER_DAY
     return whole, frac_ut1
 

@@ -100,14 +100,19 @@ def doppler_second_derivative(pred: Prediction) -> np.ndarray:
 
 
 def position_gradient_hz_per_m(pred: Prediction) -> tuple[np.ndarray, np.ndarray]:
-    """|horizontal| and |vertical| Doppler gradient (Hz/m) w.r.t. the receiver position."""
-    los = pred.los_ecef
-    v = pred.sat_vel_ecef_m_s
-    rr = pred.range_rate_m_s
-    v_perp = v - rr[..., None] * los
-    g = v_perp / (pred.range_m * pred.wavelength_m[:, None])[..., None]
-    enu = g @ pred.site.enu_rotation.T
-    return np.hypot(enu[..., 0], enu[..., 1]), np.abs(enu[..., 2])
+    """|horizontal| and |vertical| Doppler gradient (Hz/m) w.r.t. the receiver position.
+
+    The gradient is v_perp / (range lambda), v_perp = v - (rho_hat . v) rho_hat. Its up
+    component is d(sin el)/dt range = cos(el) el_rate range [calc], and its horizontal
+    part the rest of |v_perp|^2 = |v|^2 - range_rate^2, so no vectors need to be kept.
+    """
+    lam = pred.wavelength_m[:, None]
+    rr = pred.doppler_hz * lam                                   # -range rate
+    up = np.radians(pred.elevation_rate_deg_s) * np.cos(np.radians(pred.elevation_deg)) * pred.range_m
+    speed = pred.sat_speed_m_s
+    horiz = np.sqrt(np.maximum(speed * speed - rr * rr - up * up, 0.0))
+    scale = 1.0 / (pred.range_m * lam)
+    return horiz * scale, np.abs(up) * scale
 
 
 # Above this time uncertainty the time term is evaluated on shifted predictions instead
@@ -216,7 +221,7 @@ def doppler_windows(pred: Prediction, unc: Uncertainty, orbit_margin_hz: np.ndar
     elif dt > 0 and t.size >= 2:
         gh = gh + np.abs(np.gradient(gh, t, axis=1)) * dt * 1.5
         gu = gu + np.abs(np.gradient(gu, t, axis=1)) * dt * 1.5
-    speed = np.linalg.norm(pred.sat_vel_ecef_m_s, axis=-1)
+    speed = pred.sat_speed_m_s
     second = 1.5 * speed / pred.range_m**2 * (r_h**2 + r_v**2) / lam + gu * r_h**2 / (2 * WGS84_A_M)
     pos = gh * r_h + gu * r_v + second
 

@@ -31,8 +31,9 @@ from ..ground.geodesy import Site
 from ..ground.signals import DEFAULT_SIGNAL_FOR_SYSTEM, SIGNALS, get_signal
 from ..ground.timeutil import TimeGrid, as_time_grid, iso_z, to_unix_s, unix_to_gps_s
 from ..orbits.almanac_model import AlmanacArrays, almanac_ecef
+from ..orbits.node_interp import interpolated_states, is_dense, samples_per_node, uniform_step_s
 from ..orbits.orbit_set import OrbitSet
-from ..orbits.sgp4_model import sgp4_ecef, sgp4_error_text
+from ..orbits.sgp4_model import sgp4_ecef_planes, sgp4_error_text
 
 SignalChoice = str | Sequence[str] | Mapping[str, str] | None
 
@@ -61,7 +62,12 @@ def resolve_signals(orbits: OrbitSet, signals: SignalChoice = None) -> list[str]
 
 @dataclass
 class Prediction:
-    """Geometry of every satellite at every time; arrays shaped (n_satellites, n_times)."""
+    """Geometry of every satellite at every time; arrays shaped (n_satellites, n_times).
+
+    Only what later stages need is kept (7 floats and a flag per satellite-sample); range
+    rate and range acceleration are Doppler and Doppler rate times the wavelength. The
+    Earth-fixed states (S, T, 3) are kept only on request (``predict(keep_states=True)``).
+    """
 
     ids: list[str]
     signal_ids: list[str]
@@ -71,16 +77,14 @@ class Prediction:
     azimuth_deg: np.ndarray
     elevation_deg: np.ndarray
     range_m: np.ndarray
-    range_rate_m_s: np.ndarray
-    range_accel_m_s2: np.ndarray
     doppler_hz: np.ndarray
     doppler_rate_hz_s: np.ndarray
     elevation_rate_deg_s: np.ndarray
-    los_ecef: np.ndarray              # (S, T, 3) unit vector site -> satellite, Earth-fixed
-    sat_pos_ecef_m: np.ndarray        # (S, T, 3)
-    sat_vel_ecef_m_s: np.ndarray      # (S, T, 3)
+    sat_speed_m_s: np.ndarray         # |Earth-fixed satellite velocity|
     valid: np.ndarray                 # (S, T) False where propagation failed
     warnings: list[str] = field(default_factory=list)
+    sat_pos_ecef_m: np.ndarray | None = None      # (S, T, 3), with keep_states only
+    sat_vel_ecef_m_s: np.ndarray | None = None    # (S, T, 3), with keep_states only
 
     @property
     def n_satellites(self) -> int:
@@ -93,37 +97,82 @@ class Prediction:
     def wavelength_m(self) -> np.ndarray:
         return SPEED_OF_LIGHT_M_S / self.carrier_hz
 
+    @property
+    def range_rate_m_s(self) -> np.ndarray:
+        return -self.doppler_hz * self.wavelength_m[:, None]
 
-def propagate_ecef(orbits: OrbitSet, unix_s: np.ndarray
+    @property
+    def range_accel_m_s2(self) -> np.ndarray:
+        return -self.doppler_rate_hz_s * self.wavelength_m[:, None]
+
+    @property
+    def los_ecef(self) -> np.ndarray:
+        """(S, T, 3) unit vector site -> satellite, Earth-fixed (needs keep_states)."""
+        if self.sat_pos_ecef_m is None:
+            raise ValueError("line-of-sight vectors need predict(..., keep_states=True)")
+        d = self.sat_pos_ecef_m - self.site.ecef_m
+        return d / np.linalg.norm(d, axis=-1, keepdims=True)
+
+
+# Satellite-samples per block of the time grid: predict's working memory is a few hundred
+# bytes times this, whatever the window (the results themselves are 57 bytes a sample).
+BLOCK_SAMPLES = 1 << 16
+
+
+def _almanac_planes(arrays: AlmanacArrays, u: np.ndarray):
+    p, v = almanac_ecef(arrays, unix_to_gps_s(u))
+    return p.transpose(2, 0, 1), v.transpose(2, 0, 1), np.zeros(p.shape[:2], dtype=np.uint8)
+
+
+def propagate_ecef(orbits: OrbitSet, unix_s: np.ndarray, *, failures: dict | None = None
                    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[str]]:
     """Earth-fixed position (m), velocity (m/s), each (S, T, 3), a validity mask (S, T)
-    and warnings, for every entry of the set at every instant."""
+    and warnings, for every entry of the set at every instant.
+
+    The arrays are views of component-first (3, S, T) storage, so ``pos[..., 0]`` is a
+    contiguous plane. ``failures`` (predict's blocks): a dict entry index ->
+    [samples failed, first failed time, set of SGP4 codes] that collects the failures
+    across calls; the warnings are then left to :func:`failure_warnings`.
+    """
     u = np.asarray(unix_s, dtype=float)
     n_s, n_t = len(orbits.entries), u.size
-    pos = np.full((n_s, n_t, 3), np.nan)
-    vel = np.full((n_s, n_t, 3), np.nan)
-    warnings: list[str] = []
+    pos = np.full((3, n_s, n_t), np.nan)
+    vel = np.full((3, n_s, n_t), np.nan)
     alm_idx = [i for i, e in enumerate(orbits.entries) if e.almanac is not None]
     tle_idx = [i for i, e in enumerate(orbits.entries) if e.satrec is not None]
+    own = {} if failures is None else failures
     if alm_idx:
         arrays = AlmanacArrays.from_records([orbits.entries[i].almanac for i in alm_idx])
-        p, v = almanac_ecef(arrays, unix_to_gps_s(u))
-        pos[alm_idx] = p
-        vel[alm_idx] = v
+        # Interpolated only on grids of 4 or more samples per node (direct below that).
+        if is_dense(u, min_samples_per_node=4.0):
+            p, v, _ = interpolated_states(lambda t: _almanac_planes(arrays, t), u)
+        else:
+            p, v, _ = _almanac_planes(arrays, u)
+        pos[:, alm_idx] = p
+        vel[:, alm_idx] = v
     if tle_idx:
-        p, v, err = sgp4_ecef([orbits.entries[i].satrec for i in tle_idx], u)
-        pos[tle_idx] = p
-        vel[tle_idx] = v
+        p, v, err = sgp4_ecef_planes([orbits.entries[i].satrec for i in tle_idx], u)
+        pos[:, tle_idx] = p
+        vel[:, tle_idx] = v
         for row in np.nonzero(err.any(axis=1))[0]:
-            e = orbits.entries[tle_idx[row]]
-            codes = np.unique(err[row][err[row] != 0])
-            first = u[np.argmax(err[row] != 0)]
-            warnings.append(
-                f"{e.info.sat_id}: SGP4 failed on {int((err[row] != 0).sum())} of {n_t} samples "
-                f"from {iso_z(first)} ({'; '.join(sgp4_error_text(c) for c in codes)}); "
-                "those samples are left out")
-    valid = np.isfinite(pos[..., 0])
-    return pos, vel, valid, warnings
+            bad = err[row] != 0
+            rec = own.setdefault(tle_idx[row], [0, float(u[np.argmax(bad)]), set()])
+            rec[0] += int(bad.sum())
+            rec[2].update(int(c) for c in np.unique(err[row][bad]))
+    valid = np.isfinite(pos[0])
+    warnings = [] if failures is not None else failure_warnings(orbits, own, n_t)
+    return pos.transpose(1, 2, 0), vel.transpose(1, 2, 0), valid, warnings
+
+
+def failure_warnings(orbits: OrbitSet, failures: dict, n_t: int) -> list[str]:
+    """One warning per satellite whose propagation failed (see :func:`propagate_ecef`)."""
+    out = []
+    for i in sorted(failures):
+        count, first, codes = failures[i]
+        out.append(f"{orbits.entries[i].info.sat_id}: SGP4 failed on {count} of {n_t} samples "
+                   f"from {iso_z(first)} ({'; '.join(sgp4_error_text(c) for c in sorted(codes))}); "
+                   "those samples are left out")
+    return out
 
 
 def _mu_for(orbits: OrbitSet) -> np.ndarray:
@@ -131,47 +180,111 @@ def _mu_for(orbits: OrbitSet) -> np.ndarray:
                      for e in orbits.entries])
 
 
-def _geometry(pos: np.ndarray, vel: np.ndarray, mu: np.ndarray, site: Site, wavelength: np.ndarray):
-    """Line-of-sight quantities from Earth-fixed states (S, T, 3), component-wise."""
+def _geometry(pos: np.ndarray, vel: np.ndarray, mu: np.ndarray, site: Site, wavelength: np.ndarray,
+              out: dict[str, np.ndarray] | None = None) -> dict[str, np.ndarray]:
+    """Line-of-sight quantities from Earth-fixed states (S, T, 3), component-wise, in the
+    site's east/north/up frame; written into ``out`` (arrays (S, T)) when given."""
+    o = out if out is not None else {name: np.empty(pos.shape[:-1]) for name in _KEPT}
     sx, sy, sz = site.ecef_m
     px, py, pz = pos[..., 0], pos[..., 1], pos[..., 2]
     vx, vy, vz = vel[..., 0], vel[..., 1], vel[..., 2]
-    dx, dy, dz = px - sx, py - sy, pz - sz
-    rng = np.sqrt(dx * dx + dy * dy + dz * dz)
-    inv = 1.0 / rng
-    lx, ly, lz = dx * inv, dy * inv, dz * inv
-    rr = lx * vx + ly * vy + lz * vz
-    # Earth-fixed acceleration of a two-body orbit: gravity less Coriolis and centrifugal
-    # terms (J2 neglected: < 6e-5 m/s^2, i.e. < 3e-4 Hz/s at L1).
-    r2 = px * px + py * py + pz * pz
-    k = mu[:, None] / (r2 * np.sqrt(r2))
-    w = EARTH_ROTATION_RAD_S
-    ax = -k * px + 2.0 * w * vy + w * w * px
-    ay = -k * py - 2.0 * w * vx + w * w * py
-    az_ = -k * pz
-    v2 = vx * vx + vy * vy + vz * vz
-    racc = (v2 + dx * ax + dy * ay + dz * az_ - rr * rr) * inv
     rot = site.enu_rotation
-    e = rot[0, 0] * lx + rot[0, 1] * ly
-    n = rot[1, 0] * lx + rot[1, 1] * ly + rot[1, 2] * lz
-    sin_el = rot[2, 0] * lx + rot[2, 1] * ly + rot[2, 2] * lz
-    horiz = np.sqrt(e * e + n * n)
-    azimuth = np.degrees(np.arctan2(e, n)) % 360.0
-    el = np.degrees(np.arctan2(sin_el, horiz))
-    up_v = rot[2, 0] * vx + rot[2, 1] * vy + rot[2, 2] * vz
-    d_sin_el = (up_v - sin_el * rr) * inv
-    el_rate = np.degrees(d_sin_el / np.maximum(horiz, 1e-12))
-    lam = wavelength[:, None]
-    los = np.stack((lx, ly, lz), axis=-1)
-    return dict(azimuth_deg=azimuth, elevation_deg=el, range_m=rng, range_rate_m_s=rr,
-                range_accel_m_s2=racc, doppler_hz=-rr / lam, doppler_rate_hz_s=-racc / lam,
-                elevation_rate_deg_s=el_rate, los_ecef=los)
+    dx, dy, dz = px - sx, py - sy, pz - sz
+    e = rot[0, 0] * dx
+    e += rot[0, 1] * dy
+    n = rot[1, 0] * dx
+    n += rot[1, 1] * dy
+    n += rot[1, 2] * dz
+    up = rot[2, 0] * dx
+    up += rot[2, 1] * dy
+    up += rot[2, 2] * dz
+    h2 = e * e
+    h2 += n * n
+    horiz = np.sqrt(h2)
+    h2 += up * up
+    rng = np.sqrt(h2, out=o["range_m"])
+    inv = 1.0 / rng
+    az = np.arctan2(e, n, out=o["azimuth_deg"])
+    np.degrees(az, out=az)
+    np.add(az, 360.0, out=az, where=az < 0.0)
+    az += 0.0                                   # -0.0 -> 0.0
+    el = np.arctan2(up, horiz, out=o["elevation_deg"])
+    np.degrees(el, out=el)
+    # Range rate (line of sight . velocity).
+    rr = dx * vx
+    rr += dy * vy
+    rr += dz * vz
+    rr *= inv
+    # Elevation rate: d(sin el)/dt / cos el = (up . v - sin el rr) / horizontal distance.
+    up_v = rot[2, 0] * vx
+    up_v += rot[2, 1] * vy
+    up_v += rot[2, 2] * vz
+    up_v -= up * inv * rr
+    np.maximum(horiz, 1e-12 * rng, out=horiz)
+    up_v /= horiz
+    np.degrees(up_v, out=o["elevation_rate_deg_s"])
+    # Earth-fixed acceleration of a two-body orbit: gravity less Coriolis and centrifugal
+    # terms (J2 neglected: < 6e-5 m/s^2, i.e. < 3e-4 Hz/s at L1). With A = d.p (x, y)
+    # and B = d.p: d.a = -k B + 2 w (dx vy - dy vx) + w^2 A.
+    w = EARTH_ROTATION_RAD_S
+    r2 = px * px
+    r2 += py * py
+    r2 += pz * pz
+    k = np.sqrt(r2)
+    k *= r2
+    np.divide(mu[:, None], k, out=k)
+    a_xy = dx * px
+    a_xy += dy * py
+    b = dz * pz
+    b += a_xy
+    b *= -k
+    b += (w * w) * a_xy
+    cross = dx * vy
+    cross -= dy * vx
+    cross *= 2.0 * w
+    b += cross
+    v2 = vx * vx
+    v2 += vy * vy
+    v2 += vz * vz
+    np.sqrt(v2, out=o["sat_speed_m_s"])
+    b += v2
+    b -= rr * rr
+    b *= inv
+    inv_lam = (-1.0 / wavelength)[:, None]
+    np.multiply(rr, inv_lam, out=o["doppler_hz"])
+    np.multiply(b, inv_lam, out=o["doppler_rate_hz_s"])
+    return o
+
+
+_KEPT = ("azimuth_deg", "elevation_deg", "range_m", "doppler_hz", "doppler_rate_hz_s",
+         "elevation_rate_deg_s", "sat_speed_m_s")
+
+
+def blocks(n_satellites: int, unix_s: np.ndarray) -> list[tuple[int, int]]:
+    """Index ranges [a, b) of the grid's blocks: about BLOCK_SAMPLES satellite-samples each
+    and a whole number of node intervals, so that every block sees the same node lattice
+    (a grid's last sample off the step, as time_grid appends, is a block of its own)."""
+    n_t = unix_s.size
+    body = n_t - 1 if (n_t > 2 and uniform_step_s(unix_s) is None
+                       and uniform_step_s(unix_s[:-1]) is not None) else n_t
+    m = max(1, samples_per_node(unix_s[:body]))
+    n = max(1, BLOCK_SAMPLES // max(n_satellites, 1))
+    step = max(m, n // m * m)
+    out = [(a, min(a + step, body)) for a in range(0, body, step)]
+    if body < n_t:
+        out.append((body, n_t))
+    return out
 
 
 def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] | np.ndarray,
-            signals: SignalChoice = None) -> Prediction:
+            signals: SignalChoice = None, *, keep_states: bool = False) -> Prediction:
     """Azimuth, elevation, range, range rate, Doppler and Doppler rate of every satellite
-    of ``orbits`` seen from ``site`` at ``times`` (TimeGrid, aware datetimes, or UTC POSIX s)."""
+    of ``orbits`` seen from ``site`` at ``times`` (TimeGrid, aware datetimes, or UTC POSIX s).
+
+    The grid is processed in blocks of about BLOCK_SAMPLES satellite-samples written into
+    preallocated result arrays, so working memory does not grow with the window.
+    ``keep_states`` also keeps the Earth-fixed positions and velocities (S, T, 3).
+    """
     if not len(orbits.entries):
         raise ComputationError("the orbit data holds no satellites")
     grid = as_time_grid(times)
@@ -180,11 +293,26 @@ def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] |
     sig_ids = resolve_signals(orbits, signals)
     carrier = np.array([SIGNALS[s].carrier_for(e.info.glonass_k)
                         for s, e in zip(sig_ids, orbits.entries)])
-    pos, vel, valid, warnings = propagate_ecef(orbits, grid.unix_s)
-    g = _geometry(pos, vel, _mu_for(orbits), site, SPEED_OF_LIGHT_M_S / carrier)
+    u = grid.unix_s
+    n_s, n_t = len(orbits.entries), u.size
+    out = {name: np.empty((n_s, n_t)) for name in _KEPT}
+    valid = np.empty((n_s, n_t), dtype=bool)
+    states = (np.empty((n_s, n_t, 3)), np.empty((n_s, n_t, 3))) if keep_states else None
+    mu = _mu_for(orbits)
+    lam = SPEED_OF_LIGHT_M_S / carrier
+    failures: dict = {}
+    for a, b in blocks(n_s, u):
+        pos, vel, ok, _ = propagate_ecef(orbits, u[a:b], failures=failures)
+        _geometry(pos, vel, mu, site, lam, out={name: v[:, a:b] for name, v in out.items()})
+        valid[:, a:b] = ok
+        if states is not None:
+            states[0][:, a:b] = pos
+            states[1][:, a:b] = vel
+    warnings = failure_warnings(orbits, failures, n_t)
     return Prediction(ids=orbits.ids, signal_ids=sig_ids, carrier_hz=carrier, times=grid,
-                      site=site, sat_pos_ecef_m=pos, sat_vel_ecef_m_s=vel, valid=valid,
-                      warnings=list(orbits.warnings) + warnings, **g)
+                      site=site, valid=valid, warnings=list(orbits.warnings) + warnings,
+                      sat_pos_ecef_m=None if states is None else states[0],
+                      sat_vel_ecef_m_s=None if states is None else states[1], **out)
 
 
 @dataclass(frozen=True)
