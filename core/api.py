@@ -73,6 +73,21 @@ _PUBLIC: dict[str, str] = {
     "plan_rows": "core.plan.pipeline",
     "timeline_rows": "core.plan.pipeline",
     "SUMMARY_COLUMNS": "core.plan.pipeline",
+    "SweepSpec": "core.plan.sweep",
+    "SweepResult": "core.plan.sweep",
+    "SweepRow": "core.plan.sweep",
+    "SWEEP_KEYS": "core.plan.sweep",
+    "SWEEP_ROW_COLUMNS": "core.plan.sweep",
+    "SWEEP_RANK_COLUMNS": "core.plan.sweep",
+    "sweep_spec": "core.plan.sweep",
+    "departure_times": "core.plan.sweep",
+    "run_sweep": "core.plan.sweep",
+    "sweep_cell_scenario": "core.plan.sweep",
+    "best_scenario": "core.plan.sweep",
+    "sweep_rows": "core.plan.sweep",
+    "ranking_rows": "core.plan.sweep",
+    "sweep_to_json": "core.plan.sweep",
+    "short_key": "core.plan.sweep",
     # files: text in and out
     "load_scenario": "core.files.scenario",
     "save_scenario": "core.files.scenario",
@@ -136,6 +151,23 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
         timeline_rows,
     )
     from core.plan.spec import KEY_RULES, Scenario, ScenarioValidationError  # noqa: F401
+    from core.plan.sweep import (  # noqa: F401
+        SWEEP_KEYS,
+        SWEEP_RANK_COLUMNS,
+        SWEEP_ROW_COLUMNS,
+        SweepResult,
+        SweepRow,
+        SweepSpec,
+        best_scenario,
+        departure_times,
+        ranking_rows,
+        run_sweep,
+        short_key,
+        sweep_cell_scenario,
+        sweep_rows,
+        sweep_spec,
+        sweep_to_json,
+    )
     from core.search.bins import bin_centres, design_bins, loss_curve  # noqa: F401
     from core.search.windows import Uncertainty, doppler_windows  # noqa: F401
     from core.sky.predict import Pass, Prediction, passes, predict  # noqa: F401
