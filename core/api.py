@@ -57,6 +57,9 @@ _PUBLIC: dict[str, str] = {
     # search: one acquisition's search space
     "Uncertainty": "core.search.windows",
     "doppler_windows": "core.search.windows",
+    "MotionUncertainty": "core.search.motion",
+    "RouteMotion": "core.search.motion",
+    "route_motion": "core.search.motion",
     "design_bins": "core.search.bins",
     "bin_centres": "core.search.bins",
     "loss_curve": "core.search.bins",
@@ -169,6 +172,7 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
         sweep_to_json,
     )
     from core.search.bins import bin_centres, design_bins, loss_curve  # noqa: F401
+    from core.search.motion import MotionUncertainty, RouteMotion, route_motion  # noqa: F401
     from core.search.windows import Uncertainty, doppler_windows  # noqa: F401
     from core.sky.predict import Pass, Prediction, passes, predict  # noqa: F401
     from core.sky.route import Route, RouteFile, read_route_file, route_file_summary, time_route  # noqa: F401

@@ -39,6 +39,54 @@ class Site:
         return enu_rotation(self.lat_deg, self.lon_deg)
 
 
+@dataclass(frozen=True, eq=False)
+class SitePath:
+    """A receiver that moves: one position per time of a grid (arrays (T,)).
+
+    It stands in for a :class:`Site` in ``core.sky.predict``: ``ecef_m`` is (3, T) and
+    ``enu_rotation`` (3, 3, T), so that the component-wise line-of-sight geometry
+    broadcasts over the time axis (sample k seen from position k)."""
+
+    lat_deg: np.ndarray
+    lon_deg: np.ndarray
+    height_m: np.ndarray
+
+    def __post_init__(self) -> None:
+        lat, lon, h = (np.atleast_1d(np.asarray(x, dtype=float))
+                       for x in (self.lat_deg, self.lon_deg, self.height_m))
+        if not (lat.shape == lon.shape == h.shape) or lat.ndim != 1:
+            raise InputError("latitude, longitude and height need one value per time", field="route")
+        bad = ~(np.isfinite(lat) & (np.abs(lat) <= 90.0) & np.isfinite(lon) & np.isfinite(h))
+        if bad.any():
+            raise InputError(f"position {int(np.argmax(bad))} of the route is not a valid place",
+                             field="route")
+        object.__setattr__(self, "lat_deg", lat)
+        object.__setattr__(self, "lon_deg", lon)
+        object.__setattr__(self, "height_m", h)
+
+    def __len__(self) -> int:
+        return int(self.lat_deg.size)
+
+    @property
+    def ecef_m(self) -> np.ndarray:
+        return geodetic_to_ecef(self.lat_deg, self.lon_deg, self.height_m).T
+
+    @property
+    def enu_rotation(self) -> np.ndarray:
+        lat, lon = np.radians(self.lat_deg), np.radians(self.lon_deg)
+        sl, cl, so, co = np.sin(lat), np.cos(lat), np.sin(lon), np.cos(lon)
+        z = np.zeros_like(lat)
+        return np.array([[-so, co, z], [-sl * co, -sl * so, cl], [cl * co, cl * so, sl]])
+
+    def at(self, k: int) -> Site:
+        """The position of sample k as a :class:`Site`."""
+        return Site(float(self.lat_deg[k]), float(self.lon_deg[k]), float(self.height_m[k]))
+
+    def take(self, index) -> SitePath:
+        """The positions of some samples (a slice or an index array)."""
+        return SitePath(self.lat_deg[index], self.lon_deg[index], self.height_m[index])
+
+
 def geodetic_to_ecef(lat_deg, lon_deg, height_m) -> np.ndarray:
     """Earth-fixed x, y, z in metres, shape (..., 3)."""
     lat = np.radians(lat_deg)

@@ -43,6 +43,7 @@ from ..orbits.orbit_margin import L1_HZ, margin_extrapolated, orbit_margin_hz, o
 from ..orbits.orbit_set import OrbitFileInfo, OrbitSet
 from ..search import bins as binlib
 from ..search import codephase, detection
+from ..search.motion import RouteMotion
 from ..search.windows import (
     DopplerWindows,
     ShiftSummary,
@@ -93,6 +94,10 @@ class PreparedGeometry:
     warnings: list[str]
     propagate_s: float
     window_cache: dict = field(default_factory=dict)
+    # A drive along a route (core.plan.events): the receiver's motion over the grid for
+    # the windows, and the surroundings' attenuation (dB) per (S, T) for the C/N0.
+    motion: RouteMotion | None = None
+    extra_loss_db: np.ndarray | float = 0.0
 
 
 def _select_satellites(orbits: OrbitSet, signals: tuple[str, ...]) -> tuple[OrbitSet, dict[str, str], list[str]]:
@@ -399,7 +404,7 @@ def first_windows(g: PreparedGeometry, unc: Uncertainty, margins: OrbitMargins
     wkey = (unc, margins.doppler_hz.tobytes())
     cached = g.window_cache.get(wkey)
     if cached is None:
-        w_raw = doppler_windows(g.prediction, unc, margins.doppler_hz, shifted=g.shifted)
+        w_raw = doppler_windows(g.prediction, unc, margins.doppler_hz, shifted=g.shifted, motion=g.motion)
         cached = (w_raw, _widen_for_unknown_k(w_raw, unknown_glonass_k(g)))
         g.window_cache.clear()
         g.window_cache[wkey] = cached
@@ -709,7 +714,7 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
     warnings += integ.warnings
     cw = code_windows(sc, g, unc, margins)
     warnings += cw.warnings
-    det = detection_figures(sc, g, integ)
+    det = detection_figures(sc, g, integ, g.extra_loss_db)
 
     _report(progress, 0.7, "search costs")
     bins_first, cost_first = search_costs(sc, integ, det, w_first, cw.cells_first)

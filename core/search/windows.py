@@ -39,6 +39,7 @@ import numpy as np
 
 from ..ground.constants import WGS84_A_M
 from ..sky.predict import Prediction
+from .motion import RouteMotion, motion_terms_hz
 
 TERM_NAMES = ("position", "time", "velocity", "oscillator", "orbit")
 
@@ -113,6 +114,16 @@ def position_gradient_hz_per_m(pred: Prediction) -> tuple[np.ndarray, np.ndarray
     horiz = np.sqrt(np.maximum(speed * speed - rr * rr - up * up, 0.0))
     scale = 1.0 / (pred.range_m * lam)
     return horiz * scale, np.abs(up) * scale
+
+
+def position_gradient_ecef(pred: Prediction) -> np.ndarray:
+    """Doppler gradient (Hz/m) w.r.t. the receiver position, Earth-fixed, (S, T, 3):
+    v_perp / (range lambda) (needs a prediction with ``keep_states``)."""
+    los = pred.los_ecef
+    v = pred.sat_vel_ecef_m_s
+    rr = np.sum(los * v, axis=-1)
+    v_perp = v - rr[..., None] * los
+    return v_perp / (pred.range_m * pred.wavelength_m[:, None])[..., None]
 
 
 # Above this time uncertainty the time term is evaluated on shifted predictions instead
@@ -197,14 +208,20 @@ def _velocity_term(pred: Prediction, unc: Uncertainty, el_spread_rad: np.ndarray
 
 
 def doppler_windows(pred: Prediction, unc: Uncertainty, orbit_margin_hz: np.ndarray | float = 0.0,
-                    shifted: ShiftSummary | None = None) -> DopplerWindows:
+                    shifted: ShiftSummary | None = None, motion: RouteMotion | None = None) -> DopplerWindows:
     """Nominal apparent Doppler and the window that holds every admissible truth.
 
     ``shifted``: the :func:`shift_summary` of the same grid; required when
-    ``unc.time_s`` exceeds ``TAYLOR_LIMIT_S``.
+    ``unc.time_s`` exceeds ``TAYLOR_LIMIT_S``. ``motion``: the drive along a route
+    (core.search.motion) over the same grid, predicted from its nominal positions; then the
+    nominal holds the route velocity's Doppler, the velocity term is the route term and
+    the position term also holds every position the schedule slip allows (``unc``'s speed
+    bounds are not used).
     """
     if unc.time_s > TAYLOR_LIMIT_S and shifted is None:
         raise ValueError("time uncertainty above TAYLOR_LIMIT_S needs shifted predictions")
+    if motion is not None:
+        return _route_windows(pred, unc, orbit_margin_hz, shifted, motion)
     f_c = pred.carrier_hz[:, None]
     lam = pred.wavelength_m[:, None]
     d = pred.doppler_hz
@@ -247,6 +264,89 @@ def doppler_windows(pred: Prediction, unc: Uncertainty, orbit_margin_hz: np.ndar
     low = nominal + sum(lows.values())
     high = nominal + sum(highs.values())
     return DopplerWindows(nominal, low, high, lows, highs)
+
+
+def _oscillator_terms(d, f_c, unc: Uncertainty, others_hz):
+    """Signed oscillator extents, exact, with the cross term e x (the other terms' extent)."""
+    nominal = apparent_doppler_hz(d, f_c, unc.oscillator_offset_ppb)
+    e0, de = unc.oscillator_offset_ppb, unc.oscillator_uncertainty_ppb
+    cross = (abs(e0) + de) * 1e-9 * others_hz
+    return (apparent_doppler_hz(d, f_c, e0 + de) - nominal - cross,
+            apparent_doppler_hz(d, f_c, e0 - de) - nominal + cross)
+
+
+def _route_windows(pred: Prediction, unc: Uncertainty, orbit_margin_hz, shifted: ShiftSummary | None,
+                   motion: RouteMotion) -> DopplerWindows:
+    """The windows on a route (see :func:`doppler_windows` and core.search.motion).
+
+    Position: the disc and band of ``unc`` as for a site, plus the exact extremes of the
+    linear term g . (p - p_nominal) over the positions the slip allows (the route's
+    vertices in the slip range and its ends), the growth of g over the time uncertainty
+    times the largest displacement, second-order terms over (slip extent + disc radius),
+    and a leg's bulge off its chord (L^2 / 8a) times |g|.
+    Velocity: exact extremes of (route velocity . line of sight) / lambda over the
+    candidate legs' speed, heading and climb ranges, less the nominal leg's value, plus
+    |v|max x the line of sight's turn over the admissible positions and times.
+    """
+    f_c = pred.carrier_hz[:, None]
+    lam = pred.wavelength_m[:, None]
+    st = motion.nominal
+    el = np.radians(pred.elevation_deg)
+    p_nom = (st.speed_m_s[None, :] * np.cos(el) * np.cos(np.radians(pred.azimuth_deg - st.heading_deg[None, :]))
+             + st.vertical_m_s[None, :] * np.sin(el))
+    d = pred.doppler_hz + p_nom / lam          # receiver motion adds +(los . v_rx) / lambda
+    nominal = apparent_doppler_hz(d, f_c, unc.oscillator_offset_ppb)
+    t = pred.times.unix_s
+    dt = unc.time_s
+    r_h, r_v = unc.horizontal_m, unc.vertical_m
+    gh, gu = position_gradient_hz_per_m(pred)
+    g_abs = np.hypot(gh, gu)
+    # The gradient's largest value over the time interval, as for a site.
+    if shifted is not None:
+        gh_t, gu_t = np.maximum(gh, shifted.gh_max), np.maximum(gu, shifted.gu_max)
+    elif dt > 0 and t.size >= 2:
+        gh_t = gh + np.abs(np.gradient(gh, t, axis=1)) * dt * 1.5
+        gu_t = gu + np.abs(np.gradient(gu, t, axis=1)) * dt * 1.5
+    else:
+        gh_t, gu_t = gh, gu
+    growth = (gh_t - gh) + (gu_t - gu)
+    reach = motion.max_disp_m[None, :]
+    # Elevation seen from any admissible position and time, as for a site (_velocity_term).
+    spread = ((reach + r_h) / WGS84_A_M + (reach + r_h + r_v) / pred.range_m
+              + np.radians(np.abs(pred.elevation_rate_deg_s)) * dt * 1.05)
+    s_lo, s_hi, v_lo, v_hi, j_lo, j_hi = motion_terms_hz(
+        motion, pred.azimuth_deg, pred.elevation_deg, position_gradient_ecef(pred), pred.wavelength_m,
+        spread)
+    speed = pred.sat_speed_m_s
+    second = (1.5 * speed / pred.range_m**2 * ((reach + r_h) ** 2 + r_v**2) / lam
+              + gu_t * (reach + r_h) ** 2 / (2 * WGS84_A_M)
+              + g_abs * motion.max_leg_m[None, :] ** 2 / (8 * WGS84_A_M))
+    disc = gh_t * r_h + gu_t * r_v + growth * reach + second
+
+    t_low, t_high = _time_term(pred, dt, shifted)
+
+    turn = ((reach + r_h) / WGS84_A_M + (reach + r_h + r_v) / pred.range_m
+            + g_abs * lam * dt * 1.05)         # |v_perp| / range is the line of sight's turn rate
+    turn_hz = motion.max_horizontal_speed_m_s[None, :] * turn / lam
+    # Position and motion on the same leg go together: the joint extreme (relative to the
+    # nominal) is booked on the position term first (up to the slip's own reach), the
+    # rest on the velocity term.
+    nom_hz = p_nom / lam
+    joint_lo = np.minimum(j_lo - nom_hz, 0.0)
+    joint_hi = np.maximum(j_hi - nom_hz, 0.0)
+    slip_lo = np.maximum(np.minimum(s_lo, 0.0), joint_lo)
+    slip_hi = np.minimum(np.maximum(s_hi, 0.0), joint_hi)
+    p_low, p_high = slip_lo - disc, slip_hi + disc
+    vel_low = (joint_lo - slip_lo) - turn_hz
+    vel_high = (joint_hi - slip_hi) + turn_hz
+
+    others = (np.maximum(-p_low, p_high) + np.maximum(-vel_low, vel_high) + np.maximum(-t_low, t_high))
+    o_low, o_high = _oscillator_terms(d, f_c, unc, others)
+    orbit = np.broadcast_to(np.asarray(orbit_margin_hz, dtype=float), d.shape)
+    lows = {"position": p_low, "time": t_low, "velocity": vel_low, "oscillator": o_low, "orbit": -orbit}
+    highs = {"position": p_high, "time": t_high, "velocity": vel_high, "oscillator": o_high,
+             "orbit": orbit + 0.0}
+    return DopplerWindows(nominal, nominal + sum(lows.values()), nominal + sum(highs.values()), lows, highs)
 
 
 def oscillator_fraction_after(w: DopplerWindows, carrier_hz: np.ndarray, sats, ks,

@@ -27,7 +27,7 @@ from ..ground.constants import (
     WGS72_MU_M3_S2,
 )
 from ..ground.errors import ComputationError, InputError
-from ..ground.geodesy import Site
+from ..ground.geodesy import Site, SitePath
 from ..ground.signals import DEFAULT_SIGNAL_FOR_SYSTEM, SIGNALS, get_signal
 from ..ground.timeutil import TimeGrid, as_time_grid, iso_z, to_unix_s, unix_to_gps_s
 from ..orbits.almanac_model import AlmanacArrays, almanac_ecef
@@ -110,7 +110,8 @@ class Prediction:
         """(S, T, 3) unit vector site -> satellite, Earth-fixed (needs keep_states)."""
         if self.sat_pos_ecef_m is None:
             raise ValueError("line-of-sight vectors need predict(..., keep_states=True)")
-        d = self.sat_pos_ecef_m - self.site.ecef_m
+        site = self.site.ecef_m
+        d = self.sat_pos_ecef_m - (site.T if site.ndim == 2 else site)   # SitePath: (3, T)
         return d / np.linalg.norm(d, axis=-1, keepdims=True)
 
 
@@ -284,6 +285,8 @@ def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] |
     The grid is processed in blocks of about BLOCK_SAMPLES satellite-samples written into
     preallocated result arrays, so working memory does not grow with the window.
     ``keep_states`` also keeps the Earth-fixed positions and velocities (S, T, 3).
+    ``site`` may be a :class:`~core.ground.geodesy.SitePath` (a receiver that moves: one
+    position per grid time).
     """
     if not len(orbits.entries):
         raise ComputationError("the orbit data holds no satellites")
@@ -303,7 +306,8 @@ def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] |
     failures: dict = {}
     for a, b in blocks(n_s, u):
         pos, vel, ok, _ = propagate_ecef(orbits, u[a:b], failures=failures)
-        _geometry(pos, vel, mu, site, lam, out={name: v[:, a:b] for name, v in out.items()})
+        here = site.take(slice(a, b)) if isinstance(site, SitePath) else site   # a moving receiver
+        _geometry(pos, vel, mu, here, lam, out={name: v[:, a:b] for name, v in out.items()})
         valid[:, a:b] = ok
         if states is not None:
             states[0][:, a:b] = pos

@@ -95,7 +95,7 @@ class RouteFile:
         if t[0] < GPS_EPOCH_UNIX_S or t.min() < GPS_EPOCH_UNIX_S:
             k = int(np.argmin(t))
             return f"times before 1980 ({iso_z(float(t[k]))} at {self.elements[k]})"
-        if np.all(t == t[0]):
+        if t.size > 1 and np.all(t == t[0]):
             return f"all {t.size} times are equal ({iso_z(float(t[0]))})"
         back = np.nonzero(np.diff(t) < 0)[0]
         if back.size:

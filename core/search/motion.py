@@ -1,0 +1,234 @@
+"""The receiver's motion along a known route, as the Doppler windows need it.
+
+On a route the direction of travel is known, so the receiver-motion term of a window is
+the projection of the route velocity on the line of sight, not a bound from a maximum
+speed in any direction. What the planner does not know about the motion:
+
+* **schedule slip** ``slip_s``: the vehicle may be up to that many seconds early or late
+  on its timetable, so at time t it is anywhere between the route positions of t - slip
+  and t + slip, driving as planned there (the route legs active in that time range);
+* **speed** ``speed_m_s``: the true speed on a moving leg is the planned speed +- this
+  (never below 0); a dwell (stop at a waypoint) is a stop, before the first and after the
+  last point the vehicle waits;
+* **heading** ``heading_deg``: the true direction of travel is the leg's geodesic
+  azimuth (between its value at the leg's start and end) +- this (lane changes, curves
+  between recorded points, a recording's noise);
+* **climb** ``vertical_m_s``: the rate of climb is the leg's (height change over time)
+  +- this.
+
+Defaults (documented in docs/scenario-keys.md): slip 0, speed +-3 m/s (about 11 km/h,
+traffic on a planned speed) [trade], heading +-15 deg [trade], climb +-1 m/s [trade].
+
+``RouteMotion`` holds, per grid time, the candidate positions (route vertices inside the
+slip range and its two ends; the extremes of a linear function over the polyline are at
+those points) and the candidate legs, so that ``core.search.windows`` can take exact
+extremes over them.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from geographiclib.geodesic import Geodesic
+
+from ..ground.geodesy import SitePath, geodetic_to_ecef
+from ..sky.route import Route, RouteStates
+
+# Defaults of what the plan does not know about the drive [trade: typical drive-test
+# traffic and recording noise; documented in docs/scenario-keys.md].
+DEFAULT_SPEED_UNCERTAINTY_M_S = 3.0
+DEFAULT_HEADING_UNCERTAINTY_DEG = 15.0
+DEFAULT_VERTICAL_UNCERTAINTY_M_S = 1.0
+
+
+@dataclass(frozen=True)
+class MotionUncertainty:
+    """What the plan does not know about the drive (see the module docstring)."""
+
+    slip_s: float = 0.0
+    speed_m_s: float = DEFAULT_SPEED_UNCERTAINTY_M_S
+    heading_deg: float = DEFAULT_HEADING_UNCERTAINTY_DEG
+    vertical_m_s: float = DEFAULT_VERTICAL_UNCERTAINTY_M_S
+
+
+@dataclass
+class RouteMotion:
+    """The drive over a time grid (T times).
+
+    ``nominal``: the vehicle where the timetable puts it; ``path``: the same positions as
+    a :class:`~core.ground.geodesy.SitePath` for the prediction; ``slip_from_m`` /
+    ``slip_to_m``: the distance range the slip allows. ``leg_*`` (T, L) describe the candidate
+    legs (``leg_ok`` marks the real ones): Earth-fixed displacement from the nominal
+    position of the start and end of the part of each leg inside the slip range
+    (T, L, 3), speed range, heading range (deg, unwrapped so that lo <= hi) and climb
+    range. Two extra legs stand for waiting before the route's start or after its end."""
+
+    unc: MotionUncertainty
+    nominal: RouteStates
+    path: SitePath
+    slip_from_m: np.ndarray
+    slip_to_m: np.ndarray
+    leg_start_disp_ecef_m: np.ndarray
+    leg_end_disp_ecef_m: np.ndarray
+    max_disp_m: np.ndarray          # (T,) largest candidate displacement
+    max_leg_m: np.ndarray           # (T,) longest candidate leg (for the chord bound)
+    leg_speed_lo_m_s: np.ndarray
+    leg_speed_hi_m_s: np.ndarray
+    leg_heading_lo_deg: np.ndarray
+    leg_heading_hi_deg: np.ndarray
+    leg_climb_lo_m_s: np.ndarray
+    leg_climb_hi_m_s: np.ndarray
+    leg_ok: np.ndarray
+
+    @property
+    def max_horizontal_speed_m_s(self) -> np.ndarray:
+        """(T,) fastest admissible horizontal speed over the candidate legs."""
+        return np.max(np.where(self.leg_ok, self.leg_speed_hi_m_s, 0.0), axis=1)
+
+
+def _leg_end_azimuths(route: Route) -> np.ndarray:
+    n = route.lat_deg.size
+    out = np.array(route.leg_azimuth_deg, dtype=float)
+    for j in range(n - 1):
+        if route.distance_m[j + 1] > route.distance_m[j]:
+            g = Geodesic.WGS84.Inverse(route.lat_deg[j], route.lon_deg[j], route.lat_deg[j + 1],
+                                       route.lon_deg[j + 1], Geodesic.AZIMUTH)
+            out[j] = g["azi2"]
+    return out
+
+
+def _pad_ranges(first: np.ndarray, last: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Index matrix (T, K) covering first..last (inclusive) per row, and its validity."""
+    count = np.maximum(last - first + 1, 0)
+    k = max(int(count.max(initial=0)), 1)
+    idx = first[:, None] + np.arange(k)[None, :]
+    ok = np.arange(k)[None, :] < count[:, None]
+    return np.where(ok, idx, np.maximum(first, 0)[:, None]), ok
+
+
+def route_motion(route: Route, unix_s: np.ndarray, unc: MotionUncertainty = MotionUncertainty()
+                 ) -> RouteMotion:
+    """The drive over the times ``unix_s`` with the uncertainties ``unc``."""
+    t = np.asarray(unix_s, dtype=float)
+    nominal = route.state_at(t)
+    path = SitePath(nominal.lat_deg, nominal.lon_deg, nominal.height_m)
+    slip = float(unc.slip_s)
+    lo_t, hi_t = t - slip, t + slip
+    d_lo, d_hi = route.slip_range_m(t, slip)
+    rt, rd = route.time_unix_s, route.distance_m
+    n = rt.size
+    centre = path.ecef_m.T                                                   # (T, 3)
+    # The two ends of the slip range.
+    e_lat, e_lon, e_h, _ = route.positions_at_distance(np.concatenate((d_lo, d_hi)))
+    ends = geodetic_to_ecef(e_lat, e_lon, e_h).reshape(2, t.size, 3) - centre[None]
+    verts = geodetic_to_ecef(route.lat_deg, route.lon_deg, route.height_m)   # (N, 3)
+
+    # Candidate legs: every leg active at some time in [t - slip, t + slip], with the part
+    # of it inside the slip range (from its start vertex, or the slip range's start, to its
+    # end vertex, or the slip range's end).
+    if n >= 2:
+        dt = np.diff(rt)
+        seg_len = np.diff(rd)
+        speed = np.where(dt > 0, seg_len / np.where(dt > 0, dt, 1.0), 0.0)
+        climb = np.where(dt > 0, np.diff(route.height_m) / np.where(dt > 0, dt, 1.0), 0.0)
+        az0 = np.asarray(route.leg_azimuth_deg, dtype=float)
+        az1 = az0 + ((_leg_end_azimuths(route) - az0 + 180.0) % 360.0 - 180.0)
+        l_first = np.clip(np.searchsorted(rt, lo_t, side="right") - 1, 0, n - 2)
+        l_last = np.clip(np.searchsorted(rt, hi_t, side="left") - 1, 0, n - 2)
+        l_last = np.maximum(l_last, l_first)
+        lidx, lok = _pad_ranges(l_first, l_last)
+        lidx = np.clip(lidx, 0, n - 2)
+        moving = seg_len[lidx] > 0
+        s = speed[lidx]
+        s_lo = np.where(moving, np.maximum(s - unc.speed_m_s, 0.0), 0.0)
+        s_hi = np.where(moving, s + unc.speed_m_s, 0.0)
+        h_lo = np.minimum(az0[lidx], az1[lidx]) - unc.heading_deg
+        h_hi = np.maximum(az0[lidx], az1[lidx]) + unc.heading_deg
+        c = climb[lidx]
+        start_in = rt[lidx] >= lo_t[:, None]
+        end_in = rt[lidx + 1] <= hi_t[:, None]
+        leg_a = np.where(start_in[..., None], verts[lidx] - centre[:, None], ends[0][:, None])
+        leg_b = np.where(end_in[..., None], verts[lidx + 1] - centre[:, None], ends[1][:, None])
+        max_leg = np.max(np.where(lok, seg_len[lidx], 0.0), axis=1)
+        lok = lok & True
+    else:
+        lok = np.zeros((t.size, 1), bool)
+        s_lo = s_hi = h_lo = h_hi = c = np.zeros((t.size, 1))
+        leg_a = leg_b = np.zeros((t.size, 1, 3))
+        max_leg = np.zeros(t.size)
+    # Waiting before the start or after the end of the route: stopped candidates there.
+    zero = np.zeros((t.size, 2))
+    waits = np.stack(((lo_t < rt[0]) | (n < 2), (hi_t > rt[-1]) | (n < 2)), axis=1)
+    w_pos = np.stack((ends[0], ends[1]), axis=1)                              # (T, 2, 3)
+    s_lo, s_hi, h_lo, h_hi, c = (np.concatenate((x, zero), axis=1) for x in (s_lo, s_hi, h_lo, h_hi, c))
+    leg_a = np.concatenate((leg_a, w_pos), axis=1)
+    leg_b = np.concatenate((leg_b, w_pos), axis=1)
+    lok = np.concatenate((lok, waits), axis=1)
+    leg_a = np.where(lok[..., None], leg_a, 0.0)
+    leg_b = np.where(lok[..., None], leg_b, 0.0)
+    max_disp = np.maximum(np.max(np.linalg.norm(leg_a, axis=-1), axis=1),
+                          np.max(np.linalg.norm(leg_b, axis=-1), axis=1))
+    return RouteMotion(unc, nominal, path, d_lo, d_hi, leg_a, leg_b, max_disp, max_leg,
+                       s_lo, s_hi, h_lo, h_hi, c - unc.vertical_m_s, c + unc.vertical_m_s, lok)
+
+
+def _cos_range(x_lo_deg: np.ndarray, x_hi_deg: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Least and greatest cos(x) over [x_lo, x_hi] (deg)."""
+    c1, c2 = np.cos(np.radians(x_lo_deg)), np.cos(np.radians(x_hi_deg))
+    cmax = np.where(np.ceil(x_lo_deg / 360.0) <= np.floor(x_hi_deg / 360.0), 1.0, np.maximum(c1, c2))
+    cmin = np.where(np.ceil((x_lo_deg - 180.0) / 360.0) <= np.floor((x_hi_deg - 180.0) / 360.0),
+                    -1.0, np.minimum(c1, c2))
+    return cmin, cmax
+
+
+def motion_terms_hz(motion: RouteMotion, azimuth_deg: np.ndarray, elevation_deg: np.ndarray,
+                    gradient_ecef_hz_m: np.ndarray, wavelength_m: np.ndarray,
+                    elevation_spread_rad: np.ndarray | float = 0.0, block_elements: int = 2_000_000):
+    """Per (S, T), over the candidate legs:
+
+    * ``slip``: least and greatest g . (p - p_nominal) (Hz) over the positions on the legs
+      (a linear function along a leg has its extremes at the leg part's ends);
+    * ``velocity``: least and greatest (v . line of sight) / lambda (Hz), where v . los =
+      s cos(el) cos(az - heading) + climb sin(el), exact over each leg's speed, heading and
+      climb ranges (linear in speed and climb; cos over an interval has its extremes at
+      the ends or at 0/180 deg); the climb's share is taken over elevations within
+      ``elevation_spread_rad`` of the nominal (sin is monotonic there), the horizontal
+      share at the nominal line of sight (the caller bounds its turn);
+    * ``joint``: least and greatest of their sum on the same leg (position and motion on
+      one leg go together), never wider than the two separate ranges added.
+
+    Returns (slip_lo, slip_hi, vel_lo, vel_hi, joint_lo, joint_hi)."""
+    n_s, n_t = azimuth_deg.shape
+    out = [np.empty((n_s, n_t)) for _ in range(6)]
+    n_l = motion.leg_ok.shape[1]
+    step = max(1, block_elements // max(n_s * n_l, 1))
+    lam = np.asarray(wavelength_m, dtype=float).reshape(-1, 1, 1)
+    for a in range(0, n_t, step):
+        b = min(a + step, n_t)
+        az = azimuth_deg[:, a:b, None]
+        el = np.radians(elevation_deg[:, a:b, None])
+        ce = np.cos(el)
+        cmin, cmax = _cos_range(az - motion.leg_heading_hi_deg[None, a:b], az - motion.leg_heading_lo_deg[None, a:b])
+        s_lo, s_hi = motion.leg_speed_lo_m_s[None, a:b], motion.leg_speed_hi_m_s[None, a:b]
+        c_lo, c_hi = motion.leg_climb_lo_m_s[None, a:b], motion.leg_climb_hi_m_s[None, a:b]
+        spread = np.broadcast_to(np.asarray(elevation_spread_rad, dtype=float), azimuth_deg.shape)[:, a:b, None]
+        se1 = np.sin(np.clip(el - spread, -np.pi / 2, np.pi / 2))
+        se2 = np.sin(np.clip(el + spread, -np.pi / 2, np.pi / 2))
+        ups = (se1 * c_lo, se1 * c_hi, se2 * c_lo, se2 * c_hi)
+        up_lo = np.minimum(np.minimum(ups[0], ups[1]), np.minimum(ups[2], ups[3]))
+        up_hi = np.maximum(np.maximum(ups[0], ups[1]), np.maximum(ups[2], ups[3]))
+        v_hi = (ce * np.maximum(s_lo * cmax, s_hi * cmax) + up_hi) / lam
+        v_lo = (ce * np.minimum(s_lo * cmin, s_hi * cmin) + up_lo) / lam
+        g = gradient_ecef_hz_m[:, a:b]
+        pa = np.einsum("stj,tlj->stl", g, motion.leg_start_disp_ecef_m[a:b])
+        pb = np.einsum("stj,tlj->stl", g, motion.leg_end_disp_ecef_m[a:b])
+        p_lo, p_hi = np.minimum(pa, pb), np.maximum(pa, pb)
+        okb = motion.leg_ok[None, a:b]
+        for i, (vals, hi_side) in enumerate(((p_lo, False), (p_hi, True), (v_lo, False), (v_hi, True),
+                                             (p_lo + v_lo, False), (p_hi + v_hi, True))):
+            if hi_side:
+                out[i][:, a:b] = np.max(np.where(okb, vals, -np.inf), axis=2)
+            else:
+                out[i][:, a:b] = np.min(np.where(okb, vals, np.inf), axis=2)
+    return tuple(out)
