@@ -40,7 +40,7 @@ def _route(lat0, lon0, t_start, speed_m_s, legs, dwell_after_first=0.0):
     lat, lon = [lat0], [lon0]
     corner = None
     for j, (az, length) in enumerate(legs):
-        for s in np.arange(200.0, length + 1e-6, 200.0):
+        for _s in np.arange(200.0, length + 1e-6, 200.0):
             p = g.Direct(lat[-1], lon[-1], az, 200.0)
             lat.append(p["lat2"])
             lon.append(p["lon2"])
