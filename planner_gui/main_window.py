@@ -365,6 +365,8 @@ class PlannerWindow(QMainWindow):
         self.act_cancel = self._action("&Cancel computation", self.cancel_compute, "Esc",
                                        "Stop the running computation; the plan on screen stays")
         self.act_cancel.setEnabled(False)
+        self.act_sweep = self._action("S&weep departures and settings…", self.open_sweep, None,
+                                      "Plan many departure times and search settings; pick one from a heat map")
         self.act_start = self._action("Zoom timeline to the &start", self._zoom_start, "Ctrl+1")
         self.act_about = self._action("&About acqplan", self.show_about)
 
@@ -388,6 +390,7 @@ class PlannerWindow(QMainWindow):
         m = bar.addMenu("&Plan")
         m.addAction(self.act_replan)
         m.addAction(self.act_cancel)
+        m.addAction(self.act_sweep)
         m = bar.addMenu("&View")
         m.addAction(self.setup_dock.toggleViewAction())
         m.addAction(self._action("Show &messages", self.show_messages, "Ctrl+M"))
@@ -722,6 +725,11 @@ class PlannerWindow(QMainWindow):
         sc = self._validated_form()
         if sc is not None:
             self.request_plan(sc)
+
+    def open_sweep(self):
+        from .sweep_dialog import open_sweep_dialog
+
+        return open_sweep_dialog(self)
 
     def cancel_compute(self) -> None:
         if self._computing:
