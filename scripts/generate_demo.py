@@ -42,7 +42,7 @@ def main(argv: list[str] | None = None) -> int:
             print(f"all demo files in {args.out_dir} are up to date")
         return 1 if differ else 0
 
-    scenario = write_demo(args.out_dir)
+    scenario = write_demo(args.out_dir, force=True)   # regenerating replaces on purpose
     for name in demo_files():
         print(f"wrote {args.out_dir / name}")
     print(f"scenario: {scenario}")

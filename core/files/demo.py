@@ -48,7 +48,9 @@ from ..ground.constants import (
     WEEKS_PER_ROLLOVER,
     WGS72_MU_M3_S2,
 )
+from ..ground.errors import InputError
 from ..ground.timeutil import from_unix_s, gps_week_tow_to_unix_s, parse_iso_utc, unix_to_gps_s
+from .atomic import write_set_atomic
 
 # ---------------------------------------------------------------------------------------
 # The fictional campaign
@@ -648,17 +650,41 @@ def demo_files() -> dict[str, str]:
     }
 
 
-def write_demo(directory: str | Path) -> Path:
+def write_demo(directory: str | Path, *, force: bool = False) -> Path:
     """Write the demo scenario and its orbit files into ``directory``; return the scenario path.
 
-    Files are written as UTF-8 with LF line ends (byte-identical on every platform);
-    existing demo files in the folder are replaced.
+    Files are written as UTF-8 with LF line ends (byte-identical on every platform), all
+    or nothing (:func:`core.files.atomic.write_set_atomic`). A file already there with the
+    same bytes is left alone; one that differs (the user edited the demo) is overwritten
+    only with ``force``: otherwise an :class:`InputError` names the files and nothing is
+    written.
     """
     out = Path(directory)
-    out.mkdir(parents=True, exist_ok=True)
-    for name, text in demo_files().items():
-        (out / name).write_bytes(text.encode("utf-8"))
+    if out.exists() and not out.is_dir():
+        raise InputError("not a folder", file=str(out))
+    wanted = {out / name: text.encode("utf-8") for name, text in demo_files().items()}
+    changed = [p for p, data in wanted.items() if _differs(p, data)]
+    if not force:
+        edited = [p for p in changed if p.exists() or p.is_symlink()]
+        if edited:
+            names = ", ".join(p.name for p in edited)
+            raise InputError(f"{names} differ from the demo (edited?); nothing was written. "
+                             "Use --force to overwrite them, or choose another folder",
+                             file=str(out))
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as err:
+        raise InputError(f"cannot create the folder: {err.strerror or err}", file=str(out)) from None
+    if changed:
+        write_set_atomic([(p, wanted[p]) for p in changed], what="write the demo")
     return out / FILE_NAMES["scenario"]
+
+
+def _differs(path: Path, data: bytes) -> bool:
+    try:
+        return path.read_bytes() != data
+    except OSError:
+        return True
 
 
 __all__ = [

@@ -49,7 +49,7 @@ from ..ground.errors import InputError
 from ..plan.pipeline import Plan, plan_to_json
 from ..plan.spec import Scenario
 from ..search import bins as binlib
-from .atomic import write_text_atomic
+from .atomic import write_text_atomic, write_texts_atomic
 from .scenario import load_scenario, scenario_to_toml
 
 HASH_DIGITS = 10
@@ -325,13 +325,17 @@ def _cell(v) -> str:
     return str(v)
 
 
-def export_plan_json(plan: Plan, path: str | Path) -> Path:
-    """The plan as the ``acqplan plan`` JSON (indent 1), written atomically."""
+def _plan_json_text(plan: Plan, path: str | Path) -> str:
     try:
         text = json.dumps(plan_to_json(plan), indent=1, allow_nan=False)
     except ValueError as err:       # a NaN or infinity slipped into the schema
         raise InputError(f"the plan holds a value JSON cannot store ({err})", file=str(path)) from None
-    return write_text_atomic(path, text + "\n")
+    return text + "\n"
+
+
+def export_plan_json(plan: Plan, path: str | Path) -> Path:
+    """The plan as the ``acqplan plan`` JSON (indent 1), written atomically."""
+    return write_text_atomic(path, _plan_json_text(plan, path))
 
 
 def export_windows_csv(plan: Plan, path: str | Path) -> Path:
@@ -347,17 +351,20 @@ def export_search_csv(plan: Plan, path: str | Path) -> Path:
 def export_all(plan: Plan, folder: str | Path, stem: str) -> list[Path]:
     """Write ``STEM.json``, ``STEM_windows.csv`` and ``STEM_search.csv`` into ``folder``.
 
-    Each file is atomic on its own; the folder is checked first so that a wrong folder
-    writes nothing.
+    All or nothing (:func:`core.files.atomic.write_texts_atomic`): the three texts are made
+    and staged beside their targets first, and renamed into place only when all three are
+    complete, so a full disk leaves the folder as it was. The folder is checked first.
     """
     out = Path(folder)
     if not out.is_dir():
         raise InputError("not an existing folder", file=str(out))
     if not stem or any(c in stem for c in "/\\") or stem in (".", ".."):
-        raise InputError(f"'{stem}' is not a usable file name stem", field="stem")
-    return [export_plan_json(plan, out / f"{stem}.json"),
-            export_windows_csv(plan, out / f"{stem}_windows.csv"),
-            export_search_csv(plan, out / f"{stem}_search.csv")]
+        raise InputError(f"'{stem}' is not a usable file name stem", field="--stem")
+    json_path = out / f"{stem}.json"
+    return write_texts_atomic([
+        (json_path, _plan_json_text(plan, json_path)),
+        (out / f"{stem}_windows.csv", _csv_text(windows_rows(plan), WINDOWS_COLUMNS)),
+        (out / f"{stem}_search.csv", _csv_text(search_rows(plan), SEARCH_COLUMNS))])
 
 
 # --------------------------------------------------------------------------- readers

@@ -10,7 +10,7 @@ from ._common import EXIT_OK
 def cmd_demo(args) -> int:
     from core.api import write_demo
 
-    path = write_demo(Path(args.directory))
+    path = write_demo(Path(args.directory), force=args.force)
     print(f"demo scenario written to {path}")
     return EXIT_OK
 
@@ -18,4 +18,6 @@ def cmd_demo(args) -> int:
 def register(sub) -> None:
     sp = sub.add_parser("demo", help="write the invented demo scenario and its orbit files into DIR")
     sp.add_argument("directory", metavar="DIR")
+    sp.add_argument("--force", action="store_true",
+                    help="overwrite demo files in DIR that were edited (default: refuse, write nothing)")
     sp.set_defaults(func=cmd_demo)
