@@ -58,7 +58,7 @@ def test_doppler_and_passes_on_every_real_file(capsys, rel):
     extra = ["--skip-bad-records"] if rel.endswith("SGP4-VER.TLE") else []
     code, out, err = run_cli(capsys, "doppler", "--orbits", str(ORBIT_DATA / rel), "--site",
                              "-33.92,-70.65,520", "--start", start, "--end", _end(start),
-                             "--step", "600", "--mask", "-90", "--format", "json", *extra)
+                             "--step", "600", "--all-elevations", "--format", "json", *extra)
     assert code == 0, err
     doc = json.loads(out)
     assert doc["satellites"], rel
@@ -68,7 +68,7 @@ def test_doppler_and_passes_on_every_real_file(capsys, rel):
         assert set(smp) >= {"time", "azimuth_deg", "elevation_deg", "range_m", "range_rate_m_s",
                             "doppler_hz"}
         assert smp["time"].endswith("Z")
-    # --mask -90 keeps every sample of every propagated satellite: 13 steps in 2 h at 600 s.
+    # --all-elevations keeps every sample of every propagated satellite: 13 steps in 2 h at 600 s.
     assert max(len(s["samples"]) for s in doc["satellites"]) == 13
     # QZSS serves East Asia and Oceania: look from Tokyo for that file.
     site = "35.7,139.7,40" if "qzss" in rel else "47.4,8.5,420"
@@ -100,7 +100,7 @@ def test_mask_leaves_out_samples_below_it(capsys):
     doc = json.loads(out)
     els = [s["elevation_deg"] for sat in doc["satellites"] for s in sat["samples"]]
     assert els and min(els) >= 20.0
-    code, out_all, _ = run_cli(capsys, *args, "--mask", "-90")
+    code, out_all, _ = run_cli(capsys, *args, "--all-elevations")
     assert len(json.loads(out_all)["satellites"]) == 31
 
 
@@ -109,7 +109,7 @@ def test_orbits_repeat_to_mix_constellations_and_signal_choice(capsys):
     gps = str(ORBIT_DATA / "tle" / "perylune_gps-ops_2020-04-01.txt")
     gal = str(ORBIT_DATA / "tle" / "perylune_galileo_2020-04-01.txt")
     base = ["doppler", "--site", "-33.92,-70.65,520", "--start", "2020-04-01T06:00:00Z",
-            "--end", "2020-04-01T06:10:00Z", "--step", "300", "--format", "json", "--mask", "-90"]
+            "--end", "2020-04-01T06:10:00Z", "--step", "300", "--format", "json", "--all-elevations"]
     code, out, _ = run_cli(capsys, *base, "--orbits", gps, "--orbits", gal)
     ids = {s["id"][0] for s in json.loads(out)["satellites"]}
     assert code == 0 and ids == {"G", "E"}
@@ -147,7 +147,7 @@ def test_bad_input_one_line_exit_2(capsys, tmp_path, case):
         expect = "nowhere.tle"
     elif case == "bad_site":
         args["site"] = "95,8,0"
-        expect = "lat_deg"
+        expect = "'--site': latitude 95.0 deg is outside -90..90 deg"   # the option typed
     elif case == "end_before_start":
         args["end"] = "2020-04-01T05:00:00Z"
         expect = "--end"
@@ -208,7 +208,7 @@ def test_several_scenario_problems_on_one_line(tmp_path, capsys):
 
 
 @pytest.mark.parametrize("argv, field", [
-    (["bins", "--coherent-ms", "1", "--max-loss-db", "1", "--span-hz", "-1e12,1e12"], "span_hz"),
+    (["bins", "--coherent-ms", "1", "--max-loss-db", "1", "--span-hz", "-1e12,1e12"], "--span-hz"),
     (["bins", "--coherent-ms", "nan", "--max-loss-db", "1"], "coherent"),
 ])
 def test_extreme_numbers_give_one_line(capsys, argv, field):

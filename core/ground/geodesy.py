@@ -14,21 +14,40 @@ import numpy as np
 from .constants import WGS84_A_M, WGS84_B_M, WGS84_E2
 from .errors import InputError
 
+# The ranges a receiver site may take: ONE set, used by the scenario keys site.lat_deg,
+# site.lon_deg, site.height_m (core.plan.spec.KEY_RULES) and by the command line's --site.
+# Height -500..20000 m above the ellipsoid covers the lowest land (Dead Sea shore, about
+# -410 m ellipsoidal [calc: -430 m orthometric + geoid about +20 m, EGM96]) up to balloons
+# and high aircraft; longitude is east positive in -180..180.
+SITE_LAT_RANGE_DEG = (-90.0, 90.0)
+SITE_LON_RANGE_DEG = (-180.0, 180.0)
+SITE_HEIGHT_RANGE_M = (-500.0, 20_000.0)
+
 
 @dataclass(frozen=True)
 class Site:
-    """A receiver site on the WGS-84 ellipsoid (height above the ellipsoid)."""
+    """A receiver site on the WGS-84 ellipsoid (height above the ellipsoid).
+
+    A value outside the site ranges above raises :class:`InputError` naming the scenario
+    key (``site.lat_deg``...), with its unit and range.
+    """
 
     lat_deg: float
     lon_deg: float
     height_m: float = 0.0
 
     def __post_init__(self) -> None:
-        for name, value, lo, hi in (("lat_deg", self.lat_deg, -90.0, 90.0),
-                                    ("lon_deg", self.lon_deg, -180.0, 360.0),
-                                    ("height_m", self.height_m, -11_000.0, 100_000.0)):
-            if not np.isfinite(value) or not lo <= value <= hi:
-                raise InputError(f"{value} is outside {lo}..{hi}", field=name)
+        for key, what, value, (lo, hi), unit in (
+                ("lat_deg", "latitude", self.lat_deg, SITE_LAT_RANGE_DEG, "deg"),
+                ("lon_deg", "longitude", self.lon_deg, SITE_LON_RANGE_DEG, "deg"),
+                ("height_m", "height", self.height_m, SITE_HEIGHT_RANGE_M, "m")):
+            try:
+                ok = bool(np.isfinite(value)) and lo <= value <= hi
+            except TypeError:
+                ok = False
+            if not ok:
+                raise InputError(f"{what} {value} {unit} is outside {lo:g}..{hi:g} {unit}",
+                                 field=f"site.{key}")
 
     @property
     def ecef_m(self) -> np.ndarray:

@@ -29,6 +29,7 @@ from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError, available_timezones
 
 from ..ground.errors import InputError, ScenarioError
+from ..ground.geodesy import SITE_HEIGHT_RANGE_M, SITE_LAT_RANGE_DEG, SITE_LON_RANGE_DEG
 from ..ground.signals import SIGNALS, Signal
 from ..ground.timeutil import TimeGrid, iso_z, parse_iso_utc, time_grid
 
@@ -69,6 +70,11 @@ class KeyRule:
     def required(self) -> bool:
         return self.default is REQUIRED
 
+    @property
+    def range_text(self) -> str:
+        """The allowed range as messages show it, e.g. '-5 to 60 deg'."""
+        return _range_text(self)
+
 
 def _r(section: str, key: str, kind: str, default: Any = REQUIRED, lo: float | None = None,
        hi: float | None = None, unit: str = "", choices: tuple[str, ...] = (), doc: str = "") -> KeyRule:
@@ -81,9 +87,9 @@ KEY_RULES: tuple[KeyRule, ...] = (
        doc="version of this file layout; written by acqplan"),
     _r("orbits", "files", "paths", (), doc="almanac/TLE files, relative to the scenario file"),
     _r("orbits", "mapping", "path", None, doc="GLONASS mapping file (catalogue number, ID, channel k)"),
-    _r("site", "lat_deg", "number", REQUIRED, -90.0, 90.0, "deg", doc="geodetic latitude, WGS-84"),
-    _r("site", "lon_deg", "number", REQUIRED, -180.0, 180.0, "deg", doc="longitude, east positive"),
-    _r("site", "height_m", "number", 0.0, -500.0, 20_000.0, "m", doc="height above the WGS-84 ellipsoid"),
+    _r("site", "lat_deg", "number", REQUIRED, *SITE_LAT_RANGE_DEG, "deg", doc="geodetic latitude, WGS-84"),
+    _r("site", "lon_deg", "number", REQUIRED, *SITE_LON_RANGE_DEG, "deg", doc="longitude, east positive"),
+    _r("site", "height_m", "number", 0.0, *SITE_HEIGHT_RANGE_M, "m", doc="height above the WGS-84 ellipsoid"),
     _r("site", "horizontal_uncertainty_km", "number", 30.0, 0.0, 20_000.0, "km",
        doc="how far the true position may be from lat/lon"),
     _r("site", "vertical_uncertainty_m", "number", 500.0, 0.0, 20_000.0, "m",

@@ -47,7 +47,10 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: Sequence[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     parser = build_parser()
-    args = parser.parse_args(join_signed_values(argv))
+    try:
+        args = parser.parse_args(join_signed_values(argv))
+    except SystemExit as stop:      # usage error (one line already printed) or --help
+        return stop.code if isinstance(stop.code, int) else EXIT_BAD_INPUT
     if not getattr(args, "func", None):
         parser.print_help()
         return EXIT_BAD_INPUT

@@ -4,19 +4,22 @@ sites and pairs, table/CSV formatting and atomic output."""
 from __future__ import annotations
 
 import argparse
+import contextlib
 import csv
 import io
+import math
 import sys
-from collections.abc import Sequence
+from collections.abc import Iterator, Mapping, Sequence
 
 from core.api import InputError
 
 EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT = 0, 1, 2
 
 # Options whose values may start with a minus sign (southern/western coordinates,
-# negative frequencies): "--site -33.9,-70.6,520" is rewritten to "--site=-33.9,..."
-# before argparse sees it, since argparse would take the value for an option.
-SIGNED_VALUE_OPTIONS = ("--site", "--span-hz")
+# negative frequencies, masks below the horizon): "--site -33.9,-70.6,520" is rewritten to
+# "--site=-33.9,..." before argparse sees it, since argparse would take a value such as
+# "-1e3" for an option. Every option made by :func:`rule_option` joins the list.
+SIGNED_VALUE_OPTIONS = {"--site", "--span-hz"}
 
 
 def join_signed_values(argv: Sequence[str]) -> list[str]:
@@ -31,6 +34,70 @@ def join_signed_values(argv: Sequence[str]) -> list[str]:
         out.append(arg)
         i += 1
     return out
+
+
+# --- options that set the same value as a scenario key -----------------------------------
+# The command line and the scenario share ONE set of ranges and defaults: an option that
+# means what a scenario key means takes its range, unit and default from that key's rule in
+# core.plan.spec.KEY_RULES (and --site from core.ground.geodesy's site ranges).
+
+def key_rule(dotted: str):
+    from core.api import KEY_RULES
+
+    for rule in KEY_RULES:
+        if rule.dotted == dotted:
+            return rule
+    raise KeyError(dotted)
+
+
+def rule_type(dotted: str):
+    """An argparse ``type`` reading a number inside the range of scenario key ``dotted``."""
+    rule = key_rule(dotted)
+
+    def parse(text: str) -> float:
+        try:
+            value = float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"'{text}' is not a number") from None
+        if not math.isfinite(value) or not rule.lo <= value <= rule.hi:
+            raise argparse.ArgumentTypeError(
+                f"{text} is outside {rule.range_text} (the range of scenario key {dotted})")
+        if rule.kind == "integer":
+            if not value.is_integer():
+                raise argparse.ArgumentTypeError(f"{text} is not a whole number")
+            return int(value)
+        return value
+
+    parse.__name__ = dotted
+    return parse
+
+
+def rule_option(sp, flag: str, dotted: str, *, required: bool = False, help: str = "") -> None:
+    """Add option ``flag`` with the range, unit and default of scenario key ``dotted``."""
+    rule = key_rule(dotted)
+    unit = f" {rule.unit}" if rule.unit else ""
+    default = "" if required else f"; default {rule.default:g}{unit}"
+    sp.add_argument(flag, type=rule_type(dotted), required=required,
+                    default=None if required else rule.default,
+                    metavar=(rule.unit or "N").upper(),
+                    help=f"{help} ({rule.range_text}{default}; as scenario key {dotted})".strip())
+    SIGNED_VALUE_OPTIONS.add(flag)
+
+
+@contextlib.contextmanager
+def user_names(names: Mapping[str, str]) -> Iterator[None]:
+    """Translate a core error's internal parameter names (``coherent_s``, ``low_hz``) into
+    the options the user typed, in its field and its message."""
+    try:
+        yield
+    except InputError as err:
+        if err.field not in names and not any(k in err.message for k in names):
+            raise
+        message = err.message
+        for internal, option in names.items():
+            message = message.replace(internal, option)
+        raise type(err)(message, file=err.file, line=err.line,
+                        field=names.get(err.field, err.field)) from None
 
 
 class Parser(argparse.ArgumentParser):
@@ -66,8 +133,8 @@ def parse_site(text: str):
         raise InputError(f"'{text}' must be three numbers LAT_DEG,LON_DEG,HEIGHT_M", field="--site") from None
     try:
         return Site(lat, lon, h)
-    except InputError as err:
-        raise InputError(err.message, field=f"--site {err.field}") from None
+    except InputError as err:      # Site names the scenario key; here the option was typed
+        raise InputError(err.message, field="--site") from None
 
 
 def parse_pair(text: str, field: str) -> tuple[float, float]:
@@ -76,6 +143,8 @@ def parse_pair(text: str, field: str) -> tuple[float, float]:
         a, b = (float(p) for p in parts)
     except ValueError:
         raise InputError(f"'{text}' must be two numbers LOW,HIGH", field=field) from None
+    if not (math.isfinite(a) and math.isfinite(b)):
+        raise InputError(f"'{text}': LOW and HIGH must be finite numbers", field=field)
     if not b > a:
         raise InputError(f"'{text}': HIGH must be above LOW", field=field)
     return a, b

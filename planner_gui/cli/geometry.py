@@ -6,7 +6,15 @@ import json
 
 from core.api import InputError
 
-from ._common import EXIT_OK, emit, format_rows, output_options, parse_site, print_warnings
+from ._common import (
+    EXIT_OK,
+    emit,
+    format_rows,
+    output_options,
+    parse_site,
+    print_warnings,
+    rule_option,
+)
 
 
 def _load(args):
@@ -59,7 +67,8 @@ def cmd_doppler(args) -> int:
     iso = grid.iso()
     sats = []
     for k, sid in enumerate(pred.ids):
-        show = np.nonzero(pred.valid[k] & (pred.elevation_deg[k] >= args.mask))[0]
+        above = True if args.all_elevations else pred.elevation_deg[k] >= args.mask
+        show = np.nonzero(pred.valid[k] & above)[0]
         if not show.size:
             continue
         samples = [{"time": iso[j],
@@ -78,7 +87,8 @@ def cmd_doppler(args) -> int:
     if args.format == "json":
         emit(json.dumps({"site": [site.lat_deg, site.lon_deg, site.height_m],
                           "start": iso_z(grid.start_unix_s), "end": iso_z(grid.end_unix_s),
-                          "step_s": args.step, "mask_deg": args.mask,
+                          "step_s": args.step,
+                          "mask_deg": None if args.all_elevations else args.mask,
                           "satellites": sats, "warnings": warnings}, indent=1), args.output)
     else:
         print_warnings(warnings)
@@ -90,7 +100,7 @@ def cmd_doppler(args) -> int:
     return EXIT_OK
 
 
-def _geometry_options(sp, step_default: float | None) -> None:
+def _geometry_options(sp, step_required: bool) -> None:
     sp.add_argument("--orbits", action="append", required=True, metavar="FILE",
                     help="YUMA, SEM or TLE file (repeat to mix constellations)")
     sp.add_argument("--mapping", metavar="FILE",
@@ -103,20 +113,20 @@ def _geometry_options(sp, step_default: float | None) -> None:
                          "(negative values work as typed: --site -33.92,-70.65,520)")
     sp.add_argument("--start", required=True, metavar="ISO", help="start, ISO 8601 UTC")
     sp.add_argument("--end", required=True, metavar="ISO", help="end, ISO 8601 UTC")
-    sp.add_argument("--mask", type=float, default=10.0, metavar="DEG",
-                    help="elevation mask in degrees (default 10; -90 keeps all)")
-    sp.add_argument("--step", type=float, default=step_default, required=step_default is None,
-                    metavar="S", help="time step in seconds")
+    rule_option(sp, "--mask", "mask.elevation_deg", help="elevation mask")
+    rule_option(sp, "--step", "time.step_s", required=step_required, help="time step")
 
 
 def register(sub) -> None:
     sp = sub.add_parser("passes", help="rise, culmination and set of each satellite above the mask")
-    _geometry_options(sp, step_default=60.0)
+    _geometry_options(sp, step_required=False)
     output_options(sp)
     sp.set_defaults(func=cmd_passes)
 
     sp = sub.add_parser("doppler", help="azimuth, elevation, range, range rate and Doppler over time")
-    _geometry_options(sp, step_default=None)
+    _geometry_options(sp, step_required=True)
+    sp.add_argument("--all-elevations", action="store_true",
+                    help="list every sample, below the horizon too (no elevation mask)")
     sp.add_argument("--signal", metavar="ID", help="signal ID (GPS-L1CA, GPS-L5, GAL-E1, GAL-E5A, "
                     "BDS-B1I, BDS-B1C, GLO-L1OF, QZS-L1CA); default: each system's first")
     output_options(sp)
