@@ -262,3 +262,81 @@ def test_search_cost_combines_positions_and_time():
     c = det.search_cost(20, 2046, 4, False, 1e-3, 1, 1e-4, pd, 0.1)
     assert c.expected_search_s.shape == (2, 2)
     assert c.to_dict()["positions"] == 512 * 20
+
+
+# --------------------------------------------------------------------------- offsets in a cell
+
+def _offset_mc(snr0: float, n_nc: int, tc: float, bin_width_hz: float, step_chips: float,
+               boc: bool, trials: int, rng) -> np.ndarray:
+    """Numpy-only square-law detector with the signal at a uniform offset in its cell:
+    carrier offset uniform in +-bin/2 (amplitude sinc(f Tc)), code offset uniform in
+    +-step/2 (amplitude R(x), triangle 1 - |x| or BOC(1,1) 1 - 3|x| on the main peak)."""
+    f = rng.uniform(-0.5, 0.5, (trials, 1)) * bin_width_hz
+    x = np.abs(rng.uniform(-0.5, 0.5, (trials, 1)) * step_chips)
+    amp = np.sqrt(snr0) * np.abs(np.sinc(f * tc)) * ((1 - 3 * x) if boc else (1 - x))
+    noise = (rng.standard_normal((trials, n_nc)) + 1j * rng.standard_normal((trials, n_nc)))
+    noise *= math.sqrt(0.5)
+    z = amp * np.exp(1j * rng.uniform(0, 2 * np.pi, (trials, 1))) + noise
+    return np.sum(np.abs(z) ** 2, axis=1)
+
+
+@pytest.mark.parametrize("tc, n_nc, cn0, bin_loss_db, step, boc", [
+    (0.004, 5, 31.5, 1.0, 0.5, False),     # the case of the issue: 0.835, not 0.871
+    (0.001, 10, 36.0, 2.0, 0.5, False),
+    (0.004, 3, 35.0, 1.0, 0.25, True),
+])
+def test_expected_pd_matches_a_monte_carlo_of_offsets_in_the_cell(tc, n_nc, cn0, bin_loss_db,
+                                                                  step, boc):
+    from core.search.bins import design_bins
+
+    rng = np.random.default_rng(2027)
+    pfa = 1e-4
+    bw = design_bins(tc, bin_loss_db).bin_width_hz
+    off = det.cell_offsets(tc, bw, step, "BOC11" if boc else "BPSK")
+    expected = det.expected_detection_probability_at_cn0(cn0, tc, n_nc, pfa, off)
+    trials = 400_000
+    s = _offset_mc(10 ** (cn0 / 10) * tc, n_nc, tc, bw, step, boc, trials, rng)
+    hits = int(np.sum(s > det.threshold_for_pfa(pfa, n_nc)))
+    assert _binomial_ok(hits, trials, expected), (hits / trials, expected)
+    # Pd at the mean loss (the old model) is outside the Monte Carlo interval.
+    at_mean = det.detection_probability_at_cn0(cn0, tc, n_nc, pfa, off.mean_power_loss_db)
+    assert not _binomial_ok(hits, trials, at_mean)
+    assert at_mean > expected
+
+
+def test_expected_pd_of_the_issue_case():
+    # [calc: Monte Carlo above and the 100 x 100 midpoint mean in test_plan] 4 ms, N = 5,
+    # Pfa 1e-4, 1 dB bins (130.75 Hz), 1/2-chip BPSK steps, 31.5 dB-Hz.
+    from core.search.bins import design_bins
+
+    off = det.cell_offsets(0.004, design_bins(0.004, 1.0).bin_width_hz, 0.5)
+    assert det.expected_detection_probability_at_cn0(31.5, 0.004, 5, 1e-4, off) == pytest.approx(0.8352, abs=5e-4)
+    assert det.detection_probability_at_cn0(31.5, 0.004, 5, 1e-4, off.mean_power_loss_db) == pytest.approx(0.8709, abs=5e-4)
+
+
+def test_offset_quadrature_converges_and_keeps_the_mean_power():
+    from core.search.bins import design_bins
+    from core.search.codephase import code_step_loss
+
+    d = design_bins(0.002, 1.5)
+    for shape, step in (("BPSK", 0.5), ("BPSK", 1.0), ("BOC11", 0.3)):
+        fine = det.cell_offsets(0.002, d.bin_width_hz, step, shape, nodes=400)
+        used = det.cell_offsets(0.002, d.bin_width_hz, step, shape)
+        for cn0 in (30.0, 34.0, 40.0):
+            a = det.expected_detection_probability_at_cn0(cn0, 0.002, 4, 1e-3, used)
+            b = det.expected_detection_probability_at_cn0(cn0, 0.002, 4, 1e-3, fine)
+            assert abs(a - b) < 1e-7
+        # the mean power over the nodes is the exact average losses of bins and codephase
+        # (the losses add in dB: the two offsets are independent) [calc]
+        exact = d.average_loss_db + code_step_loss(step, shape).average_loss_db
+        assert used.mean_power_loss_db == pytest.approx(exact, abs=1e-9)
+
+
+def test_expected_sensitivity_reaches_pd_09():
+    from core.search.bins import design_bins
+
+    off = det.cell_offsets(0.004, design_bins(0.004, 1.0).bin_width_hz, 0.5)
+    sens = det.expected_sensitivity_dbhz(1e-4, 0.9, 5, off, losses_db=0.7)
+    assert det.expected_detection_probability_at_cn0(sens, 0.004, 5, 1e-4, off, 0.7) == pytest.approx(0.9, abs=1e-9)
+    # above the sensitivity at the mean loss, by the Jensen gap
+    assert sens > det.sensitivity_dbhz(1e-4, 0.9, 5, 0.004, 0.7 + off.mean_power_loss_db)

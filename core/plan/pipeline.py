@@ -425,6 +425,9 @@ class Integration:
     bin_width_hz: np.ndarray        # (S, 1)
     average_frequency_loss_db: np.ndarray   # (S, 1)
     warnings: list[str]
+    # Per signal: the signal's offset within its cell (uniform in the bin and the code
+    # step) as quadrature nodes; Pd is the mean over them (detection_figures).
+    offsets: dict[str, detection.CellOffsets] = field(default_factory=dict)
 
     @property
     def dwell_s(self) -> np.ndarray:
@@ -466,8 +469,10 @@ def integration(sc: Scenario, signal_ids: list[str]) -> Integration:
         code_loss_db[rows] = code_loss[sid].average_loss_db
     width = np.array([design[x].bin_width_hz for x in signal_ids])[:, None]
     avg_freq_loss = np.array([design[x].average_loss_db for x in signal_ids])[:, None]
+    offsets = {sid: detection.cell_offsets(design[sid].coherent_ms / 1000.0, design[sid].bin_width_hz,
+                                           step, code_loss[sid].shape) for sid in design}
     return Integration(design, code_loss, tc_s, n_nc, transition_db, code_loss_db, width,
-                       avg_freq_loss, warnings)
+                       avg_freq_loss, warnings, offsets)
 
 
 @dataclass(frozen=True)
@@ -546,14 +551,21 @@ def detection_figures(sc: Scenario, g: PreparedGeometry, integ: Integration,
                                           sc.signal.cn0_at_mask_dbhz, sc.mask.elevation_deg)
     losses_db = (sc.signal.extra_loss_db + integ.average_frequency_loss_db
                  + (integ.code_loss_db + integ.transition_db)[:, None])
-    cn0_eff = np.asarray(cn0) - losses_db - extra_loss_db
+    # Pd is the mean over the signal's offset within its cell (frequency uniform in the
+    # bin, code uniform in the step), not Pd at the mean loss, which overstates it by up
+    # to 0.04: the offset losses enter through integ.offsets, the rest as a C/N0 shift.
+    other_db = sc.signal.extra_loss_db + integ.transition_db[:, None] + extra_loss_db
+    cn0_centre = np.asarray(cn0) - other_db
     pfa = sc.search.false_alarm_per_cell
-    pd = _pd_by_table(np.asarray(cn0_eff, dtype=float), integ.coherent_s, integ.noncoherent, pfa)
+    row_offsets = [integ.offsets[sid] for sid in g.signal_ids]
+    pd = _pd_by_table(np.asarray(cn0_centre, dtype=float), integ.coherent_s, integ.noncoherent,
+                      pfa, row_offsets)
     sens = {}
     for sid in integ.design:
         row = g.signal_ids.index(sid)
         coh_ms, nc = sc.search.integration_for(sid)
-        sens[sid] = _sensitivity_dbhz(float(pfa), int(nc), coh_ms / 1000.0, float(losses_db[row, 0]))
+        sens[sid] = _sensitivity_dbhz(float(pfa), int(nc), integ.offsets[sid],
+                                      float(sc.signal.extra_loss_db + integ.transition_db[row]))
     return DetectionFigures(np.asarray(cn0), losses_db, pd, sens)
 
 
@@ -780,36 +792,49 @@ def add_monte_carlo(plan: Plan, scenario: Scenario | None = None,
 
 
 @lru_cache(maxsize=256)
-def _required_snr_db(pfa: float, n: int) -> float:
-    """Single-interval SNR for Pd = 0.9 (cached: a root search that depends on Pfa and N only)."""
-    return float(detection.required_snr_db(pfa, 0.9, n))
+def _sensitivity_cached(pfa: float, n: int, offsets_key: tuple, losses_db: float) -> float:
+    offsets = detection.cell_offsets(*offsets_key)
+    return detection.expected_sensitivity_dbhz(pfa, 0.9, n, offsets, losses_db)
 
 
-def _sensitivity_dbhz(pfa: float, n: int, coherent_s: float, losses_db: float) -> float:
-    """C/N0 for Pd = 0.9: SNR_req + losses - 10 log10 Tc (as core.detection.sensitivity_dbhz)."""
-    return _required_snr_db(pfa, n) + losses_db - 10.0 * math.log10(coherent_s)
+def _sensitivity_dbhz(pfa: float, n: int, offsets: detection.CellOffsets, losses_db: float) -> float:
+    """C/N0 at which the expected Pd over the cell offsets is 0.9 (the same Pd as the
+    plan's, core.search.detection.expected_sensitivity_dbhz; cached per design)."""
+    return _sensitivity_cached(pfa, n, offsets.key, losses_db)
 
 
-def _pd_by_table(cn0_eff_dbhz: np.ndarray, coherent_s: np.ndarray, n_nc: np.ndarray,
-                 pfa: float) -> np.ndarray:
-    """Detection probability of the square-law detector (core.detection) per (S, T).
+def _pd_by_table(cn0_centre_dbhz: np.ndarray, coherent_s: np.ndarray, n_nc: np.ndarray,
+                 pfa: float, offsets: list[detection.CellOffsets]) -> np.ndarray:
+    """Expected detection probability over the cell offsets (core.search.detection) per (S, T).
 
-    Evaluated on a 0.002 dB grid of C/N0 per (coherent time, N) group and interpolated
-    linearly (Pd is smooth in C/N0: the interpolation error is below 1e-6 [calc: |Pd''|
-    < 0.1 per dB^2 times h^2/8]). The elevation model holds C/N0 at its mask value below
-    the mask, so every sample has a finite value. This keeps a re-plan fast on long
-    windows, where the direct non-central chi-square would dominate."""
-    pd = np.zeros_like(cn0_eff_dbhz)
-    groups = {(float(t), int(n)) for t, n in zip(coherent_s, n_nc)}
-    for tc, n in groups:
-        rows = np.nonzero((coherent_s == tc) & (n_nc == n))[0]
-        sub = cn0_eff_dbhz[rows]
+    ``cn0_centre_dbhz`` is C/N0 at the cell centre (every loss but the offsets'). Per
+    (coherent time, N, cell) group, the detector's Pd is evaluated once on a 0.01 dB grid
+    of C/N0 that reaches down by the worst offset loss; the expected Pd on the same grid is
+    the weighted sum of that table shifted by each node's loss, and the samples are
+    interpolated linearly in it (Pd is smooth in C/N0: each of the two interpolations errs
+    by less than 1.3e-6 [calc: |Pd''| < 0.1 per dB^2 times h^2/8]; test_plan checks the
+    result against a direct evaluation to 2e-5). The elevation model holds C/N0 at its
+    mask value below the mask, so every sample has a finite value. This keeps a re-plan
+    fast on long windows, where the direct non-central chi-square would dominate."""
+    pd = np.zeros_like(cn0_centre_dbhz)
+    keys = [(float(t), int(n), off.key) for t, n, off in zip(coherent_s, n_nc, offsets)]
+    for key in set(keys):
+        tc, n, _ = key
+        rows = np.array([i for i, k in enumerate(keys) if k == key])
+        off = offsets[int(rows[0])]
+        sub = cn0_centre_dbhz[rows]
         lo, hi = float(np.min(sub)), float(np.max(sub))
-        grid = np.arange(lo - 0.01, hi + 0.012, 0.002)
+        reach = float(np.max(off.loss_db))
+        h = 0.01
+        grid = np.arange(lo - 2 * h - reach, hi + 2 * h, h)
         thr = detection.threshold_for_pfa(pfa, n)
-        table = np.asarray(detection.detection_probability(
+        base = np.asarray(detection.detection_probability(
             detection.coherent_snr_linear(grid, tc), n, thr))
-        pd[rows] = np.interp(sub, grid, table)
+        top = grid[grid >= lo - h]
+        expected = np.zeros_like(top)
+        for loss, w in zip(off.loss_db, off.weight):
+            expected += w * np.interp(top - loss, grid, base)
+        pd[rows] = np.interp(sub, top, expected)
     return pd
 
 
