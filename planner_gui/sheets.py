@@ -336,6 +336,8 @@ def _settings_rows(ctx: Context) -> tuple[list[tuple[str, str]], list[tuple[str,
         ("Length and step", f"{fmt_duration(t1 - t0)}, plan step {sc.time.step_s:g} s"),
         ("Time uncertainty", f"±{sc.time.uncertainty_s:g} s (receiver clock)"),
         ("Elevation mask", f"{sc.mask.elevation_deg:g}°"),
+        *([("Defaults used", sc.defaults_note.removeprefix("defaults used for: ")
+            + " (not in the scenario file)")] if sc.defaults_used else []),
         ("Signal level", f"C/N0 {sc.signal.cn0_zenith_dbhz:g} dB-Hz at zenith, "
                          f"{sc.signal.cn0_at_mask_dbhz:g} dB-Hz at the mask, "
                          f"extra loss {sc.signal.extra_loss_db:g} dB"),

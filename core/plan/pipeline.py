@@ -924,6 +924,8 @@ def plan_to_json(plan: Plan) -> dict:
                      "search": None if sp.search is None else sp.search.to_dict()})
     return {
         "scenario": plan.scenario.name,
+        # sections the scenario file left out, so that all their values are defaults
+        "defaults_used": list(plan.scenario.defaults_used),
         "start": iso[0], "end": iso[-1], "step_s": plan.scenario.time.step_s,
         "bin_design": {k: v.to_dict() for k, v in plan.bin_design.items()},
         "sensitivity_dbhz_pd90": {k: round(v, 2) for k, v in plan.sensitivity_dbhz.items()},

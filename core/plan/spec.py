@@ -145,6 +145,9 @@ KEY_RULES: tuple[KeyRule, ...] = (
 
 RULES_BY_DOTTED: dict[str, KeyRule] = {r.dotted: r for r in KEY_RULES}
 SECTIONS: tuple[str, ...] = ("orbits", "site", "time", "receiver", "search", "signal", "mask")
+# Sections with no required key: absent, every value is a default. A saved scenario holds
+# them all, so their absence is reported (Scenario.defaults_used), never an error.
+DEFAULTABLE_SECTIONS: tuple[str, ...] = ("orbits", "receiver", "search", "signal", "mask")
 _SECTION_KEYS: dict[str, tuple[str, ...]] = {
     s: tuple(r.key for r in KEY_RULES if r.section == s) for s in ("", *SECTIONS)}
 _PER_SIGNAL_RULES = {k: RULES_BY_DOTTED[f"search.{k}"] for k in PER_SIGNAL_KEYS}
@@ -277,8 +280,19 @@ class Scenario:
     mask: MaskSpec = MaskSpec()
     path: Path | None = field(default=None, compare=False)
     base_dir: Path = field(default_factory=Path.cwd, compare=False)
+    # Sections that every saved scenario holds but this one's file left out (or left
+    # empty), so that all their values are defaults; a file cut short that is still valid
+    # TOML shows here. Kept through with_changes() for the sections not changed.
+    defaults_used: tuple[str, ...] = field(default=(), compare=False)
 
     # -- convenience
+    @property
+    def defaults_note(self) -> str:
+        """'defaults used for: [receiver], [mask]' or '' (plan header, JSON, sheet)."""
+        if not self.defaults_used:
+            return ""
+        return "defaults used for: " + ", ".join(f"[{s}]" for s in self.defaults_used)
+
     @property
     def start_unix_s(self) -> float:
         return self.time.start_unix_s
@@ -351,11 +365,14 @@ class Scenario:
                     raise TypeError(f"with_changes({key}=...) needs a dict or a {_SECTION_CLASSES[key].__name__}")
             else:
                 raise TypeError(f"with_changes: no section '{key}'")
-        return _build(d, base_dir=self.base_dir, path=self.path, text=None)
+        changed = _build(d, base_dir=self.base_dir, path=self.path, text=None)
+        return replace(changed, defaults_used=tuple(
+            s for s in self.defaults_used if s not in updates))
 
     def validated(self) -> Scenario:
         """Re-check a scenario built by hand (dataclass constructors do not validate)."""
-        return _build(self.to_dict(), base_dir=self.base_dir, path=self.path, text=None)
+        again = _build(self.to_dict(), base_dir=self.base_dir, path=self.path, text=None)
+        return replace(again, defaults_used=self.defaults_used)
 
 
 def _spec_to_table(section: str, spec: Any) -> dict[str, Any]:
@@ -759,7 +776,9 @@ def _build(d: Mapping[str, Any], *, base_dir: Any, path: Any, text: str | None) 
         path = Path(path)
     if base_dir is None:
         base_dir = path.resolve().parent if path is not None else Path.cwd()
-    return Scenario(name=values[""]["name"], path=path, base_dir=Path(base_dir), **specs)
+    defaulted = tuple(sec for sec in DEFAULTABLE_SECTIONS if not tables.get(sec))
+    return Scenario(name=values[""]["name"], path=path, base_dir=Path(base_dir),
+                    defaults_used=defaulted, **specs)
 
 
 def _check_per_signal(chk: _Checker, v: Any) -> list[tuple[str, SignalOverride]]:
@@ -800,7 +819,7 @@ def _check_per_signal(chk: _Checker, v: Any) -> list[tuple[str, SignalOverride]]
 
 
 __all__ = [
-    "FORMAT_VERSION", "KEY_RULES", "KeyRule", "MAX_WINDOW_S", "MaskSpec", "OrbitSpec",
+    "DEFAULTABLE_SECTIONS", "FORMAT_VERSION", "KEY_RULES", "KeyRule", "MAX_WINDOW_S", "MaskSpec", "OrbitSpec",
     "PER_SIGNAL_KEYS", "PRIORITIES", "REQUIRED", "ReceiverSpec", "Scenario",
     "ScenarioValidationError", "SearchSpec", "SignalOverride", "SignalSpec", "SiteSpec",
     "TimeSpec",

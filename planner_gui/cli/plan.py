@@ -20,6 +20,9 @@ def cmd_plan(args) -> int:
 
     scenario = load_scenario(args.scenario)
     plan = make_plan(scenario)
+    # A file cut short can still be valid TOML: say which sections came from defaults.
+    note = (f"{scenario.defaults_note} (the file has no such section; is it complete?)"
+            if scenario.defaults_used else "")
     if args.export_dir:
         from core.api import export_all
 
@@ -28,13 +31,14 @@ def cmd_plan(args) -> int:
     if args.format == "json":
         emit(json.dumps(plan_to_json(plan), indent=1), args.output)
     elif args.format == "csv":
-        print_warnings(plan.warnings)
+        print_warnings(([note] if note else []) + plan.warnings)
         emit(format_rows(plan_rows(plan), "csv", SUMMARY_COLUMNS), args.output)
     else:
-        parts = ["Searches (one row per satellite in view; 'after' = once the oscillator is known)",
-                 format_rows(plan_rows(plan), "table", SUMMARY_COLUMNS),
-                 "Channel timeline", format_rows(timeline_rows(plan), "table"),
-                 plan.summary_text()]
+        parts = [note[:1].upper() + note[1:]] if note else []
+        parts += ["Searches (one row per satellite in view; 'after' = once the oscillator is known)",
+                  format_rows(plan_rows(plan), "table", SUMMARY_COLUMNS),
+                  "Channel timeline", format_rows(timeline_rows(plan), "table"),
+                  plan.summary_text()]
         if plan.warnings:
             parts.append("Warnings:\n" + "\n".join(f"  - {w}" for w in plan.warnings))
         emit("\n".join(parts), args.output)
