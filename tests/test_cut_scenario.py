@@ -69,12 +69,10 @@ def test_changing_a_section_clears_it_and_keeps_the_others():
 
 
 @pytest.mark.gui
-def test_sheet_names_the_defaulted_sections(demo_dir, tmp_path):
-    os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+def test_sheet_names_the_defaulted_sections(demo_dir, tmp_path, qapp):
     from core.plan.pipeline import make_plan
     from planner_gui import sheets
 
-    sheets.ensure_gui_application()
     plan = make_plan(load_scenario(_cut_before(demo_dir, tmp_path, "[signal]")))
     seen: list = []
     sheets.write_sheet_pdf(plan, tmp_path / "cut.pdf", on_pages=seen.extend)
