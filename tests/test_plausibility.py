@@ -186,7 +186,7 @@ def test_doppler_on_an_implausible_almanac(tmp_path, capsys, label, value, field
     p.write_text(two_sats(**{label: value}))
     args = ["doppler", "--orbits", str(p), "--site", "47.0,8.0,400", "--start",
             "2022-01-01T00:00:00Z", "--end", "2022-01-01T01:00:00Z", "--step", "600",
-            "--mask", "-90"]
+            "--all-elevations"]
     code, out, err = _cli(capsys, *args)
     assert code == 2 and out == ""
     assert err.count("\n") == 1 and str(p) in err and f"field '{field}'" in err and "PRN-07" in err

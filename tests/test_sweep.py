@@ -140,25 +140,38 @@ def test_ranking_and_best_scenario(scenario, tmp_path):
     assert best.time.duration_s == scenario.time.duration_s
 
 
-def _required_snr_db(pfa: float, n: int, pd: float = 0.9) -> float:
+def _required_snr_db(pfa: float, n: int, pd: float = 0.9, gain=(1.0,)) -> float:
     """[pub] square-law detector of N non-coherent sums (e.g. Kaplan & Hegarty, Understanding
     GPS/GNSS, 3rd ed., ch. 8): noise-only 2S ~ chi2(2N), with signal 2S ~ ncx2(2N, 2 N snr);
-    solved here with scipy's distributions and a root search of the test's own."""
+    solved here with scipy's distributions and a root search of the test's own. ``gain``:
+    power gains of the signal's offsets within its cell, over which Pd is averaged."""
+    import numpy as np
     from scipy import optimize, stats
 
+    g = np.asarray(gain, dtype=float)
     thr = stats.chi2.isf(pfa, 2 * n)
-    snr = optimize.brentq(lambda x: stats.ncx2.sf(thr, 2 * n, 2 * n * x) - pd, 1e-6, 100.0, xtol=1e-14)
+    snr = optimize.brentq(lambda x: stats.ncx2.sf(thr, 2 * n, 2 * n * x * g).mean() - pd,
+                          1e-6, 100.0, xtol=1e-14)
     return 10 * math.log10(snr)
 
 
 def test_sensitivity_follows_noncoherent_sums(scenario):
     """Between N = 5 and N = 10 non-coherent sums (same coherent time, so the same losses)
-    the sensitivity column moves by the difference of the required SNRs."""
+    the sensitivity column moves by the difference of the required SNRs, each for the Pd
+    averaged over the signal's offset in its cell [calc: carrier uniform in the bin, code
+    uniform in the step, 60 x 60 midpoint rule of sinc^2(f Tc) (1 - |x|)^2]."""
+    import numpy as np
+
     spec = sw.sweep_spec(scenario, {"noncoherent": [5, 10]})
     res = sw.run_sweep(scenario, spec, workers=1)
     gps = [dict(res.row(0, s).sensitivity_by_signal_dbhz)["GPS-L1CA"] for s in range(2)]
     pfa = scenario.search.false_alarm_per_cell
-    expected = _required_snr_db(pfa, 5) - _required_snr_db(pfa, 10)
+    tc = scenario.search.integration_for("GPS-L1CA")[0] / 1000.0
+    width = make_plan(scenario).bin_design["GPS-L1CA"].bin_width_hz
+    u = (np.arange(60) + 0.5) / 60.0
+    gain = (np.sinc(u * 0.5 * width * tc)[:, None] ** 2
+            * ((1.0 - u * 0.5 * scenario.search.code_step_chips) ** 2)[None, :]).ravel()
+    expected = _required_snr_db(pfa, 5, gain=gain) - _required_snr_db(pfa, 10, gain=gain)
     assert 1.0 < expected < 3.0
     assert gps[0] - gps[1] == pytest.approx(expected, abs=2e-3)
 
