@@ -36,6 +36,7 @@ _PUBLIC: dict[str, str] = {
     "gps_week_tow": "core.ground.display",
     "gps_text": "core.ground.display",
     "whole_second": "core.ground.display",
+    "zone_names": "core.ground.display",
     "Site": "core.ground.geodesy",
     "SIGNALS": "core.ground.signals",
     "get_signal": "core.ground.signals",
@@ -62,6 +63,7 @@ _PUBLIC: dict[str, str] = {
     "route_motion": "core.search.motion",
     "design_bins": "core.search.bins",
     "bin_centres": "core.search.bins",
+    "bin_count": "core.search.bins",
     "loss_curve": "core.search.bins",
     # plan: acquisitions over time
     "Scenario": "core.plan.spec",
@@ -135,6 +137,7 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
         state_word,
         utc_stamp,
         whole_second,
+        zone_names,
     )
     from core.ground.errors import AcqplanError, Cancelled, ComputationError, InputError  # noqa: F401
     from core.ground.geodesy import Site  # noqa: F401
@@ -171,7 +174,7 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
         sweep_spec,
         sweep_to_json,
     )
-    from core.search.bins import bin_centres, design_bins, loss_curve  # noqa: F401
+    from core.search.bins import bin_centres, bin_count, design_bins, loss_curve  # noqa: F401
     from core.search.motion import MotionUncertainty, RouteMotion, route_motion  # noqa: F401
     from core.search.windows import Uncertainty, doppler_windows  # noqa: F401
     from core.sky.predict import Pass, Prediction, passes, predict  # noqa: F401

@@ -13,6 +13,7 @@ prepared geometry -> the worker's result is applied to the PlanModel on this thr
 from __future__ import annotations
 
 import html
+import re
 import threading
 import time
 from datetime import UTC, datetime, timedelta
@@ -31,6 +32,7 @@ from PySide6.QtWidgets import (
     QMessageBox,
     QProgressBar,
     QPushButton,
+    QSizePolicy,
     QSlider,
     QSplitter,
     QStatusBar,
@@ -45,8 +47,10 @@ from core.api import (
     InputError,
     Scenario,
     ScenarioValidationError,
+    clock_text,
     load_scenario,
     save_scenario,
+    utc_stamp,
 )
 
 from .models import PlanModel
@@ -156,6 +160,8 @@ class CursorBar(QWidget):
         lay = QHBoxLayout(self)
         lay.setContentsMargins(6, 2, 6, 2)
         title = QLabel("Plan time", self)
+        title.setToolTip("Also: click an empty place of the timeline or the Doppler view")
+        title.setVisible(False)             # the strip is narrow; the tooltips say it
         title.setStyleSheet("font-weight: bold;")
         self.back = QToolButton(self)
         self.back.setText("◀")
@@ -167,13 +173,15 @@ class CursorBar(QWidget):
         self.forward.setAutoRepeat(True)
         self.slider = QSlider(Qt.Orientation.Horizontal, self)
         self.slider.setObjectName("timeCursor")
-        self.slider.setToolTip("Plan-time cursor: every view shows this instant "
-                               "(arrow keys, Page Up/Down, Home/End)")
+        self.slider.setToolTip("Plan time: every view shows this instant (arrow keys, "
+                               "Page Up/Down, Home/End; or click an empty place of the "
+                               "timeline or the Doppler view)")
         self.slider.setRange(0, 0)
         self.slider.setPageStep(10)
         self.label = QLabel("—", self)
         self.label.setObjectName("cursorTime")
-        self.label.setMinimumWidth(260)
+        self.slider.setMinimumWidth(160)
+        self.slider.setMaximumWidth(220)
         self.label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         lay.addWidget(title)
         lay.addWidget(self.back)
@@ -221,18 +229,56 @@ class CursorBar(QWidget):
         self.slider.blockSignals(False)
         t = float(plan.times.unix_s[k])
         utc = datetime.fromtimestamp(t, UTC)
-        text = utc.strftime("%Y-%m-%d %H:%M:%S UTC")
+        text = f"{clock_text(t)} UTC"
         zone = plan.scenario.time.timezone
         if zone and zone != "UTC":
             try:
                 local = utc.astimezone(plan.scenario.time.tzinfo)
-                text += f"  ·  local {local.strftime('%H:%M:%S %Z')}"
+                text += f" · {clock_text(t, plan.scenario.time.tzinfo)} {local.tzname()}"
             except Exception:  # an unknown zone was rejected by the core already
                 pass
         elapsed = t - float(plan.times.unix_s[0])
-        text += f"  ·  +{elapsed / 60.0:.1f} min"
-        self.label.setToolTip(f"grid index {k + 1} of {len(plan.times)}; {elapsed:.0f} s after the start")
+        text += f" · +{elapsed / 60.0:.1f} min"
+        self.label.setMinimumWidth(self.label.fontMetrics().horizontalAdvance(text) + 8)
+        self.label.setToolTip(f"{utc_stamp(t)}; grid index {k + 1} of {len(plan.times)}; "
+                              f"{elapsed:.0f} s after the start")
         self.label.setText(text)
+
+
+class PlanStrip(QLabel):
+    """The plan's key figures in one line on top: first fix, TTFF, satellites, channels."""
+
+    def __init__(self, model: PlanModel, parent: QWidget | None = None):
+        super().__init__("no plan yet", parent)
+        self.setObjectName("planStrip")
+        self.model = model
+        self.setTextFormat(Qt.TextFormat.RichText)
+        self.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.setContentsMargins(6, 2, 6, 2)
+        # The strip gives way to the cursor on narrow screens (its tooltip keeps the text).
+        self.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        model.planChanged.connect(self._on_plan)
+        model.ttffChanged.connect(self._on_plan)
+
+    def _on_plan(self, result: PlanResult) -> None:
+        plan = result.plan
+        tl = plan.timeline
+        parts = []
+        if tl.first_fix_unix_s is None:
+            parts.append("<b>no first fix in the window</b>")
+        else:
+            parts.append(f"<b>First fix {clock_text(tl.first_fix_unix_s)} UTC</b>")
+            ttff = f"TTFF {tl.ttff_s:.0f} s"
+            if plan.ttff is not None:
+                ttff += f" (median {plan.ttff.median_s:.0f} s, 95 % {plan.ttff.p95_s:.0f} s)"
+            elif not result.final:
+                ttff += " (percentiles pending)"
+            parts.append(ttff)
+        n_up = int(plan.visible.any(axis=1).sum())
+        parts.append(f"{n_up} in view, {plan.scenario.receiver.channels} channels")
+        self.setText(" &nbsp;·&nbsp; ".join(parts))
+        self.setToolTip(" · ".join(re.sub("<[^>]+>", "", p) for p in parts) + "\n\nExpected times from the mean search times; median and 95th "
+                        "percentile from the seeded Monte Carlo")
 
 
 class PlannerWindow(QMainWindow):
@@ -289,52 +335,83 @@ class PlannerWindow(QMainWindow):
         self.setup_dock.setFeatures(QDockWidget.DockWidgetFeature.DockWidgetMovable
                                     | QDockWidget.DockWidgetFeature.DockWidgetFloatable
                                     | QDockWidget.DockWidgetFeature.DockWidgetClosable)
-        self.addDockWidget(Qt.DockWidgetArea.LeftDockWidgetArea, self.setup_dock)
+        self.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, self.setup_dock)
 
         self.sky = SkyView(self.model)
         self.doppler = DopplerView(self.model)
         self.search_grid = SearchGridView(self.model)
         self.channels = ChannelView(self.model)
         self.loss = LossCurveView(self.model)
+        self.loss.designEdited.connect(self._design_edited)
         self.table = SatelliteTableView(self.model)
         self.messages = MessagesView()
         self.messages.countChanged.connect(self._messages_counted)
 
+        # acqplan's layout: the plan itself takes the width of the window. The channel
+        # timeline (what each channel does when) sits over the Doppler windows (what each
+        # search covers), both on the same time axis and always visible together; below
+        # them the satellite table with the sky as a small secondary view beside it. The
+        # test set-up form is a dock on the right, the key figures of the plan and the
+        # plan-time cursor a strip on top. Further views (a route, recorded results) go
+        # in as tabs of the middle stack or beside the sky, without moving the others.
         self.tabs = QTabWidget()
         self.tabs.setObjectName("viewTabs")
+        self.tabs.setDocumentMode(True)
         self.tabs.addTab(self.doppler, "Doppler windows")
         self.tabs.addTab(self.search_grid, "Bins at cursor")
-        self.tabs.addTab(self.channels, "Channel timeline")
-        self.tabs.addTab(self.loss, "Bin loss")
-        self.top_split = QSplitter(Qt.Orientation.Horizontal)
-        self.top_split.setObjectName("topSplit")
-        self.top_split.addWidget(self.sky)
-        self.top_split.addWidget(self.tabs)
-        self.top_split.setStretchFactor(0, 2)
-        self.top_split.setStretchFactor(1, 3)
+        self.tabs.addTab(self.loss, "Bin design")
+        self.side_tabs = QTabWidget()
+        self.side_tabs.setObjectName("sideTabs")
+        self.side_tabs.setDocumentMode(True)
+        self.side_tabs.addTab(self.sky, "Sky")
         self.lower_tabs = QTabWidget()
         self.lower_tabs.setObjectName("lowerTabs")
+        self.lower_tabs.setDocumentMode(True)
         self.lower_tabs.addTab(self.table, "Satellites at cursor")
         self.lower_tabs.addTab(self.messages, "Messages")
+        self.lower_split = QSplitter(Qt.Orientation.Horizontal)
+        self.lower_split.setObjectName("lowerSplit")
+        self.lower_split.addWidget(self.lower_tabs)
+        self.lower_split.addWidget(self.side_tabs)
+        self.lower_split.setStretchFactor(0, 1)
+        self.lower_split.setStretchFactor(1, 0)
         self.main_split = QSplitter(Qt.Orientation.Vertical)
-        self.main_split.setObjectName("mainSplit")
-        self.main_split.addWidget(self.top_split)
-        self.main_split.addWidget(self.lower_tabs)
-        self.main_split.setStretchFactor(0, 3)
-        self.main_split.setStretchFactor(1, 2)
+        self.main_split.setObjectName("planSplit")
+        self.main_split.addWidget(self.channels)
+        self.main_split.addWidget(self.tabs)
+        self.main_split.addWidget(self.lower_split)
+        for i in range(3):
+            self.main_split.setCollapsible(i, False)
+        self.top_split = self.lower_split          # the name older code and tests know
         self.message_bar = MessageBar()
         self.cursor_bar = CursorBar(self.model)
+        self.plan_strip = PlanStrip(self.model)
+        strip = QWidget()
+        strip.setObjectName("planStripRow")
+        strip_lay = QHBoxLayout(strip)
+        strip_lay.setContentsMargins(0, 0, 0, 0)
+        strip_lay.setSpacing(4)
+        strip_lay.addWidget(self.plan_strip, 1)
+        strip_lay.addWidget(self.cursor_bar, 0)
         central = QWidget()
         lay = QVBoxLayout(central)
         lay.setContentsMargins(0, 0, 0, 0)
         lay.setSpacing(2)
         lay.addWidget(self.message_bar)
+        lay.addWidget(strip)
         lay.addWidget(self.main_split, 1)
-        lay.addWidget(self.cursor_bar)
         self.setCentralWidget(central)
-        for split in (self.main_split, self.top_split):
+        for split in (self.main_split, self.lower_split):
             split.splitterMoved.connect(lambda *_a: self._user_moved_splitter())
-        self.resizeDocks([self.setup_dock], [372], Qt.Orientation.Horizontal)
+        self.resizeDocks([self.setup_dock], [320], Qt.Orientation.Horizontal)
+
+    def _design_edited(self, dotted: str, value: float) -> None:
+        """A coherent time or accepted loss set in the bin-design view goes into the form
+        (which re-plans, and marks the scenario as changed)."""
+        editor = self.panel.editors.get(dotted)
+        spin = getattr(editor, "spin", None)
+        if spin is not None:
+            spin.setValue(value)
 
     def _action(self, text: str, slot, shortcut: QKeySequence | str | None = None,
                 tip: str = "") -> QAction:
@@ -443,23 +520,29 @@ class PlannerWindow(QMainWindow):
             self.fit_splitters()
 
     def fit_splitters(self) -> None:
-        """Default proportions: views over the table 58:42, the sky square."""
-        total_h = max(self.main_split.height(), 200)
-        top_h = int(total_h * 0.58)
-        self.main_split.setSizes([top_h, total_h - top_h])
-        total_w = max(self.top_split.width(), 300)
-        sky_w = min(max(top_h - 10, 220), int(total_w * 0.45))
-        self.top_split.setSizes([sky_w, total_w - sky_w])
+        """Default proportions: timeline 29 %, Doppler windows 33 %, table and sky 38 %;
+        the sky about square and never more than a third of the width."""
+        total_h = max(self.main_split.height(), 300)
+        timeline_h = int(total_h * 0.29)
+        doppler_h = int(total_h * 0.33)
+        lower_h = total_h - timeline_h - doppler_h
+        self.main_split.setSizes([timeline_h, doppler_h, lower_h])
+        total_w = max(self.lower_split.width(), 300)
+        sky_w = min(max(lower_h, 180), int(total_w * 0.3))
+        need = self.table.needed_width() + 24 if self.table.needed_width() else 0
+        if need and total_w - sky_w < need:        # the table's columns first, then the sky
+            sky_w = max(min(sky_w, total_w - need), 160)
+        self.lower_split.setSizes([total_w - sky_w, sky_w])
 
     def _restore_layout(self) -> bool:
         restored = False
         geo = self.settings.byte_array("geometry")
         if geo is not None:
             self.restoreGeometry(geo)
-        state = self.settings.byte_array("state")
+        state = self.settings.byte_array("windowState")
         if state is not None:
             self.restoreState(state)
-        for key, split in (("mainSplit", self.main_split), ("topSplit", self.top_split)):
+        for key, split in (("planSplit", self.main_split), ("lowerSplit", self.lower_split)):
             value = self.settings.byte_array(key)
             if value is not None:
                 restored = split.restoreState(value) or restored
@@ -470,9 +553,9 @@ class PlannerWindow(QMainWindow):
 
     def save_layout(self) -> None:
         self.settings.set_byte_array("geometry", self.saveGeometry())
-        self.settings.set_byte_array("state", self.saveState())
-        self.settings.set_byte_array("mainSplit", self.main_split.saveState())
-        self.settings.set_byte_array("topSplit", self.top_split.saveState())
+        self.settings.set_byte_array("windowState", self.saveState())
+        self.settings.set_byte_array("planSplit", self.main_split.saveState())
+        self.settings.set_byte_array("lowerSplit", self.lower_split.saveState())
         self.settings.sync()
 
     # ------------------------------------------------------------------ files
@@ -772,6 +855,8 @@ class PlannerWindow(QMainWindow):
             serial = result.serial
             QTimer.singleShot(0, lambda: self.worker.acknowledge(serial))
         self._note_pole(result.scenario)
+        if not self._layout_restored and self.isVisible():
+            self.fit_splitters()                # the table's columns are known now
         self.apply_s = time.perf_counter() - t0
         self._update_status(result)
         self.planShown.emit(result)
@@ -871,13 +956,12 @@ class PlannerWindow(QMainWindow):
             self._update_status_counts()
 
     def _update_status_counts(self) -> None:
-        plan = self.model.plan
-        n = 0 if plan is None else len(plan.warnings)
+        """The status bar and the Messages tab give the same count (notes not counted)."""
+        n = self.messages.attention_count()
         self.status_warnings.setText(f"{n} warning{'s' if n != 1 else ''}")
 
     # ------------------------------------------------------------------ sheets and data
     def _zoom_start(self) -> None:
-        self.tabs.setCurrentWidget(self.channels)
         self.channels.show_start()
 
     def _need_plan(self) -> bool:
@@ -1008,6 +1092,12 @@ class PlannerWindow(QMainWindow):
                 "timeline up to the first fix.</p>"
                 f"<p><b>Units.</b> {esc(UNITS_TEXT)}</p>"
                 f"<p><b>Sign conventions.</b></p><ul>{conv}</ul>"
+                "<p><b>Bin loss.</b> A carrier offset f from the bin centre after a "
+                "coherent time Tc loses −20 log10 |sinc(f·Tc)| dB (sinc(x) = sin(πx)/(πx)); "
+                "the bin is the widest whose edge (f = half a bin) loses at most the "
+                "accepted loss. Words: <i>first</i> window = before any acquisition; "
+                "<i>narrowed</i> = after the first acquisition, once the oscillator error "
+                "is measured.</p>"
                 f"<p><b>Safety.</b></p><ul>{safety}</ul>"
                 "<p>Plans are estimates from orbit predictions and models; check them "
                 "against your receiver's behaviour.</p>")

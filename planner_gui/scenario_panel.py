@@ -46,7 +46,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from core.api import SIGNALS
+from core.api import SIGNALS, zone_names
 from core.plan.spec import (
     FORMAT_VERSION,
     KEY_RULES,
@@ -69,10 +69,10 @@ GROUPS: tuple[tuple[str, str], ...] = (
 
 # label (with its unit), decimals, single step. Units follow KEY_RULES.unit.
 FIELDS: dict[str, tuple[str, int, float]] = {
-    "name": ("Name (text)", 0, 1),
-    "format_version": ("File layout (version)", 0, 1),
+    "name": ("Name", 0, 1),
+    "format_version": ("Scenario file layout", 0, 1),
     "orbits.files": ("Orbit files (YUMA, SEM, TLE)", 0, 1),
-    "orbits.mapping": ("GLONASS mapping (file)", 0, 1),
+    "orbits.mapping": ("GLONASS slot/channel file", 0, 1),
     "site.lat_deg": ("Latitude (°, north +)", 6, 0.01),
     "site.lon_deg": ("Longitude (°, east +)", 6, 0.01),
     "site.height_m": ("Ellipsoid height (m)", 1, 10),
@@ -82,33 +82,39 @@ FIELDS: dict[str, tuple[str, int, float]] = {
     "time.end": ("End (UTC)", 0, 1),
     "time.step_s": ("Plan step (s)", 1, 10),
     "time.uncertainty_s": ("Clock uncert. (± s)", 3, 1),
-    "time.timezone": ("Local zone (IANA)", 0, 1),
+    "time.timezone": ("Local time zone", 0, 1),
     "receiver.signals": ("Signals searched", 0, 1),
-    "receiver.channels": ("Channels (count)", 0, 1),
+    "receiver.channels": ("Channels", 0, 1),
     "receiver.oscillator_offset_ppb": ("Oscillator offset (ppb)", 1, 10),
     "receiver.oscillator_uncertainty_ppb": ("Oscillator uncert. (± ppb)", 1, 50),
     "receiver.max_horizontal_speed_m_s": ("Horizontal speed (m/s)", 1, 1),
     "receiver.max_vertical_speed_m_s": ("Vertical speed (m/s)", 1, 1),
-    "receiver.correlators_per_channel": ("Correlators (per ch.)", 0, 1),
-    "receiver.parallel_code_search": ("Whole code / dwell (y/n)", 0, 1),
-    "search.coherent_ms": ("Coherent integr. (ms)", 0, 1),
-    "search.noncoherent": ("Non-coherent (sums)", 0, 1),
+    "receiver.correlators_per_channel": ("Correlators per channel", 0, 1),
+    "receiver.parallel_code_search": ("Parallel code search", 0, 1),
+    "search.coherent_ms": ("Coherent time (ms)", 0, 1),
+    "search.noncoherent": ("Non-coherent sums", 0, 1),
     "search.max_frequency_loss_db": ("Accepted bin loss (dB)", 2, 0.1),
     "search.code_step_chips": ("Code step (chips)", 3, 0.05),
-    "search.false_alarm_per_cell": ("False alarm (per cell)", 0, 1),
+    "search.false_alarm_per_cell": ("False-alarm rate per cell", 0, 1),
     "search.false_alarm_penalty_s": ("False-alarm penalty (s)", 3, 0.1),
     "search.fine_time_uncertainty_us": ("Fine time uncert. (µs)", 1, 10),
-    "search.first_fix_satellites": ("Fix needs (satellites)", 0, 1),
+    "search.first_fix_satellites": ("Satellites for a fix", 0, 1),
     "search.ephemeris_wait_s": ("Ephemeris wait (s)", 1, 5),
     "search.orbit_margin_hz": ("Orbit margin (Hz at L1)", 1, 10),
-    "search.priority": ("Search order (choice)", 0, 1),
-    "search.monte_carlo_runs": ("Monte Carlo (runs)", 0, 100),
-    "search.seed": ("Random seed (integer)", 0, 1),
+    "search.priority": ("Search order", 0, 1),
+    "search.monte_carlo_runs": ("Monte Carlo runs", 0, 100),
+    "search.seed": ("Random seed", 0, 1),
     "signal.cn0_zenith_dbhz": ("C/N0 at zenith (dB-Hz)", 1, 1),
     "signal.cn0_at_mask_dbhz": ("C/N0 at mask (dB-Hz)", 1, 1),
     "signal.extra_loss_db": ("Extra loss (dB)", 1, 1),
     "mask.elevation_deg": ("Elevation mask (°)", 1, 1),
 }
+
+# What a tick box means, in the trade's words.
+BOOL_TEXT = {"receiver.parallel_code_search": "whole code per dwell"}
+
+# Analyst settings: in a collapsed "Advanced" group at the end of the form.
+ADVANCED = ("format_version", "search.monte_carlo_runs", "search.seed")
 
 PRIORITY_TEXT = {"elevation": "highest elevation first", "rising": "rising satellites first"}
 ORBIT_FILE_FILTER = ("Orbit files (*.txt *.alm *.al3 *.yuma *.sem *.tle *.3le *.agl *.nav "
@@ -292,7 +298,7 @@ class BigIntegerEditor(FieldEditor):
 class BoolEditor(FieldEditor):
     def __init__(self, rule: KeyRule, parent: QWidget | None = None):
         super().__init__(rule, parent)
-        self.box = QCheckBox("yes", self)
+        self.box = QCheckBox(BOOL_TEXT.get(rule.dotted, "on"), self)
         self.box.toggled.connect(self._emit)
         self._finish(self.box)
 
@@ -340,15 +346,10 @@ class ChoiceEditor(FieldEditor):
 class ZoneEditor(FieldEditor):
     def __init__(self, rule: KeyRule, parent: QWidget | None = None):
         super().__init__(rule, parent)
-        from zoneinfo import available_timezones
-
         self.combo = QComboBox(self)
         self.combo.setEditable(True)
         self.combo.setInsertPolicy(QComboBox.InsertPolicy.NoInsert)
-        names = sorted(available_timezones())
-        if "UTC" in names:
-            names.remove("UTC")
-        self.combo.addItems(["UTC", *names])
+        self.combo.addItems(zone_names())
         self.combo.setMaxVisibleItems(20)
         self.combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
         self.combo.setMinimumContentsLength(12)
@@ -658,6 +659,20 @@ class ScenarioPanel(QScrollArea):
         outer.addWidget(self.general_problem)
         self.editors: dict[str, FieldEditor] = {}
         self.groups: dict[str, QGroupBox] = {}
+        self.advanced = QGroupBox("Advanced", body)
+        self.advanced.setObjectName("group_advanced")
+        self.advanced.setCheckable(True)
+        self.advanced.setChecked(False)
+        self.advanced.setToolTip("Analyst settings: file layout, Monte Carlo runs, random seed")
+        adv_outer = QVBoxLayout(self.advanced)
+        adv_outer.setContentsMargins(0, 0, 0, 0)
+        self.advanced_body = QWidget(self.advanced)
+        adv_form = QFormLayout(self.advanced_body)
+        adv_form.setContentsMargins(6, 4, 6, 4)
+        adv_form.setVerticalSpacing(3)
+        adv_outer.addWidget(self.advanced_body)
+        self.advanced_body.setVisible(False)
+        self.advanced.toggled.connect(self.advanced_body.setVisible)
         for section, title in GROUPS:
             group = QGroupBox(title, body)
             group.setObjectName(f"group_{section or 'scenario'}")
@@ -667,8 +682,10 @@ class ScenarioPanel(QScrollArea):
             form.setLabelAlignment(Qt.AlignmentFlag.AlignLeft)
             form.setContentsMargins(6, 4, 6, 4)
             form.setVerticalSpacing(3)
+            group_form = form
             for rule in (r for r in KEY_RULES if r.section == section):
                 label_text, decimals, step = FIELDS[rule.dotted]
+                form = adv_form if rule.dotted in ADVANCED else group_form
                 if rule.dotted == "format_version":
                     info = QLabel(f"{FORMAT_VERSION} (written by acqplan)", group)
                     info.setToolTip(_tip(rule))
@@ -686,6 +703,7 @@ class ScenarioPanel(QScrollArea):
                     form.addRow(label, editor)
                 form.addRow(editor.problem_label)
                 self.editors[rule.dotted] = editor
+            form = group_form
             if section == "search":
                 self.per_signal = PerSignalEditor(group)
                 self.per_signal.changed.connect(self._on_changed)
@@ -695,9 +713,10 @@ class ScenarioPanel(QScrollArea):
                 self.editors["search.per_signal"] = self.per_signal
             self.groups[section] = group
             outer.addWidget(group)
+        outer.addWidget(self.advanced)
         outer.addStretch(1)
         self.setWidget(body)
-        self.setMinimumWidth(330)
+        self.setMinimumWidth(300)
 
     # -- construction
     def _make_editor(self, rule: KeyRule, decimals: int, step: float, parent: QWidget) -> FieldEditor:

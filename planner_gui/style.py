@@ -30,17 +30,25 @@ class SystemStyle:
     colour: str          # hex
     marker: str          # pyqtgraph symbol code: o s t d + x star h p
     marker_name: str     # words, for legends and sheets
+    line: str = "solid"  # line pattern of its curves: solid, dash, dot, dashdot (a cue
+                         # besides colour: Galileo and GLONASS are close for deuteranopes)
 
 
 SYSTEM_STYLES: dict[str, SystemStyle] = {
     "G": SystemStyle("G", "GPS", OKABE_ITO["blue"], "o", "circle"),
-    "E": SystemStyle("E", "Galileo", OKABE_ITO["orange"], "s", "square"),
-    "C": SystemStyle("C", "BeiDou", OKABE_ITO["bluish_green"], "t", "triangle"),
-    "R": SystemStyle("R", "GLONASS", OKABE_ITO["vermillion"], "d", "diamond"),
-    "J": SystemStyle("J", "QZSS", OKABE_ITO["reddish_purple"], "star", "star"),
-    "S": SystemStyle("S", "SBAS", OKABE_ITO["sky_blue"], "x", "cross"),
+    "E": SystemStyle("E", "Galileo", OKABE_ITO["orange"], "s", "square", "dash"),
+    "C": SystemStyle("C", "BeiDou", OKABE_ITO["bluish_green"], "t", "triangle", "dot"),
+    "R": SystemStyle("R", "GLONASS", OKABE_ITO["vermillion"], "d", "diamond", "dashdot"),
+    "J": SystemStyle("J", "QZSS", OKABE_ITO["reddish_purple"], "star", "star", "dash"),
+    "S": SystemStyle("S", "SBAS", OKABE_ITO["sky_blue"], "x", "cross", "dot"),
     "X": SystemStyle("X", "other", "#666666", "+", "plus"),
 }
+
+
+# Text glyphs of the marker shapes and line patterns, for one-line legends.
+MARKER_GLYPHS = {"o": "●", "s": "■", "t": "▼", "d": "◆", "star": "★", "x": "✕", "+": "✚",
+                 "h": "⬢", "p": "⬟"}
+LINE_GLYPHS = {"solid": "───", "dash": "─ ─", "dot": "┈┈┈", "dashdot": "─·─"}
 
 
 def style_for(system: str) -> SystemStyle:

@@ -14,6 +14,7 @@ import os
 import unicodedata
 from datetime import UTC, date, datetime
 
+import numpy as np
 import pytest
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
@@ -120,3 +121,144 @@ def test_window_sheet_and_json_give_the_same_times(qtbot, demo_file, demo_plan, 
     assert f"FIRST FIX {expected_fix}" in " ".join(text.split())
     for sid, hms in expected_acq.items():
         assert hms in text, sid
+
+
+# --------------------------------------------------------------------------- the window
+
+@pytest.fixture
+def demo_window(qtbot, demo_file, tmp_path):
+    from planner_gui.main_window import PlannerWindow
+    from planner_gui.settings import PlannerSettings, use_settings_folder
+
+    use_settings_folder(tmp_path / "settings")
+    w = PlannerWindow(settings=PlannerSettings(), interactive=False, restore_layout=False)
+    qtbot.addWidget(w)
+    w.resize(1366, 768)
+    w.show()
+    qtbot.waitExposed(w)
+    with qtbot.waitSignal(w.planShown, timeout=WAIT_MS, check_params_cb=lambda r: r.final):
+        w.open_scenario(demo_file)
+    yield w
+    w.worker.shutdown()
+
+
+def test_window_at_1366x768_shows_plan_views_together_and_the_whole_table(qtbot, demo_window):
+    from PySide6.QtWidgets import QApplication
+
+    w = demo_window
+    for _ in range(5):
+        QApplication.processEvents()
+    assert (w.width(), w.height()) == (1366, 768)
+    # the timeline and the Doppler windows on screen at once, neither squeezed to a strip
+    for view in (w.channels, w.doppler):
+        assert view.isVisible() and view.visibleRegion().boundingRect().height() >= 150
+        assert view.width() >= 600
+    # the satellite table with its default columns: no horizontal scrolling, and the
+    # columns that matter (search time, channel, acquisition, state) shown
+    table = w.table.table
+    assert not table.horizontalScrollBar().isVisible()
+    from planner_gui.models import COLUMN_INDEX
+
+    for key in ("expected_search_s", "channel", "acquired", "state", "low_hz", "high_hz"):
+        assert not table.isColumnHidden(COLUMN_INDEX[key])
+    # the sky is the secondary view: smaller than the Doppler view
+    assert w.sky.width() * w.sky.height() < w.doppler.width() * w.doppler.height()
+    # no caption of a view wraps to three lines
+    for view in (w.channels, w.doppler, w.sky, w.table, w.loss, w.search_grid):
+        lines = view.info.height() / max(view.info.fontMetrics().lineSpacing(), 1)
+        assert lines < 2.9, (view.objectName(), view.info.text())
+
+
+def test_messages_count_once_and_safety_notes_once(qtbot, demo_window, demo_file):
+    w = demo_window
+    notes = w.messages.messages("note")
+    assert sum("Safety" in n for n in notes) == 2
+    with qtbot.waitSignal(w.planShown, timeout=WAIT_MS, check_params_cb=lambda r: r.final):
+        w.open_scenario(demo_file)
+    assert sum("Safety" in n for n in w.messages.messages("note")) == 2
+    n = w.messages.attention_count()
+    tab = w.lower_tabs.tabText(w.lower_tabs.indexOf(w.messages))
+    assert tab == f"Messages ({n})"
+    assert w.status_warnings.text().startswith(f"{n} warning")
+    # rows sized to their text: none taller than a few lines
+    w.lower_tabs.setCurrentWidget(w.messages)
+    w.messages.fit_rows()
+    line = w.messages.list.fontMetrics().lineSpacing()
+    for r in range(w.messages.list.rowCount()):
+        assert w.messages.list.rowHeight(r) <= 4 * line + 12
+
+
+def test_form_labels_and_time_zones(demo_window):
+    from core.api import zone_names
+
+    w = demo_window
+    from planner_gui.scenario_panel import FIELDS
+
+    for label, _d, _s in FIELDS.values():
+        for hint in ("(text)", "(choice)", "(integer)", "(y/n)", "(file)", "(count)"):
+            assert hint not in label
+    assert not w.panel.advanced.isChecked() and not w.panel.advanced_body.isVisible()
+    zones = zone_names()
+    assert "Factory" not in zones and "localtime" not in zones and "posixrules" not in zones
+    assert zones[0] == "UTC" and "Europe/Berlin" in zones and "America/Argentina/Salta" in zones
+    assert not any(z.startswith(("posix/", "right/")) for z in zones)
+
+
+def test_bin_design_view_sets_the_accepted_loss(qtbot, demo_window):
+    w = demo_window
+    w.tabs.setCurrentWidget(w.loss)
+    view = w.loss
+    assert "bin" in view.figures.text() and "cells" in view.figures.text()
+    before = w.model.plan.scenario.search.max_frequency_loss_db
+    with qtbot.waitSignal(w.planShown, timeout=WAIT_MS, check_params_cb=lambda r: r.final):
+        view.loss_spin.setValue(2.0)
+        view.loss_spin.editingFinished.emit()
+    plan = w.model.plan
+    assert before != 2.0 and plan.scenario.search.max_frequency_loss_db == 2.0
+    sid = view.shown_signal
+    # [calc, numpy.sinc] the edge of the new bin loses the accepted 2 dB
+    hw = plan.bin_design[sid].half_width_hz
+    tc = plan.bin_design[sid].coherent_ms / 1000.0
+    assert -20 * math.log10(abs(float(np.sinc(hw * tc)))) == pytest.approx(2.0, abs=1e-6)
+    assert f"bin {plan.bin_design[sid].bin_width_hz:.1f} Hz" in view.figures.text()
+    assert "sinc" not in view.info.text()          # the formula lives in the About box
+    assert "sinc" in w.about_html()
+
+
+# [pub: Machado, Oliveira & Fernandes, "A Physiologically-based Model for Simulation of
+# Color Vision Deficiency", IEEE TVCG 15(6), 2009] deuteranopia, severity 1.0, applied to
+# linear RGB (sRGB transfer function of IEC 61966-2-1).
+DEUTERANOPIA = np.array([[0.367322, 0.860646, -0.227968],
+                         [0.280085, 0.672501, 0.047413],
+                         [-0.011820, 0.042940, 0.968881]])
+
+
+def _deuteranope_sees(hex_colour: str) -> np.ndarray:
+    c = np.array([int(hex_colour[i:i + 2], 16) for i in (1, 3, 5)]) / 255.0
+    lin = np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
+    s = np.clip(DEUTERANOPIA @ lin, 0, 1)
+    return 255 * np.where(s <= 0.0031308, 12.92 * s, 1.055 * s ** (1 / 2.4) - 0.055)
+
+
+def test_doppler_view_keeps_galileo_beidou_glonass_apart_without_red_green(demo_window):
+    from planner_gui.style import style_for
+
+    w = demo_window
+    drawn = {sy: w.doppler.lines[sy].opts["pen"] for sy in ("G", "E", "C", "R")}
+    # a second cue: every constellation's lines have their own pattern and marker
+    assert len({p.style() for p in drawn.values()}) == 4
+    assert len({style_for(sy).marker for sy in drawn}) == 4
+    assert len(w.doppler.line_marks.data) > 20
+    # and the colours still differ for a deuteranope (sRGB distance, 0..441) [calc]
+    for a, b in (("E", "C"), ("E", "R"), ("C", "R")):
+        d = np.linalg.norm(_deuteranope_sees(drawn[a].color().name()) - _deuteranope_sees(drawn[b].color().name()))
+        assert d > 45, (a, b, d)
+    # legend names every constellation in the plan; hertz on the axis
+    for label in ("GPS", "Galileo", "BeiDou", "GLONASS"):
+        assert label in w.doppler.legend.text()
+    assert w.doppler.plot.getPlotItem().getAxis("left").labelText == "Doppler (Hz)"
+    # the selected satellite is highlighted and labelled
+    sat = w.model.plan.first_acquired
+    w.model.select(sat)
+    assert w.doppler.selected_label.isVisible() and w.doppler.selected_label.toPlainText() == sat
+    assert np.isfinite(w.doppler.selected_line.yData).any()

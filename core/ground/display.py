@@ -94,3 +94,25 @@ def hz_text(v: float, signed: bool = False, unicode_minus: bool = True) -> str:
 def hz_range_text(low_hz: float, high_hz: float) -> str:
     """'−256 … +925 Hz'."""
     return f"{hz_text(low_hz, signed=True)} … {hz_text(high_hz, signed=True)} Hz"
+
+
+# The areas of the IANA time zone database's geographic zones (tz "Area/Location" names);
+# "Etc" holds the fixed offsets. Names outside these ("Factory", "localtime",
+# "posixrules", "posix/...", "right/...", old aliases such as "US/Eastern") are not offered.
+_ZONE_AREAS = ("Africa", "America", "Antarctica", "Arctic", "Asia", "Atlantic", "Australia",
+               "Europe", "Indian", "Pacific", "Etc")
+
+
+def is_region_zone(name: str) -> bool:
+    """True for 'UTC' and the 'Area/Location' names of the IANA database."""
+    if name == "UTC":
+        return True
+    area, sep, rest = name.partition("/")
+    return bool(sep and rest) and area in _ZONE_AREAS
+
+
+def zone_names() -> list[str]:
+    """The time zones a person may pick: 'UTC' first, then the IANA region zones."""
+    from zoneinfo import available_timezones
+
+    return ["UTC", *sorted(n for n in available_timezones() if n != "UTC" and is_region_zone(n))]

@@ -54,13 +54,19 @@ def pen(system: str, width: float = 1.0, alpha: int = 255,
     return p
 
 
-def system_curves(plot_item, width: float, alpha: int, z: float = 1.0) -> dict[str, pg.PlotDataItem]:
-    """One empty curve per constellation, added to ``plot_item``. The curves change only
-    with the plan, so their pixels are cached: a cursor or marker moving over them does not
-    redraw every curve."""
+PEN_STYLES = {"solid": Qt.PenStyle.SolidLine, "dash": Qt.PenStyle.DashLine,
+              "dot": Qt.PenStyle.DotLine, "dashdot": Qt.PenStyle.DashDotLine}
+
+
+def system_curves(plot_item, width: float, alpha: int, z: float = 1.0,
+                  patterned: bool = False) -> dict[str, pg.PlotDataItem]:
+    """One empty curve per constellation, added to ``plot_item``; ``patterned`` draws each
+    in its constellation's line pattern. The curves change only with the plan, so their
+    pixels are cached: a cursor or marker moving over them does not redraw every curve."""
     curves: dict[str, pg.PlotDataItem] = {}
     for system in SYSTEM_STYLES:
-        item = pg.PlotDataItem([], [], pen=pen(system, width, alpha), connect="finite")
+        style = PEN_STYLES[SYSTEM_STYLES[system].line] if patterned else Qt.PenStyle.SolidLine
+        item = pg.PlotDataItem([], [], pen=pen(system, width, alpha, style), connect="finite")
         item.setZValue(z)
         item.curve.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
         plot_item.addItem(item)

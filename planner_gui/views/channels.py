@@ -286,6 +286,8 @@ class ChannelView(ViewFrame):
         hit = self.segment_at(p.x(), ch)
         if hit is not None:
             self.model.select(hit.sat_id)
+        elif self.model.plan is not None:          # an empty place: move the plan time there
+            self.model.set_cursor(self.model.plan.index_at(p.x()))
 
     def segment_at(self, t: float, channel: int):
         px = self.vb.viewPixelSize()[0] or 0.0

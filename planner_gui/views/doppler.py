@@ -16,8 +16,10 @@ from PySide6.QtCore import QPointF, Qt
 from PySide6.QtGui import QPainterPath
 from PySide6.QtWidgets import QCheckBox, QGraphicsPathItem, QLabel, QWidget
 
+from core.api import hz_range_text, hz_text
+
 from ..models import PlanModel
-from ..style import OKABE_ITO, SYSTEM_STYLES
+from ..style import LINE_GLYPHS, MARKER_GLYPHS, OKABE_ITO, SYSTEM_STYLES, style_for
 from ._common import (
     UtcAxis,
     ViewFrame,
@@ -31,6 +33,8 @@ from ._common import (
     utc_text,
 )
 
+MARK_EVERY_S = 1200.0    # a constellation marker on each line every 20 minutes
+
 
 class DopplerView(ViewFrame):
     def __init__(self, model: PlanModel, parent: QWidget | None = None):
@@ -42,6 +46,10 @@ class DopplerView(ViewFrame):
         self.all_windows.setToolTip("Shade the first search window of every satellite, "
                                     "not only the selected one's")
         self.all_windows.toggled.connect(self._draw_all_windows)
+        self.legend = QLabel("", self)
+        self.legend.setObjectName("dopplerLegend")
+        self.legend.setTextFormat(Qt.TextFormat.RichText)
+        self.add_header_widget(self.legend)
         self.add_header_widget(self.all_windows)
         self.plot = pg.PlotWidget(self, axisItems={"bottom": UtcAxis("bottom")})
         self.plot.setObjectName("dopplerPlot")
@@ -55,8 +63,8 @@ class DopplerView(ViewFrame):
         pi.setMenuEnabled(False)
         pi.showGrid(x=True, y=True, alpha=0.25)
         pi.setLabel("bottom", "time (UTC)")
-        pi.setLabel("left", "Doppler", units="Hz")
-        pi.getAxis("left").enableAutoSIPrefix(True)
+        pi.setLabel("left", "Doppler (Hz)")
+        pi.getAxis("left").enableAutoSIPrefix(False)        # hertz, like every table
         self._pi = pi
 
         self.all_bands: dict[str, QGraphicsPathItem] = {}
@@ -73,10 +81,21 @@ class DopplerView(ViewFrame):
         self.after_band = QGraphicsPathItem()
         self.after_band.setZValue(-1)
         pi.addItem(self.after_band)
-        self.lines = system_curves(pi, 1.0, 170)
+        self.lines = system_curves(pi, 1.3, 200, patterned=True)
+        # The constellation's marker every few minutes along each line: a cue besides
+        # colour and line pattern that survives greyscale and colour-blind viewing.
+        self.line_marks = pg.ScatterPlotItem(size=6, pxMode=True)
+        self.line_marks.setZValue(2)
+        pi.addItem(self.line_marks)
         self.selected_line = pg.PlotDataItem([], [], pen=cosmetic_pen("#000000", 2.6), connect="finite")
         self.selected_line.setZValue(3)
         pi.addItem(self.selected_line)
+        self.selected_label = pg.TextItem("", color="#000000", anchor=(0.0, 1.0),
+                                          fill=(255, 255, 255, 230), border=cosmetic_pen("#000000", 1.0))
+        self.selected_label.setFont(small_font(9, bold=True))
+        self.selected_label.setZValue(9)
+        self.selected_label.hide()
+        pi.addItem(self.selected_label)
         self.cursor_line = pg.InfiniteLine(angle=90, movable=False, pen=cosmetic_pen("#444444", 1.2, Qt.PenStyle.DashLine))
         pi.addItem(self.cursor_line)
         self.first_acq_line = pg.InfiniteLine(
@@ -121,6 +140,12 @@ class DopplerView(ViewFrame):
                 item.setData(np.hstack((xx, pad)).ravel(), np.hstack((yy, pad)).ravel(), connect="finite")
             else:
                 item.setData([], [])
+        self._draw_marks(plan)
+        present = [sy for sy in SYSTEM_STYLES if sy in set(self._systems)]
+        self.legend.setText("&nbsp;&nbsp;".join(
+            f'<span style="color:{style_for(sy).colour};">'
+            f"{MARKER_GLYPHS.get(style_for(sy).marker, '●')}&nbsp;{LINE_GLYPHS[style_for(sy).line]}"
+            f"</span>&nbsp;{style_for(sy).label}" for sy in present))
         acq = plan.timeline.acquisition_unix_s
         if acq:
             t1 = min(acq.values())
@@ -143,7 +168,41 @@ class DopplerView(ViewFrame):
         self._pi.setYRange(float(lo), float(hi), padding=0.04)
         self._pi.setLimits(xMin=float(t[0]) - 0.05 * (t[-1] - t[0]), xMax=float(t[-1]) + 0.05 * (t[-1] - t[0]))
 
+    def _draw_marks(self, plan) -> None:
+        """The constellation's marker on each nominal line every MARK_EVERY_S seconds."""
+        t = plan.times.unix_s
+        step = max(1, int(round(MARK_EVERY_S / max(plan.scenario.time.step_s, 1e-9))))
+        spots = []
+        nominal = plan.windows_first.nominal_hz
+        for s, system in enumerate(self._systems):
+            st = style_for(system)
+            ks = np.flatnonzero(plan.visible[s])
+            ks = ks[(ks + 3 * s) % step == 0]          # staggered, so marks do not stack
+            for k in ks:
+                spots.append({"pos": (float(t[k]), float(nominal[s, k])), "symbol": st.marker,
+                              "brush": brush(st.colour), "pen": cosmetic_pen("#222222", 0.6)})
+        self.line_marks.setData(spots)
+
+    def _place_selected_label(self) -> None:
+        plan = self.model.plan
+        sat = self.model.selected
+        if plan is None or sat is None:
+            self.selected_label.hide()
+            return
+        s = plan.ids.index(sat)
+        (x0, x1), _ = self._pi.getViewBox().viewRange()
+        t = plan.times.unix_s
+        ks = np.flatnonzero(plan.visible[s] & (t >= x0) & (t <= x1))
+        if ks.size == 0:
+            self.selected_label.hide()
+            return
+        k = self.model.cursor if self.model.cursor in set(ks.tolist()) else int(ks[ks.size // 2])
+        self.selected_label.setText(sat)
+        self.selected_label.setPos(float(t[k]), float(plan.windows_first.nominal_hz[s, k]))
+        self.selected_label.show()
+
     def _place_label(self, *_args) -> None:
+        self._place_selected_label()
         (x0, x1), (y0, y1) = self._pi.getViewBox().viewRange()
         px = self._pi.getViewBox().viewPixelSize()[0] or 0.0
         t1 = self.first_acq_line.value()
@@ -170,6 +229,7 @@ class DopplerView(ViewFrame):
         self.cursor_line.setValue(float(plan.times.unix_s[k]))
         self.cursor_line.show()
         self._cursor_readout()
+        self._place_selected_label()
 
     def _cursor_readout(self) -> None:
         """Without hover: the selected satellite at the cursor."""
@@ -189,8 +249,9 @@ class DopplerView(ViewFrame):
             self.first_band.setPath(QPainterPath())
             self.after_band.setPath(QPainterPath())
             self.selected_line.setData([], [])
-            self.info.setText("positive while approaching; click a line to select a satellite")
+            self.info.setText("+ approaching; click a line to select")
             self._cursor_readout()
+            self._place_selected_label()
             return
         s = plan.ids.index(sat_id)
         system = self._systems[s]
@@ -208,10 +269,11 @@ class DopplerView(ViewFrame):
             self.after_band.setPath(band_path(t, wa.low_hz[s:s + 1], wa.high_hz[s:s + 1], after))
         else:
             self.after_band.setPath(QPainterPath())
-        self.selected_line.setPen(cosmetic_pen("#000000", 2.2))
+        self.selected_line.setPen(cosmetic_pen("#000000", 2.6))
         self.selected_line.setData(t, np.where(vis[0], wf.nominal_hz[s], np.nan), connect="finite")
-        self.info.setText(f"{sat_id}: light band first window, dark band narrowed; + approaching")
+        self.info.setText(f"{sat_id}: light band first, dark band narrowed; + approaching")
         self._cursor_readout()
+        self._place_selected_label()
 
     # -- pointer
     def _nearest(self, pos) -> tuple[int, int] | None:
@@ -254,11 +316,11 @@ class DopplerView(ViewFrame):
         t = float(plan.times.unix_s[k])
         acq = plan.timeline.acquisition_unix_s
         narrowed = bool(acq) and t >= min(acq.values())
-        text = (f"{plan.ids[s]}  {utc_text(t)} UTC   Doppler {wf.nominal_hz[s, k]:+.1f} Hz   "
-                f"first window {wf.low_hz[s, k]:+.1f} … {wf.high_hz[s, k]:+.1f} Hz")
+        text = (f"{plan.ids[s]}  {utc_text(t)} UTC   Doppler {hz_text(wf.nominal_hz[s, k], signed=True)} Hz"
+                f"   first window {hz_range_text(wf.low_hz[s, k], wf.high_hz[s, k])}")
         if narrowed:
-            text += f"   narrowed {wa.low_hz[s, k]:+.1f} … {wa.high_hz[s, k]:+.1f} Hz"
-        return text.replace("-", "−")
+            text += f"   narrowed {hz_range_text(wa.low_hz[s, k], wa.high_hz[s, k])}"
+        return text
 
     def _mouse_clicked(self, ev) -> None:
         if ev.button() != Qt.MouseButton.LeftButton:
@@ -266,6 +328,11 @@ class DopplerView(ViewFrame):
         hit = self._nearest(ev.scenePos())
         if hit is not None:
             self.model.select(self.model.plan.ids[hit[0]])
+            return
+        vb = self._pi.getViewBox()
+        if self.model.plan is not None and vb.sceneBoundingRect().contains(ev.scenePos()):
+            # an empty place: the plan-time cursor goes there
+            self.model.set_cursor(self.model.plan.index_at(vb.mapSceneToView(ev.scenePos()).x()))
 
     def view_point(self, s: int, k: int) -> QPointF:
         """Scene position of satellite s's nominal line at grid index k (for tests)."""

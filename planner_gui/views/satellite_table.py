@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 from PySide6.QtCore import QItemSelectionModel, Qt
-from PySide6.QtWidgets import QAbstractItemView, QHeaderView, QTableView, QWidget
+from PySide6.QtWidgets import QAbstractItemView, QHeaderView, QMenu, QTableView, QWidget
 
 from ..models import (
     COLUMN_INDEX,
     COLUMNS,
+    DEFAULT_HIDDEN,
     SAT_ID_ROLE,
     PlanModel,
     SatelliteSortProxy,
@@ -40,6 +41,11 @@ class SatelliteTableView(ViewFrame):
         header.setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
         header.setStretchLastSection(True)
         header.setHighlightSections(False)
+        header.setContextMenuPolicy(Qt.ContextMenuPolicy.CustomContextMenu)
+        header.customContextMenuRequested.connect(self._column_menu)
+        header.setToolTip("Right-click to show or hide columns")
+        for key in DEFAULT_HIDDEN:
+            self.table.setColumnHidden(COLUMN_INDEX[key], True)
         self.outer.addWidget(self.table, 1)
         self._updating = False
         self._sized = False
@@ -77,11 +83,30 @@ class SatelliteTableView(ViewFrame):
         fm_head = self.table.horizontalHeader().fontMetrics()
         fm = self.table.fontMetrics()
         rows = self.table_model.rows
+        self._fitted = [0] * len(COLUMNS)
         for i, col in enumerate(COLUMNS):
             head = max(fm_head.horizontalAdvance(line) for line in col.title.split("\n"))
             texts = {format_value(col, r.get(col.key)) for r in rows}
             body = max((fm.horizontalAdvance(t) for t in texts), default=0)
-            self.table.setColumnWidth(i, max(body + 12, head) + 22)
+            self._fitted[i] = max(body + 8, head) + 14
+            self.table.setColumnWidth(i, self._fitted[i])
+
+    def needed_width(self) -> int:
+        """Width the table needs to show its visible columns without scrolling."""
+        if not self._sized:
+            return 0
+        cols = sum(self._fitted[i] for i in range(len(COLUMNS)) if not self.table.isColumnHidden(i))
+        return cols + self.table.verticalScrollBar().sizeHint().width() + 2 * self.table.frameWidth()
+
+    def _column_menu(self, pos) -> None:
+        menu = QMenu(self)
+        for i, col in enumerate(COLUMNS):
+            act = menu.addAction(col.title.replace("\n", " "))
+            act.setCheckable(True)
+            act.setChecked(not self.table.isColumnHidden(i))
+            act.setEnabled(col.key != "id")
+            act.toggled.connect(lambda on, i=i: self.table.setColumnHidden(i, not on))
+        menu.exec(self.table.horizontalHeader().mapToGlobal(pos))
 
     def _on_selection(self, sat_id) -> None:
         self._updating = True

@@ -8,14 +8,17 @@ satellite sits at its position at the cursor time; the shaded ring is below the 
 
 from __future__ import annotations
 
+import math
+from functools import lru_cache
+
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QPointF, Qt
-from PySide6.QtGui import QPainterPath
+from PySide6.QtGui import QPainterPath, QTransform
 from PySide6.QtWidgets import QGraphicsPathItem, QLabel, QWidget
 
 from ..models import PlanModel
-from ..style import style_for
+from ..style import MARKER_GLYPHS, style_for
 from ._common import (
     ViewFrame,
     brush,
@@ -28,9 +31,7 @@ from ._common import (
     utc_text,
 )
 
-# Text glyphs of the marker shapes, for the legend line.
-LEGEND_GLYPHS = {"o": "●", "s": "■", "t": "▼", "d": "◆", "star": "★", "x": "✕", "+": "✚",
-                 "h": "⬢", "p": "⬟"}
+LEGEND_GLYPHS = MARKER_GLYPHS          # text glyphs of the marker shapes
 
 
 def sky_xy(az_deg: np.ndarray, el_deg: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -43,6 +44,25 @@ def sky_xy(az_deg: np.ndarray, el_deg: np.ndarray) -> tuple[np.ndarray, np.ndarr
 def _circle(radius: float, n: int = 181) -> tuple[np.ndarray, np.ndarray]:
     a = np.linspace(0.0, 2.0 * np.pi, n)
     return radius * np.sin(a), radius * np.cos(a)
+
+
+@lru_cache(maxsize=72)
+def _arrow_at(step: int) -> QPainterPath:
+    path = QPainterPath()
+    path.moveTo(0.5, 0.0)
+    path.lineTo(-0.4, 0.32)
+    path.lineTo(-0.2, 0.0)
+    path.lineTo(-0.4, -0.32)
+    path.closeSubpath()
+    # symbols are drawn in screen pixels, y down: an angle counted anticlockwise in the
+    # plot turns clockwise on the path
+    return QTransform().rotate(-5.0 * step).map(path)
+
+
+def arrow_symbol(angle_deg: float) -> QPainterPath:
+    """An arrowhead pointing along ``angle_deg`` (plot coordinates, x right, y up),
+    quantised to 5°."""
+    return _arrow_at(int(round(angle_deg / 5.0)) % 72)
 
 
 class SkyView(ViewFrame):
@@ -102,6 +122,10 @@ class SkyView(ViewFrame):
         self.selected_track = pg.PlotDataItem([], [], pen=cosmetic_pen("#000000", 3.0), connect="finite")
         self.selected_track.setZValue(2)
         pi.addItem(self.selected_track)
+        # Direction of travel: one arrowhead on each track, halfway along its pass.
+        self.arrows = pg.ScatterPlotItem(size=10, pen=cosmetic_pen("#333333", 0.8))
+        self.arrows.setZValue(3)
+        pi.addItem(self.arrows)
         self.markers = pg.ScatterPlotItem(size=12, hoverable=True, tip=self._tip,
                                           hoverPen=cosmetic_pen("#000000", 2.0))
         self.markers.setZValue(5)
@@ -132,6 +156,23 @@ class SkyView(ViewFrame):
         model.selectionChanged.connect(self._on_selection)
 
     # -- model -> view
+    def _draw_arrows(self, x: np.ndarray, y: np.ndarray, vis: np.ndarray) -> None:
+        spots = []
+        for s in range(vis.shape[0]):
+            edges = np.flatnonzero(np.diff(np.concatenate(([0], vis[s].astype(np.int8), [0]))))
+            for a, b in zip(edges[0::2], edges[1::2]):
+                if b - a < 3:
+                    continue
+                k = (a + b) // 2
+                dx, dy = float(x[s, k + 1] - x[s, k - 1]), float(y[s, k + 1] - y[s, k - 1])
+                if dx == 0.0 and dy == 0.0:
+                    continue
+                st = style_for(self._systems[s])
+                spots.append({"pos": (float(x[s, k]), float(y[s, k])),
+                              "symbol": arrow_symbol(math.degrees(math.atan2(dy, dx))),
+                              "brush": brush(st.colour)})
+        self.arrows.setData(spots)
+
     def _on_plan(self, result) -> None:
         plan = result.plan
         pred = plan.prediction
@@ -140,6 +181,7 @@ class SkyView(ViewFrame):
         self._ids = plan.ids
         self._systems = [sp.system for sp in plan.satellites]
         vis = plan.visible
+        self._draw_arrows(x, y, vis)
         present = []
         for system, item in self.tracks.items():
             rows = [s for s, sy in enumerate(self._systems) if sy == system]
@@ -169,12 +211,10 @@ class SkyView(ViewFrame):
             st = style_for(system)
             n = sum(1 for s, sy in enumerate(self._systems) if sy == system and vis[s].any())
             glyph = LEGEND_GLYPHS.get(st.marker, "●")
-            parts.append(f'<span style="color:{st.colour}; font-size:12pt;">{glyph}</span>'
-                         f"&nbsp;{st.label}")
+            parts.append(f'<span style="color:{st.colour};">{glyph}</span>&nbsp;{st.label}')
             tips.append(f"{st.label}: {st.marker_name}, {n} satellites above the mask in the window")
         if mask > -5.0:
-            parts.append(f'<span style="color:#999999; font-size:12pt;">◯</span>&nbsp;grey ring: '
-                         f"below the {mask:g}° mask")
+            parts.append(f'<span style="color:#777777;">◯</span>&nbsp;grey: below {mask:g}°')
         self.legend.setText("&nbsp;&nbsp; ".join(parts))
         self.legend.setToolTip("\n".join(tips))
 
@@ -194,8 +234,9 @@ class SkyView(ViewFrame):
         self.markers.setData(spots)
         self._grow_labels(len(rows))
         self._place_labels(rows, x[:, k], y[:, k])
-        self.info.setText(f"{len(rows)} satellites above the mask at "
-                          f"{utc_text(float(plan.times.unix_s[k]))} UTC; north up, east right")
+        self.info.setText(f"{len(rows)} in view · {utc_text(float(plan.times.unix_s[k]))} UTC")
+        self.info.setToolTip(f"{len(rows)} satellites above the elevation mask at the cursor; "
+                             "north up, east right; elevation rings every 30°")
         self._update_ring()
 
     # Label places tried in turn around a marker: (anchor, offset in marker radii).
@@ -204,7 +245,9 @@ class SkyView(ViewFrame):
 
     def _place_labels(self, rows, xs, ys) -> None:
         """Put each ID beside its marker, on the first side where it overlaps neither an
-        earlier label nor a marker (higher satellites first); else on the right."""
+        earlier label nor a marker (the selected satellite first, then the higher ones).
+        A label with no free side is left out (the marker's tooltip names it), so labels
+        never overlap; the selected satellite is always labelled."""
         from PySide6.QtGui import QFontMetricsF
 
         px_w, px_h = 0.45, 0.45
@@ -226,7 +269,9 @@ class SkyView(ViewFrame):
                        for i, b in enumerate(taken) if i != own)
 
         # Nearest the zenith (highest) first: the plot radius is the zenith distance.
-        order = sorted(range(len(rows)), key=lambda i: float(np.hypot(xs[rows[i]], ys[rows[i]])))
+        chosen = self.model.selected
+        order = sorted(range(len(rows)), key=lambda i: (self._ids[rows[i]] != chosen,
+                                                        float(np.hypot(xs[rows[i]], ys[rows[i]]))))
         for t in self._labels[len(rows):]:
             t.setVisible(False)
         for i in order:
@@ -244,6 +289,9 @@ class SkyView(ViewFrame):
                 if free(box, own=i):
                     choice = (anchor, px, py, box)
                     break
+            if choice is None and text != chosen:
+                t.setVisible(False)
+                continue
             if choice is None:
                 anchor, (ox, oy) = self._LABEL_PLACES[0]
                 px, py = cx + ox * r_mark, cy
@@ -277,6 +325,9 @@ class SkyView(ViewFrame):
         self.selected_track.setData(np.where(vis, x[s], np.nan), np.where(vis, y[s], np.nan),
                                     connect="finite")
         self._update_ring()
+        k = self.model.cursor
+        rows = np.flatnonzero(plan.visible[:, k])
+        self._place_labels(rows, x[:, k], y[:, k])       # the selected one labelled first
 
     def _update_ring(self) -> None:
         plan = self.model.plan

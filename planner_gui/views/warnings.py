@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import time
 
-from PySide6.QtCore import Qt, Signal
+from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtGui import QColor
 from PySide6.QtWidgets import (
     QAbstractItemView,
@@ -55,6 +55,14 @@ class MessagesView(ViewFrame):
         header.setSectionResizeMode(0, QHeaderView.ResizeMode.ResizeToContents)
         header.setSectionResizeMode(1, QHeaderView.ResizeMode.ResizeToContents)
         header.setSectionResizeMode(2, QHeaderView.ResizeMode.Stretch)
+        self.list.verticalHeader().setDefaultSectionSize(self.list.fontMetrics().height() + 8)
+        # Wrapped rows are measured again when the message column changes width (a row
+        # measured while the panel was still narrow would otherwise stay tall).
+        self._refit = QTimer(self)
+        self._refit.setSingleShot(True)
+        self._refit.setInterval(0)
+        self._refit.timeout.connect(self.fit_rows)
+        header.sectionResized.connect(lambda i, _o, _n: i == 2 and self._refit.start())
         self.outer.addWidget(self.list, 1)
         row = QHBoxLayout()
         clear = QPushButton("Clear kept messages", self)
@@ -75,8 +83,22 @@ class MessagesView(ViewFrame):
         items[2].setToolTip(details or text)
         for c, item in enumerate(items):
             self.list.setItem(r, c, item)
-        self.list.resizeRowToContents(r)
+        if self.list.isVisible():
+            self.list.resizeRowToContents(r)
         return r
+
+    def fit_rows(self) -> None:
+        """Every row as tall as its wrapped message, not taller."""
+        if self.list.isVisible():
+            self.list.resizeRowsToContents()
+
+    def showEvent(self, event) -> None:
+        super().showEvent(event)
+        self._refit.start()
+
+    def attention_count(self) -> int:
+        """Messages that ask for attention: everything but notes (the one count shown)."""
+        return sum(1 for r in range(self.list.rowCount()) if self._kind(r) != "note")
 
     def _kind(self, row: int) -> str:
         return self.list.item(row, 0).data(KIND_ROLE)
@@ -94,6 +116,8 @@ class MessagesView(ViewFrame):
         self._changed()
 
     def add_message(self, kind: str, text: str, details: str = "") -> None:
+        if kind == "note" and text in self.messages("note"):
+            return                      # a note is shown once
         # Keep at most MAX_KEPT messages besides the plan warnings: the oldest go first.
         kept = [r for r in range(self.list.rowCount()) if self._kind(r) != "plan"]
         for r in reversed(kept[:max(0, len(kept) - MAX_KEPT + 1)]):
@@ -113,4 +137,4 @@ class MessagesView(ViewFrame):
                 if kind is None or self._kind(r) == kind]
 
     def _changed(self) -> None:
-        self.countChanged.emit(self.list.rowCount())
+        self.countChanged.emit(self.attention_count())
