@@ -67,3 +67,23 @@ GPS_UTC_LEAP_TABLE: tuple[tuple[float, int], ...] = (
 
 TWO_PI = 2.0 * math.pi
 DEG = math.pi / 180.0
+
+# Broadcast-ephemeris constants of the other systems.
+# Galileo [mem: Galileo OS SIS ICD issue 2.0, sec. 5.1.1 / Table 57 (GTRF, mu, Earth rate)].
+GALILEO_MU_M3_S2 = 3.986004418e14
+GALILEO_EARTH_ROTATION_RAD_S = 7.2921151467e-5
+# BeiDou, CGCS2000 [mem: BDS-SIS-ICD-B1I 3.0, sec. 3.2 and 5.2.4.12].
+BEIDOU_MU_M3_S2 = 3.986004418e14
+BEIDOU_EARTH_ROTATION_RAD_S = 7.2921150e-5
+# BeiDou GEO satellites are propagated in a frame tilted by -5 deg about X
+# [mem: BDS-SIS-ICD-B1I 3.0, Table 5-11 (GEO user algorithm)].
+BEIDOU_GEO_TILT_RAD = -5.0 * math.pi / 180.0
+# BDT = GPST - 14 s (BDT started 2006-01-01 00:00:00 UTC, when GPST - UTC was 14 s)
+# [mem: BDS-SIS-ICD-B1I 3.0, sec. 3.1].
+BDT_MINUS_GPST_S = -14.0
+# QZSS uses the GPS values [pub: IS-QZSS-PNT, sec. 5.6 (same user algorithm as IS-GPS-200)].
+# GLONASS, PZ-90.11 [mem: GLONASS ICD edition 5.1 (2008), Appendix A.3.1.2 and sec. 3.1.3].
+GLONASS_MU_M3_S2 = 3.986004418e14
+GLONASS_EARTH_RADIUS_M = 6_378_136.0
+GLONASS_J2 = 1.08262575e-3
+GLONASS_EARTH_ROTATION_RAD_S = 7.292115e-5

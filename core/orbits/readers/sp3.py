@@ -10,15 +10,12 @@ us/s) lines. ``0.000000`` coordinates and ``999999.999999`` clocks mark missing 
 
 Output is in metres, metres per second and seconds on a continuous GPS time axis
 (``gps_s``, seconds since 1980-01-06 00:00 GPS). Compressed files are accepted: ``.Z``
-(Unix ``compress``, LZW: expanded with ``gzip -dc`` when available, else by the
-pure-Python decoder here) and ``.gz``.
+(Unix ``compress``) and ``.gz``, recognised from their first bytes
+(:mod:`core.orbits.readers.compressed`).
 """
 
 from __future__ import annotations
 
-import gzip
-import shutil
-import subprocess
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
 from pathlib import Path
@@ -28,6 +25,7 @@ import numpy as np
 from ...ground.constants import GPS_EPOCH_UNIX_S
 from ...ground.errors import OrbitFormatError
 from ...ground.timeutil import unix_to_gps_s
+from .compressed import expand
 
 _BAD_CLOCK_US = 999_999.0
 
@@ -60,85 +58,13 @@ class Sp3Orbits:
                          list(self.warnings))
 
 
-def unlzw(data: bytes) -> bytes:
-    """Decompress Unix ``compress`` (.Z) data [pub: the compress(1) LZW format: magic 1F 9D,
-    a flags byte (max code bits, block mode), variable-width codes packed LSB first; when
-    the width grows or a CLEAR code (256) arrives, the rest of the current group of 8 codes
-    is padding]."""
-    if len(data) < 3 or data[0] != 0x1F or data[1] != 0x9D:
-        raise ValueError("not compress (.Z) data")
-    flags = data[2]
-    max_bits = flags & 0x1F
-    block_mode = bool(flags & 0x80)
-    if not 9 <= max_bits <= 16:
-        raise ValueError(f"unsupported LZW code size {max_bits}")
-    body = bytes(data[3:]) + b"\0\0\0"
-    total_bits = (len(data) - 3) * 8
-    out = bytearray()
-    base = 257 if block_mode else 256
-    table: list[bytes] = [bytes([i]) for i in range(256)] + ([b""] if block_mode else [])
-    bits = 9
-    mask = (1 << bits) - 1
-    bit = 0
-    in_group = 0
-    prev = b""
-    have_prev = False
-    while bit + bits <= total_bits:
-        byte = bit >> 3
-        code = (int.from_bytes(body[byte:byte + 3], "little") >> (bit & 7)) & mask
-        bit += bits
-        in_group += 1
-        if block_mode and code == 256:
-            bit += ((8 - in_group % 8) % 8) * bits
-            del table[base:]
-            bits, mask, in_group, have_prev = 9, 511, 0, False
-            continue
-        n_table = len(table)
-        if code < n_table:
-            entry = table[code]
-            if have_prev:
-                table.append(prev + entry[:1])
-        elif code == n_table and have_prev:
-            entry = prev + prev[:1]
-            table.append(entry)
-        else:
-            raise ValueError("corrupt LZW stream")
-        out += entry
-        prev = entry
-        have_prev = True
-        if len(table) > mask and bits < max_bits:
-            bit += ((8 - in_group % 8) % 8) * bits
-            bits += 1
-            mask = (1 << bits) - 1
-            in_group = 0
-    return bytes(out)
-
-
 def _read_text(p: Path) -> str:
     name = str(p)
     try:
         raw = p.read_bytes()
     except OSError as exc:
         raise OrbitFormatError(f"cannot read the file: {exc.strerror or exc}", file=name) from None
-    if raw[:2] == b"\x1f\x9d":
-        data = None
-        gz = shutil.which("gzip")
-        if gz:
-            res = subprocess.run([gz, "-dc", name], capture_output=True, check=False)
-            if res.returncode == 0 and res.stdout:
-                data = res.stdout
-        if data is None:
-            try:
-                data = unlzw(raw)
-            except ValueError as exc:
-                raise OrbitFormatError(f"cannot expand the .Z file: {exc}", file=name) from None
-        raw = data
-    elif raw[:2] == b"\x1f\x8b":
-        try:
-            raw = gzip.decompress(raw)
-        except (OSError, EOFError) as exc:
-            raise OrbitFormatError(f"cannot expand the .gz file: {exc}", file=name) from None
-    return raw.decode("ascii", errors="replace")
+    return expand(raw, name).decode("ascii", errors="replace")
 
 
 def _epoch_gps_s(text: str, time_system: str, name: str, lineno: int) -> float:
