@@ -1,9 +1,11 @@
 """The common in-memory form of orbit data, whatever file it came from.
 
-Every reader (YUMA, SEM, TLE) returns an :class:`OrbitSet`: one :class:`OrbitEntry` per
-satellite, each with a :class:`SatelliteInfo` (identity, health, source, epoch) and either
-an :class:`AlmanacRecord` (IS-GPS-200 almanac elements, SI units, radians) or an SGP4
-``Satrec`` built from a TLE. Sets from several files merge with :meth:`OrbitSet.merge`.
+Every reader (YUMA, SEM, TLE, RINEX navigation) returns an :class:`OrbitSet`: one
+:class:`OrbitEntry` per satellite, each with a :class:`SatelliteInfo` (identity, health,
+source, epoch) and either an :class:`AlmanacRecord` (IS-GPS-200 almanac elements, SI
+units, radians), an SGP4 ``Satrec`` built from a TLE, or the satellite's broadcast
+ephemeris records (``broadcast``: RINEX navigation records in toe order, see
+:mod:`core.orbits.broadcast`). Sets from several files merge with :meth:`OrbitSet.merge`.
 """
 
 from __future__ import annotations
@@ -13,7 +15,7 @@ from typing import Literal
 
 from sgp4.api import Satrec
 
-SourceKind = Literal["almanac", "tle"]
+SourceKind = Literal["almanac", "tle", "broadcast"]
 
 
 @dataclass(frozen=True)
@@ -25,7 +27,7 @@ class SatelliteInfo:
     name: str                   # name as written in the file (TLE) or "PRN-13" (almanac)
     source_kind: SourceKind
     source_file: str
-    epoch_unix_s: float         # UTC POSIX seconds of toa (almanac) or TLE epoch
+    epoch_unix_s: float         # UTC POSIX s of toa (almanac), TLE epoch, median toe (broadcast)
     healthy: bool = True
     health_code: int = 0
     norad_id: int | None = None
@@ -57,6 +59,8 @@ class OrbitEntry:
     almanac: AlmanacRecord | None = None
     satrec: Satrec | None = None
     tle_lines: tuple[str, str] | None = None
+    # Broadcast records (readers.rinex_nav GpsEphemerisRecord / GlonassRecord), toe order.
+    broadcast: tuple | None = None
 
     @property
     def sat_id(self) -> str:
@@ -68,7 +72,7 @@ class OrbitFileInfo:
     """What was read from one file."""
 
     path: str
-    format: str                 # "YUMA", "SEM", "TLE"
+    format: str                 # "YUMA", "SEM", "TLE", "RINEX 3.04 NAV"
     n_satellites: int
     epoch_unix_s: float         # median epoch of the file's records (UTC POSIX s)
     week_raw: int | None = None

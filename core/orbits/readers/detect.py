@@ -4,7 +4,12 @@ Recognition, in this order (file names and extensions are not used):
 
 * YUMA: a line ``**** Week N almanac for PRN-XX ****``;
 * TLE: a line starting ``1 `` of at least 69 columns followed by a line starting ``2 ``;
-* SEM: first line ``<count> <title>``, second line ``<week> <toa>``, then a PRN.
+* SEM: first line ``<count> <title>``, second line ``<week> <toa>``, then a PRN;
+* RINEX navigation (2.x, 3.x; GPS, Galileo, BeiDou, QZSS, GLONASS): a first line
+  ``RINEX VERSION / TYPE`` of type N (or G, RINEX 2 GLONASS).
+
+Compressed files (gzip ``.gz``, Unix compress ``.Z``) are expanded first, recognised from
+their first bytes (:mod:`.compressed`).
 
 Reference time (the planned start; a timezone-aware datetime or UTC POSIX seconds) places
 the 10-bit almanac weeks in their 1024-week era (:func:`core.timeutil.resolve_week`) and
@@ -21,20 +26,23 @@ from pathlib import Path
 
 from ...ground.errors import InputError, OrbitFormatError
 from ..orbit_set import OrbitSet
+from .broadcast_set import parse_broadcast
+from .compressed import expand
 from .identity import glonass_k_warning
 from .mapping import as_mapping
+from .rinex_nav import is_rinex_nav
 from .sem import is_sem, parse_sem
 from .tle import is_tle, parse_tle, with_reference
 from .yuma import is_yuma, parse_yuma, reference_to_unix_s
 
 MappingArg = str | Path | Mapping[int, tuple[str, int | None]] | None
 
-_COMPRESSED = ((b"\x1f\x8b", "gzip"), (b"\x1f\x9d", "Unix compress (.Z)"),
-               (b"PK\x03\x04", "zip"), (b"BZh", "bzip2"), (b"\xfd7zXZ", "xz"))
 
 
 def detect_format(text: str) -> str | None:
-    """'YUMA', 'TLE' or 'SEM' from the text, or None when it is none of them."""
+    """'YUMA', 'TLE', 'SEM' or 'RINEX-NAV' from the text, or None when it is none of them."""
+    if is_rinex_nav(text):
+        return "RINEX-NAV"
     if is_yuma(text):
         return "YUMA"
     if is_tle(text):
@@ -60,10 +68,7 @@ def read_text(path: str | Path) -> str:
         raise OrbitFormatError(f"cannot read the file ({exc.strerror or exc})", file=src) from None
     if not data.strip():
         raise OrbitFormatError("the file is empty", file=src)
-    for magic, kind in _COMPRESSED:
-        if data.startswith(magic):
-            raise OrbitFormatError(f"this is a {kind} compressed file; decompress it first",
-                                   file=src)
+    data = expand(data, src)
     if b"\x00" in data:
         raise OrbitFormatError("binary data, not a text orbit file", file=src)
     try:
@@ -83,18 +88,21 @@ def parse_orbits(text: str, source: str, reference_time: datetime | float | None
         return parse_yuma(text, source, reference_unix_s, strict=strict)
     if fmt == "SEM":
         return parse_sem(text, source, reference_unix_s, strict=strict)
+    if fmt == "RINEX-NAV":
+        return parse_broadcast(text, source, reference_unix_s)
     if fmt == "TLE":
         return with_reference(parse_tle(text, source, mapping, strict=strict,
                                         k_warning=k_warning), reference_unix_s)
     if not text.strip():
         raise OrbitFormatError("the file is empty", file=source)
-    raise OrbitFormatError("not a YUMA, SEM or TLE orbit file (no YUMA record header, no TLE "
-                           "line pair, no SEM header)", file=source, line=1, field="format")
+    raise OrbitFormatError("not a YUMA, SEM, TLE or RINEX navigation orbit file (no YUMA "
+                           "record header, no TLE line pair, no SEM header, no RINEX header)",
+                           file=source, line=1, field="format")
 
 
 def load_orbits(path: str | Path, reference_time: datetime | float | None = None,
                 mapping: MappingArg = None, *, strict: bool = True) -> OrbitSet:
-    """Read one YUMA, SEM or TLE file into an OrbitSet.
+    """Read one YUMA, SEM, TLE or RINEX navigation file (plain, .gz or .Z) into an OrbitSet.
 
     ``reference_time``: the planned start (aware datetime or UTC POSIX seconds), used to
     resolve 10-bit almanac weeks and to compute the data age. ``mapping``: a mapping file
