@@ -41,6 +41,7 @@ if str(REPO) not in sys.path:
 from core.ground.constants import SECONDS_PER_DAY, SECONDS_PER_WEEK, SPEED_OF_LIGHT_M_S  # noqa: E402
 from core.ground.geodesy import Site  # noqa: E402
 from core.ground.timeutil import gps_to_unix_s, iso_z, unix_to_gps_s  # noqa: E402
+from core.orbits.broadcast import orbit_data_age_s, select_records  # noqa: E402
 from core.orbits.ephemeris_model import (  # noqa: E402
     EphemerisArrays,
     broadcast_states,
@@ -73,8 +74,10 @@ MANOEUVRE_SQRT_A = 0.1
 FIT = {
     "almanac": dict(horizon_d=14.0, doppler_floor=0.5, range_floor=500.0, safety=1.25),
     "tle": dict(horizon_d=7.0, doppler_floor=1.0, range_floor=1000.0, safety=1.25),
+    # Broadcast records are used within +-2 h of toe at most (GPS, Galileo): the horizon.
+    "broadcast": dict(horizon_d=2.0 / 24.0, doppler_floor=0.0, range_floor=0.0, safety=1.25),
 }
-AGE_BINS_D = (0.0, 0.5, 1.0, 1.5, 2.0, 3.0, 4.0, 5.0, 10.0, 20.0, 40.0, 100.0, 300.0)
+AGE_BINS_D = (0.0, 0.5 / 24, 1.0 / 24, 1.5 / 24, 2.0 / 24, 0.5, 1.0, 1.5, 2.0, 3.0, 4.0, 5.0, 10.0, 20.0, 40.0, 100.0, 300.0)
 
 
 def ordered(orbits: OrbitSet, ids: list[str]) -> OrbitSet:
@@ -300,26 +303,82 @@ def load_pairs(data: Path, step_s: float = 900.0, short_step_s: float = 300.0,
                           "CelesTrak TLE 2014-10-29 vs broadcast 2014-10-31",
                           "pair 6: 0.6-3.5 km", ordered(tle, ids), ids, gps_to_unix_s(gps),
                           pos, vel, clk))
+    pairs.extend(broadcast_pairs(data, short_step_s, want))
     return pairs
+
+
+def _sp3_pair(key: str, title: str, readme: str, nav_path: Path, sp3_path: Path,
+              systems: str, step_s: float) -> Pair:
+    """Broadcast entries (the planner's own reader, screen and record choice) against an
+    SP3 file, on the SP3 interior (5 nodes from each end, for the 10-point interpolation)."""
+    sp3 = read_sp3(sp3_path)
+    gps = grid(sp3.gps_s[4], sp3.gps_s[-5], step_s)
+    nav = load_orbits(nav_path, reference_time=float(gps_to_unix_s(gps[gps.size // 2])))
+    ids = [e.sat_id for e in nav.entries if e.info.healthy and e.info.system in systems
+           and e.sat_id in sp3.sat_ids]
+    sub = sp3.select(ids)
+    pos, vel = interpolate_sp3(sub, gps)
+    return Pair(key, "broadcast", title, readme, ordered(nav, ids), ids, gps_to_unix_s(gps),
+                pos, vel, interpolate_clock(sub, gps))
+
+
+def broadcast_pairs(data: Path, step_s: float, want) -> list[Pair]:
+    """Broadcast ephemeris (RINEX navigation) against precise orbits (data README pairs 7
+    and 10, and the CODE MGEX SP3 of 2021-04-28 with the same day's broadcast file)."""
+    out: list[Pair] = []
+    if want("bc_brdc1820_igs"):
+        out.append(_sp3_pair("bc_brdc1820_igs", "broadcast brdc1820.10n vs IGS final 2010-07-01",
+                             "pair 7: median 1.6 m, max 5 m",
+                             data / "rinex-nav" / "rtklib_brdc1820.10n",
+                             data / "sp3" / "rtklib_igs15904.sp3", "G", step_s))
+    if want("bc_brdc1180_cod"):
+        out.append(_sp3_pair("bc_brdc1180_cod", "broadcast brdc1180.21n vs CODE MGEX 2021-04-28",
+                             "pair 9 (same day)", data / "rinex-nav" / "gnsslibpy_brdc1180.21n",
+                             data / "sp3" / "gnsslibpy_COD0MGXFIN_20211180000_01D_05M_ORB.SP3",
+                             "G", step_s))
+    if want("bc_brdm_rap"):
+        # Three SP3 epochs only (5 min apart): too few to interpolate a velocity. Truth at
+        # the middle epoch: SP3 position; velocity = broadcast velocity minus the rate of
+        # the broadcast-minus-SP3 difference (central difference over +-5 min: the
+        # difference changes slowly, so this is accurate where differencing positions
+        # alone is not).
+        sp3 = read_sp3(data / "sp3" / "gnsslibpy_COD0OPSRAP_20230730000_01D_05M_ORB.SP3")
+        nav = load_orbits(data / "rinex-nav" / "gnsslibpy_BRDM00DLR_S_20230730000_01D_MN.rnx",
+                          reference_time=float(gps_to_unix_s(sp3.gps_s[1])))
+        ids = [e.sat_id for e in nav.entries if e.info.healthy and e.sat_id in sp3.sat_ids]
+        test = ordered(nav, ids)
+        u = gps_to_unix_s(sp3.gps_s)
+        bpos, bvel, _, _ = propagate_ecef(test, u)
+        truth = sp3.select(ids).pos_m
+        delta = bpos - truth
+        h = sp3.gps_s[1] - sp3.gps_s[0]
+        central = (delta[:, 2] - delta[:, 0]) / (2.0 * h)
+        # GLONASS records (+-15 min) do not reach 00:00: the forward difference there.
+        forward = (delta[:, 2] - delta[:, 1]) / h
+        diff_rate = np.where(np.isfinite(central), central, forward)
+        out.append(Pair("bc_brdm_rap", "broadcast",
+                        "broadcast BRDM00DLR vs CODE rapid 2023-03-14 00:05 (G, R, E)",
+                        "pair 10", test, ids, u[1:2], truth[:, 1:2],
+                        (bvel[:, 1] - diff_rate)[:, None, :]))
+    return out
 
 
 def evaluate(pair: Pair, sites: tuple[Site, ...] = SITES, mask_deg: float = MASK_DEG) -> Samples:
     """Errors of the planner's prediction from ``pair.test`` against the truth states."""
-    epoch = np.array([e.info.epoch_unix_s for e in pair.test.entries])
-    age = (pair.unix_s[None, :] - epoch[:, None]) / SECONDS_PER_DAY          # (S, T)
+    age = orbit_data_age_s(pair.test, pair.unix_s) / SECONDS_PER_DAY         # (S, T)
     out: dict[str, list[np.ndarray]] = {k: [] for k in
                                         ("age", "pos", "rng", "dop", "sat", "site", "el")}
     for k, site in enumerate(sites):
         pred = predict(pair.test, site, pair.unix_s, keep_states=True)
-        if not np.allclose(pred.carrier_hz, L1_HZ):       # all tested sets here are GPS
-            raise RuntimeError(f"{pair.key}: a satellite is not predicted at L1")
+        # Doppler errors are compared at GPS L1 (GLONASS and other carriers rescaled).
+        dop_l1 = pred.doppler_hz * (L1_HZ / pred.carrier_hz)[:, None]
         r0, d0, el0 = line_of_sight(pair.truth_pos_m, pair.truth_vel_m_s, site, L1_HZ)
         ok = pred.valid & np.isfinite(r0) & np.isfinite(d0) & (el0 >= mask_deg)
         s_idx, _ = np.nonzero(ok)
         out["age"].append(age[ok])
         out["pos"].append(np.linalg.norm(pred.sat_pos_ecef_m - pair.truth_pos_m, axis=-1)[ok])
         out["rng"].append((pred.range_m - r0)[ok])
-        out["dop"].append((pred.doppler_hz - d0)[ok])
+        out["dop"].append((dop_l1 - d0)[ok])
         out["sat"].append(np.array(pair.ids)[s_idx])
         out["site"].append(np.full(s_idx.size, k))
         out["el"].append(el0[ok])
@@ -364,6 +423,25 @@ def almanac_clock_errors(pair: Pair) -> np.ndarray | None:
         a = e.almanac
         dt = gps - (a.week_full * SECONDS_PER_WEEK + a.toa_s)
         rows.append(a.af0_s + a.af1_s_s * dt)
+    return np.array(rows) - pair.truth_clock_s
+
+
+def broadcast_clock_errors(pair: Pair) -> np.ndarray | None:
+    """Clock of the broadcast record in force (af0 + af1 dt + af2 dt^2, dt = t - toc) minus
+    the SP3 clock, seconds, (S, T). Neither side holds the periodic relativistic term."""
+    if pair.kind != "broadcast" or pair.truth_clock_s is None:
+        return None
+    gps = unix_to_gps_s(pair.unix_s)
+    rows = []
+    for e in pair.test.entries:
+        idx = select_records(e.broadcast, gps)
+        row = np.full(gps.size, np.nan)
+        for k in np.unique(idx[idx >= 0]):
+            r = e.broadcast[k]
+            m = idx == k
+            dt = gps[m] - r.toc_gps_s
+            row[m] = r.af0_s + r.af1_s_s * dt + r.af2_s_s2 * dt * dt
+        rows.append(row)
     return np.array(rows) - pair.truth_clock_s
 
 
@@ -498,6 +576,25 @@ def main(argv: list[str] | None = None) -> int:
         extra = f"; {p.note}" if p.note else ""
         print(f"- {p.key}: {p.title}; README: {p.readme}{extra}")
 
+    print("\n## Broadcast pairs per system (metres and millihertz)\n")
+    rows = []
+    for s in samples:
+        if s.pair.kind != "broadcast":
+            continue
+        for letter in "GRECJ":
+            m = np.array([x.startswith(letter) for x in s.sat])
+            if not m.any():
+                continue
+            pm, p95, px = stats(s.pos_err_m[m])
+            rm, r95, rx = stats(s.range_err_m[m])
+            dm, d95, dx = stats(s.doppler_err_hz[m])
+            rows.append([s.pair.key, letter, f"{len(np.unique(s.sat[m]))}", f"{m.sum()}",
+                         f"{np.abs(s.age_d[m]).max() * 24:.2f}",
+                         f"{pm:.2f} / {p95:.2f} / {px:.2f}", f"{rm:.2f} / {r95:.2f} / {rx:.2f}",
+                         f"{dm * 1e3:.2f} / {d95 * 1e3:.2f} / {dx * 1e3:.2f}"])
+    print_table(rows, ["pair", "system", "sats", "samples", "max |age| h", "3-D m med/95/max",
+                       "range m med/95/max", "L1 Doppler mHz med/95/max"])
+
     print("\n## Satellite-epoch 3-D orbit errors (no sites, no mask), for the README figures\n")
     for p in pairs:
         pos, _, _, _ = propagate_ecef(p.test, p.unix_s)
@@ -511,7 +608,7 @@ def main(argv: list[str] | None = None) -> int:
     print(f"\nproxy-truth bounds added to proxy samples in the fit: almanac "
           f"{bounds['almanac'][0]:.2f} Hz / {bounds['almanac'][1]:.0f} m; tle "
           f"{bounds['tle'][0]:.2f} Hz / {bounds['tle'][1]:.0f} m")
-    for kind in ("almanac", "tle"):
+    for kind in ("almanac", "tle", "broadcast"):
         ks = [s for s in samples if s.pair.kind == kind]
         fitted_s = [s for s in ks if s.pair.in_fit]
         age = np.concatenate([s.age_d for s in fitted_s])
@@ -536,8 +633,8 @@ def main(argv: list[str] | None = None) -> int:
         print(f"\nfit ({kind}: {fa.size} samples, |age| up to {fa.max():.2f} d; horizon "
               f"{f['horizon_d']:g} d, rate floors {f['doppler_floor']:g} Hz/d and "
               f"{f['range_floor']:g} m/d, safety x{f['safety']:g}):")
-        print(f"  base_hz_l1={b_hz:.3f}, rate_hz_l1_per_day={r_hz:.3f}, "
-              f"base_range_m={b_m:.1f}, rate_range_m_per_day={r_m:.1f}")
+        print(f"  base_hz_l1={b_hz:.4f}, rate_hz_l1_per_day={r_hz:.4f}, "
+              f"base_range_m={b_m:.2f}, rate_range_m_per_day={r_m:.2f}")
         model = DEFAULT_MARGINS[kind]
         with np.errstate(divide="ignore", invalid="ignore"):
             cov_d = fd / model.margin_hz(fa * SECONDS_PER_DAY)
@@ -571,6 +668,14 @@ def main(argv: list[str] | None = None) -> int:
         cm = np.abs(c[ok]) * SPEED_OF_LIGHT_M_S
         print(f"- {p.key}: median {np.median(cm):.0f} m, 95% {np.percentile(cm, 95):.0f} m, "
               f"max {cm.max():.0f} m ({ok.sum()} satellite-epochs)")
+    for p in pairs:
+        c = broadcast_clock_errors(p)
+        if c is None:
+            continue
+        ok = np.isfinite(c)
+        cm = np.abs(c[ok]) * SPEED_OF_LIGHT_M_S
+        print(f"- {p.key} (broadcast af0 + af1 dt + af2 dt^2): median {np.median(cm):.2f} m, "
+              f"95% {np.percentile(cm, 95):.2f} m, max {cm.max():.2f} m ({ok.sum()} satellite-epochs)")
     tle_clk = [np.abs(p.truth_clock_s) for p in pairs
                if p.kind == "tle" and p.truth_clock_s is not None]
     if tle_clk:

@@ -23,6 +23,7 @@ from core.ground.errors import InputError, OrbitFormatError
 from core.ground.geodesy import Site
 from core.ground.signals import SIGNALS
 from core.ground.timeutil import gps_to_unix_s
+from core.orbits.broadcast import orbit_data_age_s
 from core.orbits.ephemeris_model import (
     EphemerisArrays,
     broadcast_states,
@@ -106,13 +107,15 @@ def test_rinex3_blank_padded_prn_and_mixed_file():
 
 
 @realdata
-def test_rinex_qzss_health_mask_and_glonass_refused():
+def test_rinex_qzss_health_mask_and_glonass_file():
     q = read_rinex_nav(NAV / "rtklib_brdc3050.12q")
     # README oddities: QZSS RINEX 2.12 'J 1', health value 1 to be masked (svh & 0xFE).
     assert q.sat_ids() == ["J01"]
     assert {r.health_raw for r in q.records} == {1} and all(r.healthy for r in q.records)
-    with pytest.raises(OrbitFormatError, match="GLONASS"):
+    # The GLONASS 'G' file is read when GLONASS is asked for; the GPS-only call finds none.
+    with pytest.raises(OrbitFormatError, match="no navigation records"):
         read_rinex_nav(NAV / "rtklib_brdc3050.12g")
+    assert len(read_rinex_nav(NAV / "rtklib_brdc3050.12g", ("R",)).glonass) > 1000
 
 
 @realdata
@@ -283,13 +286,14 @@ def pair_errors():
     pairs = [p for p in mod.load_pairs(ORBIT_DATA, step_s=3600.0, short_step_s=600.0) if p.in_fit]
     out = []
     for p in pairs:
-        epoch = np.array([e.info.epoch_unix_s for e in p.test.entries])
-        age_s = p.unix_s[None, :] - epoch[:, None]
+        # Age: time minus the data epoch; broadcast: minus the toe of the record in force.
+        age_s = orbit_data_age_s(p.test, p.unix_s)
         for site in SITES_SUBSET:
             pred = predict(p.test, site, p.unix_s)
             rng, dop, el = _truth_geometry(p.truth_pos_m, p.truth_vel_m_s, site)
-            ok = pred.valid & np.isfinite(rng) & (el >= 5.0)
-            out.append((p.key, p.kind, p.proxy, age_s[ok], np.abs(pred.doppler_hz - dop)[ok],
+            dop_l1 = pred.doppler_hz * (L1_HZ / pred.carrier_hz)[:, None]   # GLONASS rescaled
+            ok = pred.valid & np.isfinite(rng) & np.isfinite(dop) & (el >= 5.0)
+            out.append((p.key, p.kind, p.proxy, age_s[ok], np.abs(dop_l1 - dop)[ok],
                         np.abs(pred.range_m - rng)[ok]))
     return out
 
@@ -302,12 +306,12 @@ def test_margin_covers_every_observed_error(pair_errors):
     keys = {k for k, *_ in pair_errors}
     assert {"alm819_sp3", "alm862_prn14", "alm862_at_toa866", "alm866_at_toa862",
             "tle_rtklib_brdc", "tle_spacetrack_brdc", "tle_satkml_rinex3",
-            "tle3gps_at_toa866"} <= keys
+            "tle3gps_at_toa866", "bc_brdc1820_igs", "bc_brdc1180_cod", "bc_brdm_rap"} <= keys
     ref = [x for x in pair_errors if x[0] == "alm819_sp3"]
     bound_hz = max(float(x[4].max()) for x in ref)
     bound_m = max(float(x[5].max()) for x in ref)
     assert bound_hz < 1.5 and bound_m < 2000.0
-    worst = {"almanac": 0.0, "tle": 0.0}
+    worst = {"almanac": 0.0, "tle": 0.0, "broadcast": 0.0}
     n = 0
     for key, kind, proxy, age_s, dop, rng in pair_errors:
         if not age_s.size:
@@ -323,16 +327,18 @@ def test_margin_covers_every_observed_error(pair_errors):
     assert n > 5000
     # The constants are a fit (x1.25 safety), not an arbitrary pad: the worst sample uses
     # more than 60 % of the margin (measured 0.80 on the full grid).
-    assert worst["almanac"] > 0.6 and worst["tle"] > 0.6
+    assert worst["almanac"] > 0.6 and worst["tle"] > 0.6 and worst["broadcast"] > 0.6
 
 
 @realdata
 def test_margin_ages_span_the_data(pair_errors):
     ages = {k: np.concatenate([np.abs(a) for kk, kind, _, a, *_ in pair_errors if kind == k])
-            / SECONDS_PER_DAY for k in ("almanac", "tle")}
+            / SECONDS_PER_DAY for k in ("almanac", "tle", "broadcast")}
     # The fit used almanac ages 0.7 to 31.6 days and TLE ages 0 to 9.5 days.
     assert ages["almanac"].min() < 1.0 and ages["almanac"].max() > 30.0
     assert ages["tle"].min() < 0.1 and ages["tle"].max() > 8.5
+    # Broadcast: |t - toe| of the record in force, up to 1.7 h in the pairs.
+    assert ages["broadcast"].min() < 0.01 and ages["broadcast"].max() > 1.0 / 24.0
     for k in ages:
         assert DEFAULT_MARGINS[k].fitted_max_age_days >= ages[k].max() - 0.1
 

@@ -57,17 +57,26 @@ def _nearest_toe(records: Sequence, gps_s: np.ndarray) -> np.ndarray:
     return toe[k]
 
 
+def coverage_warning(entry: OrbitEntry, n_missing: int, first_unix_s: float, n_t: int) -> str:
+    """The message for instants of a broadcast entry that no record covers."""
+    toes = [r.toe_gps_s for r in _pool(entry.broadcast or ())]
+    span = (f" (its records cover {iso_z(float(gps_to_unix_s(min(toes))), 0)} to "
+            f"{iso_z(float(gps_to_unix_s(max(toes))), 0)} +- the fit interval)" if toes else "")
+    return (f"{entry.info.sat_id}: no valid broadcast record for {n_missing} of {n_t} samples "
+            f"from {iso_z(first_unix_s, 0)}{span}; those samples are left out: use an almanac "
+            "or a newer navigation file for them")
+
+
 def broadcast_ecef(entries: Sequence[OrbitEntry], unix_s: np.ndarray
-                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[str]]:
-    """Position (m), velocity (m/s), (S, T, 3), the index of the record used (S, T; -1
-    where none) and warnings, for broadcast entries at UTC POSIX times ``unix_s``."""
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Position (m), velocity (m/s), (S, T, 3), and the index of the record used (S, T;
+    -1 where none is: NaN states) for broadcast entries at UTC POSIX times ``unix_s``."""
     u = np.atleast_1d(np.asarray(unix_s, dtype=float))
     gps = np.asarray(unix_to_gps_s(u), dtype=float)
     n_s, n_t = len(entries), u.size
     pos = np.full((n_s, n_t, 3), np.nan)
     vel = np.full((n_s, n_t, 3), np.nan)
     used = np.full((n_s, n_t), -1, dtype=int)
-    warnings: list[str] = []
     kep_recs: list[GpsEphemerisRecord] = []
     kep_rows: list[np.ndarray] = []
     glo_rows: list[tuple[int, np.ndarray, np.ndarray]] = []
@@ -76,14 +85,6 @@ def broadcast_ecef(entries: Sequence[OrbitEntry], unix_s: np.ndarray
         idx = select_records(recs, gps)
         used[s] = idx
         missing = idx < 0
-        if missing.any() and recs:
-            toes = [r.toe_gps_s for r in _pool(recs)]
-            warnings.append(
-                f"{e.info.sat_id}: no valid broadcast record for {int(missing.sum())} of {n_t} "
-                f"samples from {iso_z(float(u[np.argmax(missing)]), 0)} (its records cover "
-                f"{iso_z(float(gps_to_unix_s(min(toes))), 0)} to "
-                f"{iso_z(float(gps_to_unix_s(max(toes))), 0)} +- the fit interval); those "
-                "samples are left out: use an almanac or a newer navigation file for them")
         for k in np.unique(idx[~missing]):
             cols = np.nonzero(idx == k)[0]
             rec = recs[k]
@@ -112,7 +113,7 @@ def broadcast_ecef(entries: Sequence[OrbitEntry], unix_s: np.ndarray
         p, v = glonass_ecef(p0, v0, a0, dt)
         pos[s_all, c_all] = p
         vel[s_all, c_all] = v
-    return pos, vel, used, warnings
+    return pos, vel, used
 
 
 def orbit_data_age_s(orbits: OrbitSet, unix_s: np.ndarray) -> np.ndarray:
@@ -144,8 +145,7 @@ class RecordUse:
 
     def to_dict(self) -> dict:
         return {"toe": iso_z(self.toe_unix_s, 0), "iod": self.issue, "line": self.line,
-                "healthy": self.healthy, "from": iso_z(self.first_unix_s, 0),
-                "to": iso_z(self.last_unix_s, 0)}
+                "from": iso_z(self.first_unix_s, 0), "to": iso_z(self.last_unix_s, 0)}
 
 
 def records_in_use(entry: OrbitEntry, unix_s: np.ndarray) -> list[RecordUse]:

@@ -23,6 +23,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -36,7 +37,9 @@ from ..ground.constants import (
     GPS_MU_M3_S2,
 )
 from .almanac_model import solve_kepler
-from .readers.rinex_nav import GpsEphemerisRecord
+
+if TYPE_CHECKING:       # records come from readers.rinex_nav, which imports nothing from here
+    from .readers.rinex_nav import GpsEphemerisRecord
 
 # Each system's constants for its own user algorithm (core.ground.constants has the sources;
 # QZSS uses the GPS values).

@@ -1,4 +1,4 @@
-"""How wrong almanac and TLE orbits are, as Doppler and range margins that grow with age.
+"""How wrong almanac, TLE and broadcast orbits are, as Doppler and range margins that grow with age.
 
 The planner widens every Doppler window by ``orbit_margin_hz`` and every code-phase window
 by ``orbit_range_margin_m`` for the error of the orbit data itself. Both are straight
@@ -72,6 +72,10 @@ class OrbitMarginModel:
 #            (2.8-4.3 d); orekit_3gps_2016-03-24 vs YUMA week 866 at its TOA (7.8-9.5 d, proxy).
 #            Fit: 8.11 Hz + 1.25 Hz/d, 8149 m + 1250 m/d; the growth rates are the floors
 #            (1 Hz/d, 1 km/d, x1.25) because the data shows no growth up to 9.5 days.
+#   broadcast: rtklib_brdc1820.10n vs rtklib_igs15904.sp3 (2010-07-01), gnsslibpy_brdc1180.21n
+#            vs the CODE MGEX SP3 (2021-04-28 18-24 h), BRDM00DLR vs CODE rapid (2023-03-14
+#            00:05; GPS, GLONASS, Galileo); |age| = |t - toe of the record in force| up to
+#            1.7 h. Fit: 0.0029 Hz, 3.27 m, no growth within the fit interval (x1.25).
 # Errors at 12 sites (latitudes -78..+78 deg), satellites above 5 deg elevation.
 DEFAULT_MARGINS: dict[str, OrbitMarginModel] = {
     "almanac": OrbitMarginModel(base_hz_l1=0.2, rate_hz_l1_per_day=1.0,
@@ -80,7 +84,14 @@ DEFAULT_MARGINS: dict[str, OrbitMarginModel] = {
     "tle": OrbitMarginModel(base_hz_l1=8.2, rate_hz_l1_per_day=1.25,
                             base_range_m=8200.0, rate_range_m_per_day=1250.0,
                             fitted_max_age_days=9.5),
+    "broadcast": OrbitMarginModel(base_hz_l1=0.003, rate_hz_l1_per_day=0.0,
+                                  base_range_m=3.3, rate_range_m_per_day=0.0,
+                                  fitted_max_age_days=2.0 / 24.0),
 }
+
+# Satellite clock of a broadcast record (af0 + af1 dt + af2 dt^2) against the SP3 clocks of
+# the broadcast pairs (scripts/derive_orbit_margin.py): max 4.44 m; x1.25, rounded up.
+BROADCAST_CLOCK_MARGIN_M = 6.0
 
 
 def _model(source_kind: str) -> OrbitMarginModel:
@@ -93,7 +104,8 @@ def _model(source_kind: str) -> OrbitMarginModel:
 
 def orbit_margin_hz(source_kind: str, age_s: ArrayLike, carrier_hz: ArrayLike = L1_HZ
                     ) -> np.ndarray:
-    """Doppler margin (Hz, +-) for orbit data of ``source_kind`` ('almanac' or 'tle')
+    """Doppler margin (Hz, +-) for orbit data of ``source_kind`` ('almanac', 'tle',
+    'broadcast')
     whose epoch is ``age_s`` from the planned time (sign ignored), at ``carrier_hz``.
     Broadcasts over age and carrier arrays."""
     return _model(source_kind).margin_hz(age_s, carrier_hz)

@@ -39,7 +39,14 @@ from ..ground.errors import Cancelled, ComputationError, InputError
 from ..ground.geodesy import Site
 from ..ground.signals import SIGNALS
 from ..ground.timeutil import TimeGrid, iso_z, time_grid
-from ..orbits.orbit_margin import L1_HZ, margin_extrapolated, orbit_margin_hz, orbit_range_margin_m
+from ..orbits.broadcast import RecordUse, orbit_data_age_s, records_in_use
+from ..orbits.orbit_margin import (
+    BROADCAST_CLOCK_MARGIN_M,
+    L1_HZ,
+    margin_extrapolated,
+    orbit_margin_hz,
+    orbit_range_margin_m,
+)
 from ..orbits.orbit_set import OrbitFileInfo, OrbitSet
 from ..search import bins as binlib
 from ..search import codephase, detection
@@ -221,6 +228,8 @@ class SatellitePlan:
     healthy: bool
     passes: list[Pass]
     search: SearchSummary | None
+    # Broadcast entries: the navigation records used over the window (core.orbits.broadcast).
+    broadcast_records: list[RecordUse] = field(default_factory=list)
 
 
 @dataclass
@@ -331,7 +340,7 @@ _uncertainty = acquisition_uncertainty     # the name the tests and the window k
 
 
 def _data_age_s(orbits: OrbitSet, at_unix_s: float) -> np.ndarray:
-    return np.array([at_unix_s - e.info.epoch_unix_s for e in orbits.entries])
+    return orbit_data_age_s(orbits, np.array([at_unix_s]))[:, 0]
 
 
 # --- the stages of a plan -----------------------------------------------------------------
@@ -354,8 +363,7 @@ def orbit_margins(search: SearchSpec, g: PreparedGeometry) -> OrbitMargins:
     """Stage 1: the Doppler and range margins for orbit-data error at each grid time."""
     pred, orbits, grid = g.prediction, g.orbits, g.grid
     n_s, n_t = pred.elevation_deg.shape
-    epochs = np.array([e.info.epoch_unix_s for e in orbits.entries])
-    age = grid.unix_s[None, :] - epochs[:, None]                     # (S, T) seconds
+    age = orbit_data_age_s(orbits, grid.unix_s)                      # (S, T) seconds
     kinds = tuple(e.info.source_kind for e in orbits.entries)
     if search.orbit_margin_hz is not None:
         margin_t = (np.full(n_s, float(search.orbit_margin_hz)) * pred.carrier_hz / L1_HZ)[:, None] \
@@ -506,10 +514,13 @@ def code_windows(sc: Scenario, g: PreparedGeometry, unc: Uncertainty,
         # in the TLE pairs of docs/orbit-margin.md), so fine time cannot narrow the code
         # window of a TLE satellite; almanac clock terms were off by 190 m at 1 day and
         # 1161 m at 27.8 days there: margin 200 m + 40 m per day of age.
-        is_alm = np.array(margins.kinds)[:, None] == "almanac"
-        clock_m = np.where(is_alm, 200.0 + 40.0 * np.abs(margins.age_s) / 86400.0, np.inf)
+        # A broadcast record's clock: BROADCAST_CLOCK_MARGIN_M (measured 4.4 m at most).
+        kinds = np.array(margins.kinds)[:, None]
+        is_alm = kinds == "almanac"
+        clock_m = np.where(is_alm, 200.0 + 40.0 * np.abs(margins.age_s) / 86400.0,
+                           np.where(kinds == "broadcast", BROADCAST_CLOCK_MARGIN_M, np.inf))
         range_margin = range_margin + clock_m
-        if not is_alm.all():
+        if (kinds == "tle").any():
             warnings.append("fine time does not narrow the code window of TLE satellites "
                             "(a TLE holds no satellite clock): they search the whole code")
     if fine is None:
@@ -697,7 +708,8 @@ def satellite_summaries(g: PreparedGeometry, integ: Integration, det: DetectionF
                 channel=seg.channel, acquired_unix_s=timeline.acquisition_unix_s.get(sid))
         sats.append(SatellitePlan(sid, g.signal_ids[s], e.info.system, float(pred.carrier_hz[s]),
                                   e.info.glonass_k, e.info.source_kind, float(ages[s]), e.info.healthy,
-                                  [p for p in g.passes if p.sat_id == sid], summary))
+                                  [p for p in g.passes if p.sat_id == sid], summary,
+                                  records_in_use(e, grid.unix_s)))
     return sats
 
 
@@ -921,7 +933,9 @@ def plan_to_json(plan: Plan) -> dict:
                      "passes": [p.to_dict() for p in sp.passes],
                      "window_terms_max_hz": shares,
                      "windows": windows,
-                     "search": None if sp.search is None else sp.search.to_dict()})
+                     "search": None if sp.search is None else sp.search.to_dict(),
+                     "broadcast_records": ([r.to_dict() for r in sp.broadcast_records]
+                                           if sp.source_kind == "broadcast" else None)})
     return {
         "scenario": plan.scenario.name,
         # sections the scenario file left out, so that all their values are defaults

@@ -1,7 +1,8 @@
 """Satellite geometry and Doppler at a site, vectorized over (satellite, time).
 
 ``predict`` propagates every satellite of an :class:`~core.orbits.OrbitSet` (almanac
-entries with the IS-GPS-200 model, TLE entries with SGP4) at every instant of a time
+entries with the IS-GPS-200 model, TLE entries with SGP4, broadcast entries with their
+system's broadcast model, :mod:`core.orbits.broadcast`) at every instant of a time
 grid and returns azimuth, elevation, range, range rate, Doppler and Doppler rate as
 (n_satellites, n_times) arrays. ``passes`` finds rise, culmination and set above an
 elevation mask, refined by bisection on the true model to a few milliseconds.
@@ -31,6 +32,7 @@ from ..ground.geodesy import Site, SitePath
 from ..ground.signals import DEFAULT_SIGNAL_FOR_SYSTEM, SIGNALS, get_signal
 from ..ground.timeutil import TimeGrid, as_time_grid, iso_z, to_unix_s, unix_to_gps_s
 from ..orbits.almanac_model import AlmanacArrays, almanac_ecef
+from ..orbits.broadcast import broadcast_ecef, coverage_warning
 from ..orbits.node_interp import interpolated_states, is_dense, samples_per_node, uniform_step_s
 from ..orbits.orbit_set import OrbitSet
 from ..orbits.sgp4_model import sgp4_ecef_planes, sgp4_error_text
@@ -141,7 +143,18 @@ def propagate_ecef(orbits: OrbitSet, unix_s: np.ndarray, *, failures: dict | Non
     vel = np.full((3, n_s, n_t), np.nan)
     alm_idx = [i for i, e in enumerate(orbits.entries) if e.almanac is not None]
     tle_idx = [i for i, e in enumerate(orbits.entries) if e.satrec is not None]
+    bc_idx = [i for i, e in enumerate(orbits.entries) if e.broadcast is not None]
     own = {} if failures is None else failures
+    if bc_idx:
+        # Broadcast records: evaluated directly (the record changes within a pass, so no
+        # node interpolation); instants no record covers stay NaN and are reported.
+        p, v, used = broadcast_ecef([orbits.entries[i] for i in bc_idx], u)
+        pos[:, bc_idx] = p.transpose(2, 0, 1)
+        vel[:, bc_idx] = v.transpose(2, 0, 1)
+        for row in np.nonzero((used < 0).any(axis=1))[0]:
+            bad = used[row] < 0
+            rec = own.setdefault(bc_idx[row], [0, float(u[np.argmax(bad)]), set()])
+            rec[0] += int(bad.sum())
     if alm_idx:
         arrays = AlmanacArrays.from_records([orbits.entries[i].almanac for i in alm_idx])
         # Interpolated only on grids of 4 or more samples per node (direct below that).
@@ -170,6 +183,9 @@ def failure_warnings(orbits: OrbitSet, failures: dict, n_t: int) -> list[str]:
     out = []
     for i in sorted(failures):
         count, first, codes = failures[i]
+        if orbits.entries[i].broadcast is not None:
+            out.append(coverage_warning(orbits.entries[i], count, first, n_t))
+            continue
         out.append(f"{orbits.entries[i].info.sat_id}: SGP4 failed on {count} of {n_t} samples "
                    f"from {iso_z(first)} ({'; '.join(sgp4_error_text(c) for c in sorted(codes))}); "
                    "those samples are left out")
@@ -177,8 +193,8 @@ def failure_warnings(orbits: OrbitSet, failures: dict, n_t: int) -> list[str]:
 
 
 def _mu_for(orbits: OrbitSet) -> np.ndarray:
-    return np.array([GPS_MU_M3_S2 if e.almanac is not None else WGS72_MU_M3_S2
-                     for e in orbits.entries])
+    return np.array([GPS_MU_M3_S2 if e.almanac is not None or e.broadcast is not None
+                     else WGS72_MU_M3_S2 for e in orbits.entries])
 
 
 def _geometry(pos: np.ndarray, vel: np.ndarray, mu: np.ndarray, site: Site, wavelength: np.ndarray,

@@ -102,7 +102,8 @@ def cmd_doppler(args) -> int:
 
 def _geometry_options(sp, step_required: bool) -> None:
     sp.add_argument("--orbits", action="append", required=True, metavar="FILE",
-                    help="YUMA, SEM or TLE file (repeat to mix constellations)")
+                    help="YUMA, SEM, TLE or RINEX navigation file, plain, .gz or .Z "
+                         "(repeat to mix constellations)")
     sp.add_argument("--mapping", metavar="FILE",
                     help="optional catalogue-number -> ID (and GLONASS k) mapping file")
     sp.add_argument("--skip-bad-records", action="store_true",
