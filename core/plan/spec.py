@@ -85,7 +85,7 @@ KEY_RULES: tuple[KeyRule, ...] = (
     _r("", "name", "text", "Untitled scenario", doc="title shown in the window and on reports"),
     _r("", "format_version", "integer", FORMAT_VERSION, 1, FORMAT_VERSION,
        doc="version of this file layout; written by acqplan"),
-    _r("orbits", "files", "paths", (), doc="almanac/TLE files, relative to the scenario file"),
+    _r("orbits", "files", "paths", (), doc="almanac, TLE or RINEX navigation files (plain, .gz, .Z), relative to the scenario file"),
     _r("orbits", "mapping", "path", None, doc="GLONASS mapping file (catalogue number, ID, channel k)"),
     _r("site", "lat_deg", "number", REQUIRED, *SITE_LAT_RANGE_DEG, "deg", doc="geodetic latitude, WGS-84"),
     _r("site", "lon_deg", "number", REQUIRED, *SITE_LON_RANGE_DEG, "deg", doc="longitude, east positive"),

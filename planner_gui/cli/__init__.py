@@ -36,7 +36,7 @@ __all__ = ["EXIT_BAD_INPUT", "EXIT_FAILURE", "EXIT_OK", "build_parser", "format_
 
 
 def build_parser() -> argparse.ArgumentParser:
-    p = Parser(prog="acqplan", description="Plan GNSS acquisition searches from almanac or TLE files.")
+    p = Parser(prog="acqplan", description="Plan GNSS acquisition searches from almanac, TLE or broadcast-ephemeris files.")
     p.add_argument("--version", action="version", version=f"acqplan {version()}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=Parser)
     for command in COMMANDS:
