@@ -93,6 +93,23 @@ def test_rinex_nav_is_an_orbit_file_kind(tmp_path):
 
 
 @realdata
+def test_every_real_navigation_file_loads():
+    # Satellite counts from the data README "Files" table (GLONASS .12g: 24, one record of
+    # R13 with the impossible channel 254 is dropped with a warning, R13 keeps its others),
+    # except 07590920.05n: 28 PRNs counted in the file (2005: no G12, G17, G31, G32).
+    counts = {"rtklib_brdc3050.12n": 32, "rtklib_brdc3050.12g": 24, "rtklib_brdc3050.12q": 1,
+              "rtklib_brdc1820.10n": 32, "gpstk_test_input_rinex3_76193040.14n": 9,
+              "gpstk_test_input_rinex_nav_TestInput1.16n": 1, "gnsslibpy_brdc1190.21n": 32,
+              "gnsslibpy_brdc1180.21n": 32, "rtklib_07590920.05n": 28}
+    for name, n in counts.items():
+        s = load_orbits(NAV / name)
+        assert len(s) == n, name
+    g = load_orbits(NAV / "rtklib_brdc3050.12g")
+    assert any("R13" in w and "254" in w for w in g.warnings)
+    assert all(e.info.glonass_k is not None and -7 <= e.info.glonass_k <= 6 for e in g.entries)
+
+
+@realdata
 def test_mixed_file_all_systems_and_glonass_channel():
     orbits = load_orbits(BRDM)
     # README: G01 G02 R01 R02 E01 E02 C01 C02 J02 J03 I02 I03 S22 S23; NavIC and SBAS skipped.

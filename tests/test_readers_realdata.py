@@ -183,8 +183,7 @@ def test_every_real_almanac_and_tle_file_loads(orbit_data):
 
 @pytest.mark.parametrize("name", ["tle/rtklib_prn_name.txt", "tle/rtklib_TLE_GNSS_SATNO.txt",
                                   "tle/sgp4_tcppver.out", "sp3/orekit_gbm18432.sp3.Z",
-                                  "sp3/rtklib_igs15904.sp3", "rinex-nav/rtklib_brdc3050.12n",
-                                  "eop/rtklib_igs17127.erp"])
+                                  "sp3/rtklib_igs15904.sp3", "eop/rtklib_igs17127.erp"])
 def test_non_orbit_files_give_a_clean_error(name):
     with pytest.raises(OrbitFormatError) as err:
         load_orbits(ORBIT_DATA / name)
