@@ -131,17 +131,11 @@ def position_gradient_ecef(pred: Prediction) -> np.ndarray:
 TAYLOR_LIMIT_S = 30.0
 
 
-def time_shifts_s(time_uncertainty_s: float, max_spacing_s: float = 15.0) -> np.ndarray:
-    """Offsets (s) at which to evaluate shifted predictions for a large time uncertainty."""
-    n = int(np.ceil(2.0 * time_uncertainty_s / max_spacing_s)) + 1
-    return np.linspace(-time_uncertainty_s, time_uncertainty_s, max(n, 3))
-
-
 @dataclass
 class ShiftSummary:
-    """What the windows need from predictions of the grid shifted by offsets covering
-    +-time_s, reduced as they are computed (memory of one prediction, not one per shift):
-    extremes of D(t + tau) - D(t), the largest |D''|, the largest position gradients."""
+    """What the windows need from the grid shifted by every offset within +-time_s (see
+    :func:`shift_summary`): extremes of D(t + tau) - D(t), the largest |D''|, the largest
+    position gradients, and the spacing of the samples they were taken from."""
 
     diff_min_hz: np.ndarray
     diff_max_hz: np.ndarray
@@ -382,30 +376,91 @@ def windows_after_first_acquisition(w: DopplerWindows, carrier_hz: np.ndarray,
     return DopplerWindows(w.nominal_hz, low, high, lows, highs)
 
 
-def shift_summary(orbits, site, times, time_uncertainty_s: float, signals=None
-                  ) -> ShiftSummary | None:
-    """Predictions on the grid moved by :func:`time_shifts_s`, reduced to a
-    :class:`ShiftSummary` as they are computed, when the time uncertainty is too large for
-    the expansion; None otherwise."""
+def _sliding(x: np.ndarray, half: int, fn) -> np.ndarray:
+    """Running extreme of (S, N) rows over windows i - half .. i + half (edges clipped)."""
+    from scipy.ndimage import maximum_filter1d, minimum_filter1d
+
+    f = maximum_filter1d if fn is np.maximum else minimum_filter1d
+    return f(x, size=2 * half + 1, axis=1, mode="nearest")
+
+
+def _shift_reduce(orbits, site, base: np.ndarray, dense_u: np.ndarray, r: int, half: int,
+                  dt: float, spacing: float, signals, out: dict[str, np.ndarray], a: int) -> None:
+    """One block of :func:`shift_summary`: base times ``base`` (the dense lattice's points
+    half, half + r, ...) reduced over the dense series and the two ends +-dt."""
     from ..sky.predict import predict
 
+    p = predict(orbits, site, dense_u, signals)
+    d = p.doppler_hz
+    d2 = np.abs(np.gradient(p.doppler_rate_hz_s, dense_u, axis=1)) if dense_u.size >= 3 \
+        else np.full_like(d, 2e-3)
+    gh, gu = position_gradient_hz_per_m(p)
+    at = half + r * np.arange(base.size)
+    ref = d[:, at]
+    dmin = _sliding(d, half, np.minimum)[:, at] - ref
+    dmax = _sliding(d, half, np.maximum)[:, at] - ref
+    d2m = _sliding(d2, half, np.maximum)[:, at]
+    ghm = _sliding(gh, half, np.maximum)[:, at]
+    gum = _sliding(gu, half, np.maximum)[:, at]
+    if half * spacing < dt - 1e-9:
+        # The ends +-dt lie off the lattice: evaluate them on their own.
+        for tau in (-dt, dt):
+            e = predict(orbits, site, base + tau, signals)
+            diff = e.doppler_hz - ref
+            dmin, dmax = np.minimum(dmin, diff), np.maximum(dmax, diff)
+            g1, g2 = position_gradient_hz_per_m(e)
+            ghm, gum = np.maximum(ghm, g1), np.maximum(gum, g2)
+    b = a + base.size
+    out["dmin"][:, a:b], out["dmax"][:, a:b], out["d2"][:, a:b] = dmin, dmax, d2m
+    out["gh"][:, a:b], out["gu"][:, a:b] = ghm, gum
+
+
+# Base-grid times per block of shift_summary (its dense series is r times denser).
+SHIFT_BLOCK_TIMES = 512
+
+
+def shift_summary(orbits, site, times, time_uncertainty_s: float, signals=None
+                  ) -> ShiftSummary | None:
+    """What the windows need from the grid shifted by every offset within +-time
+    uncertainty, when it is too large for the expansion (None otherwise).
+
+    One denser series instead of one prediction per shift: the Doppler, |D''| and the
+    position gradients are predicted on a lattice ``h`` apart (h = step / r <= 15 s, so
+    every base time is a lattice point) reaching ``time_uncertainty_s`` beyond the window,
+    and reduced with running extremes over +-dt around each base time; when dt is not a
+    multiple of h the two ends t +- dt are predicted as well. The grid is processed in
+    blocks (memory does not grow with the window). Base times off the lattice (an end
+    appended to the grid) are reduced on their own shifted samples.
+    """
     if time_uncertainty_s <= TAYLOR_LIMIT_S:
         return None
-    base = times.unix_s
-    ref = predict(orbits, site, base, signals)
-    taus = time_shifts_s(time_uncertainty_s)
-    dmin = dmax = None
-    d2 = np.abs(doppler_second_derivative(ref))
-    gh, gu = position_gradient_hz_per_m(ref)
-    for tau in taus:
-        if tau == 0.0:
-            continue
-        p = predict(orbits, site, base + tau, signals)
-        diff = p.doppler_hz - ref.doppler_hz
-        dmin = diff if dmin is None else np.minimum(dmin, diff)
-        dmax = diff if dmax is None else np.maximum(dmax, diff)
-        d2 = np.maximum(d2, np.abs(doppler_second_derivative(p)))
-        g1, g2 = position_gradient_hz_per_m(p)
-        gh, gu = np.maximum(gh, g1), np.maximum(gu, g2)
-    spacing = float(np.max(np.diff(np.sort(np.append(taus, 0.0)))))
-    return ShiftSummary(dmin, dmax, d2, spacing, gh, gu)
+    from ..orbits.node_interp import uniform_step_s
+
+    dt = float(time_uncertainty_s)
+    u = np.asarray(times.unix_s if hasattr(times, "unix_s") else times, dtype=float)
+    n_t = u.size
+    n_s = len(orbits.entries)
+    out = {k: np.empty((n_s, n_t)) for k in ("dmin", "dmax", "d2", "gh", "gu")}
+    body = n_t
+    if n_t >= 2 and uniform_step_s(u) is None:
+        body = n_t - 1 if (n_t > 2 and uniform_step_s(u[:-1]) is not None) else 0
+    step = uniform_step_s(u[:body]) if body >= 2 else None
+    if step is None:
+        body = 0
+    max_spacing = 15.0
+    if body:
+        r = int(np.ceil(step / max_spacing - 1e-9))
+        h = step / r
+    else:
+        h = 2.0 * dt / np.ceil(2.0 * dt / max_spacing)
+    half = int(np.floor(dt / h + 1e-9))
+    for a in range(0, body, SHIFT_BLOCK_TIMES):
+        b = min(a + SHIFT_BLOCK_TIMES, body)
+        base = u[a:b]
+        dense = u[0] + h * (np.arange((a * r) - half, (b - 1) * r + half + 1))
+        _shift_reduce(orbits, site, base, dense, r, half, dt, h, signals, out, a)
+    for k in range(body, n_t):
+        # An isolated time: its own symmetric lattice (spacing h) around it.
+        dense = u[k] + h * np.arange(-half, half + 1)
+        _shift_reduce(orbits, site, u[k:k + 1], dense, 1, half, dt, h, signals, out, k)
+    return ShiftSummary(out["dmin"], out["dmax"], out["d2"], h, out["gh"], out["gu"])
