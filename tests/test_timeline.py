@@ -12,7 +12,7 @@ import math
 
 import numpy as np
 import pytest
-from scipy.stats import chi2_contingency
+from scipy.stats import chi2_contingency, ks_2samp
 
 from core.ground.errors import InputError
 from core.ground.timeutil import parse_iso_utc, to_unix_s
@@ -23,6 +23,7 @@ from core.plan.timeline import (
     expected_timeline,
     first_fix_time_unix_s,
     monte_carlo_ttff,
+    monte_carlo_ttff_reference,
     sample_timeline,
     serial_search_time_samples,
 )
@@ -570,3 +571,64 @@ def test_to_dict_uses_iso_times():
     assert d["acquisition"] == {"A": "2031-05-17T06:00:12Z"}
     assert d["first_fix"] == "2031-05-17T06:00:30Z" and d["ttff_s"] == 30.0
     assert d["segments"][1]["kind"] == "track" and d["segments"][1]["end"] == "2031-05-17T06:02:00Z"
+
+
+# --------------------------------------------------------------------------- vectorized Monte Carlo
+
+
+def _same_ttff_distribution(inp: TimelineInputs, n_runs: int, seed: int) -> None:
+    """The vectorized Monte Carlo against the event-by-event reference simulator, same
+    seed count: the share of runs without a fix agrees (binomial, 4 sigma) and the TTFF of
+    the runs that fix passes a two-sample Kolmogorov-Smirnov test at p > 1e-3
+    [pub: scipy.stats.ks_2samp]."""
+    fast = monte_carlo_ttff(inp, n_runs, seed=seed)
+    ref = monte_carlo_ttff_reference(inp, n_runs, seed=seed + 1000)
+    share = (fast.n_no_fix + ref.n_no_fix) / (2 * n_runs)
+    sigma = math.sqrt(max(share * (1 - share), 1e-4) * 2 / n_runs)
+    assert abs(fast.n_no_fix - ref.n_no_fix) / n_runs <= 4 * sigma + 1e-9
+    a = fast.samples_s[np.isfinite(fast.samples_s)]
+    b = ref.samples_s[np.isfinite(ref.samples_s)]
+    if min(a.size, b.size) >= 20:
+        assert ks_2samp(a, b).pvalue > 1e-3, (a.mean(), b.mean())
+    assert fast.warnings == ref.warnings
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_vectorized_monte_carlo_matches_the_reference_simulator(seed):
+    _same_ttff_distribution(random_inputs(seed), 600, seed)
+
+
+def test_vectorized_monte_carlo_matches_the_reference_on_the_demo():
+    from pathlib import Path
+
+    from core.files.scenario import load_scenario
+    from core.plan.pipeline import make_plan
+
+    demo = Path(__file__).resolve().parents[1] / "sample_almanacs" / "demo_scenario.toml"
+    plan = make_plan(load_scenario(demo), monte_carlo=False)
+    _same_ttff_distribution(plan.timeline_inputs, 1500, 2027)
+
+
+def test_ks_comparison_has_power():
+    """A TTFF shifted by a tenth of its spread is told apart (the test above can fail)."""
+    inp = random_inputs(4)
+    fast = monte_carlo_ttff(inp, 600, seed=1)
+    ref = monte_carlo_ttff_reference(inp, 600, seed=2)
+    a = fast.samples_s[np.isfinite(fast.samples_s)]
+    b = ref.samples_s[np.isfinite(ref.samples_s)]
+    assert ks_2samp(a + 0.3 * b.std(), b).pvalue < 1e-3
+
+
+def test_vectorized_monte_carlo_does_not_depend_on_the_batch(monkeypatch):
+    """Runs are advanced in batches; the statistics of a seed stay a property of the seed
+    and batch size alone (reproducible), and a batch of one run equals the whole process."""
+    import core.plan.timeline as timeline_mod
+
+    inp = random_inputs(6)
+    a = monte_carlo_ttff(inp, 300, seed=5)
+    b = monte_carlo_ttff(inp, 300, seed=5)
+    np.testing.assert_array_equal(a.samples_s, b.samples_s)
+    monkeypatch.setattr(timeline_mod, "MC_BATCH_RUNS", 1)
+    c = monte_carlo_ttff(inp, 300, seed=5)
+    assert c.n_runs == 300 and ks_2samp(a.samples_s[np.isfinite(a.samples_s)],
+                                        c.samples_s[np.isfinite(c.samples_s)]).pvalue > 1e-3

@@ -750,12 +750,259 @@ def _empirical_quantile(sorted_samples: np.ndarray, p: float) -> float:
     return float(sorted_samples[idx])
 
 
+def _stats(inputs: TimelineInputs, samples: np.ndarray, unsearchable: Mapping[int, float]
+           ) -> TtffStats:
+    samples.setflags(write=False)
+    ordered = np.sort(samples)
+    fixed = samples[np.isfinite(samples)]
+    n_runs = samples.size
+    n_no_fix = n_runs - fixed.size
+    notes = tuple(_input_warnings(inputs) + _unsearchable_warnings(inputs, unsearchable))
+    return TtffStats(
+        median_s=_empirical_quantile(ordered, 0.5),
+        p95_s=_empirical_quantile(ordered, 0.95),
+        mean_s=float(samples.mean()) if n_no_fix == 0 else math.inf,
+        n_runs=n_runs,
+        n_no_fix=int(n_no_fix),
+        samples_s=samples,
+        mean_fixed_s=float(fixed.mean()) if fixed.size else None,
+        warnings=notes,
+    )
+
+
+def _check_runs(n_runs) -> int:
+    if int(n_runs) != n_runs or n_runs < 1:
+        raise InputError(f"{n_runs} runs: need a whole number >= 1", field="n_runs")
+    return int(n_runs)
+
+
+# Runs advanced together (one batch between two polls of the cancel callback).
+MC_BATCH_RUNS = 256
+
+
 def monte_carlo_ttff(inputs: TimelineInputs, n_runs: int, seed: int,
                      cancel: Callable[[], bool] | None = None) -> TtffStats:
     """TTFF statistics over ``n_runs`` runs with drawn search times (seeded, reproducible).
 
-    ``cancel`` is polled every 64 runs; when it returns True, :class:`core.errors.Cancelled`
-    is raised."""
+    The process of the module docstring, with every run of a batch advanced together in
+    numpy (see :class:`_Batch`): each step takes every active run to its next event
+    (a rise or a channel coming free), hands the free channels to the waiting satellites
+    in priority order and draws the durations of all searches started, for all runs at
+    once. :func:`monte_carlo_ttff_reference` is the same process run by the event-by-event
+    simulator; the two agree in distribution (tests/test_timeline.py).
+
+    ``cancel`` is polled between batches of MC_BATCH_RUNS runs; when it returns True,
+    :class:`core.errors.Cancelled` is raised."""
+    n_runs = _check_runs(n_runs)
+    _drawn_duration(inputs, np.random.default_rng(0))      # checks the figures are given
+    rng = np.random.default_rng(seed)
+    tables = _cached(inputs, "mc_tables", lambda: _McTables(inputs))
+    samples = np.full(n_runs, math.inf)
+    unsearchable: dict[int, float] = {}
+    for a in range(0, n_runs, MC_BATCH_RUNS):
+        if cancel is not None and cancel():
+            raise Cancelled(f"Monte Carlo stopped after {a} of {n_runs} runs")
+        b = min(a + MC_BATCH_RUNS, n_runs)
+        fix = _Batch(tables, b - a, rng, unsearchable).run()
+        samples[a:b] = fix - inputs.start_unix_s
+    return _stats(inputs, samples, unsearchable)
+
+
+def _with_next(arr: np.ndarray | float, shape: tuple[int, int]) -> np.ndarray:
+    """The (S, T) grid values the simulation looks up: the value at k, or at k + 1 where
+    that is not finite (see :func:`_lookup`)."""
+    a = np.broadcast_to(np.asarray(arr, dtype=float), shape)
+    out = a.copy()
+    bad = ~np.isfinite(out[:, :-1])
+    out[:, :-1][bad] = a[:, 1:][bad]
+    return out
+
+
+class _McTables:
+    """What every Monte Carlo run shares: passes as flat arrays, the search figures per
+    (satellite, grid index) in both states, and the priority ranks."""
+
+    def __init__(self, inp: TimelineInputs) -> None:
+        n_s, n_t = len(inp.sat_ids), inp.times_unix_s.size
+        shape = (n_s, n_t)
+        self.inp = inp
+        self.times = inp.times_unix_s
+        self.t_end = float(self.times[-1])
+        sat, rise, set_ = [], [], []
+        for s, plist in enumerate(inp._passes):
+            for r, st in plist:
+                sat.append(s)
+                rise.append(r)
+                set_.append(st)
+        self.pass_sat = np.array(sat, dtype=np.int64)
+        self.rise = np.array(rise, dtype=float)
+        self.set = np.array(set_, dtype=float)
+        self.busy_until = np.minimum(self.set, self.t_end)
+        self.rise_times = np.unique(self.rise[self.rise < self.t_end])
+        pfa_after = inp.pfa_position_after if inp.pfa_position_after is not None else inp.pfa_position
+        figs = {}
+        for state, (q, pd, pfa) in (("first", (inp.q_first, inp.pd_first, inp.pfa_position)),
+                                    ("after", (inp.q_after, inp.pd_after, pfa_after))):
+            f = [_with_next(x, shape) for x in (q, pd, pfa, inp.dwell_s)]
+            ok = np.logical_and.reduce([np.isfinite(x) for x in f])
+            figs[state] = (np.where(ok, f[0], 1.0), np.where(ok, f[1], 0.0),
+                           np.where(ok, f[2], 0.0), np.where(ok, f[3], 1.0), ok)
+        self.figs = figs
+        pr = _with_next(inp.priority, shape)
+        key = np.where(np.isfinite(pr), -pr, np.inf)
+        order = np.argsort(key, axis=0, kind="stable")       # (S, T): satellites by rank
+        self.rank = np.empty((n_s, n_t), dtype=np.int64)      # rank position of s at k
+        np.put_along_axis(self.rank, order, np.arange(n_s)[:, None], axis=0)
+
+
+class _Batch:
+    """``n`` runs of the channel process advanced together (see monte_carlo_ttff)."""
+
+    def __init__(self, tb: _McTables, n: int, rng: np.random.Generator,
+                 unsearchable: dict[int, float]) -> None:
+        self.tb, self.n, self.rng, self.unsearchable = tb, n, rng, unsearchable
+        n_p, n_c = tb.pass_sat.size, tb.inp.n_channels
+        self.busy = np.full((n, n_c), -np.inf)          # channel busy until
+        self.searched = np.zeros((n, n_p), dtype=bool)
+        self.acq = np.full((n, n_p), np.inf)            # acquisition time per pass
+        self.first_acq = np.full(n, np.inf)
+        self.fix = np.full(n, np.inf)
+
+    def run(self) -> np.ndarray:
+        tb = self.tb
+        if not tb.rise_times.size:
+            return self.fix
+        t = np.full(self.n, tb.rise_times[0])
+        runs = np.arange(self.n)
+        k_fix = tb.inp.first_fix_satellites
+        can_fix = tb.inp.n_channels >= k_fix
+        while runs.size:
+            self._assign(runs, t)
+            if can_fix:
+                n_acq = np.isfinite(self.acq[runs]).sum(axis=1)
+                check = n_acq >= k_fix
+                if check.any():
+                    sel = runs[check]
+                    fix = _batch_first_fix(self.acq[sel], tb.set, tb.inp.ephemeris_wait_s,
+                                           k_fix, tb.t_end)
+                    done = fix <= t[check] + tb.inp.ephemeris_wait_s
+                    self.fix[sel[done]] = fix[done]
+                    keep = np.ones(runs.size, dtype=bool)
+                    keep[np.nonzero(check)[0][done]] = False
+                    runs, t = runs[keep], t[keep]
+            if not runs.size:
+                break
+            # Next event of each run: a rise after t or a channel coming free after t.
+            j = np.searchsorted(tb.rise_times, t, side="right")
+            nxt = np.where(j < tb.rise_times.size, tb.rise_times[np.minimum(j, tb.rise_times.size - 1)],
+                           np.inf)
+            busy = self.busy[runs]
+            pending = np.where(busy > t[:, None], busy, np.inf).min(axis=1)
+            t_new = np.minimum(nxt, pending)
+            going = t_new < tb.t_end
+            ended = runs[~going]
+            if ended.size and can_fix:
+                self.fix[ended] = _batch_first_fix(self.acq[ended], tb.set, tb.inp.ephemeris_wait_s,
+                                                   k_fix, tb.t_end)
+            runs, t = runs[going], t_new[going]
+        return self.fix
+
+    def _assign(self, runs: np.ndarray, t: np.ndarray) -> None:
+        """At each run's instant t: free channels take waiting satellites by rank."""
+        tb = self.tb
+        k = np.searchsorted(tb.times, t, side="right") - 1
+        free = self.busy[runs] <= t[:, None]                               # (R, C)
+        n_free = free.sum(axis=1)
+        if not n_free.any():
+            return
+        tc = t[:, None]
+        waiting = (tb.rise[None, :] <= tc) & (tc < tb.set[None, :]) & ~self.searched[runs]
+        if not waiting.any():
+            return
+        after = self.first_acq[runs] <= t
+        s_of = tb.pass_sat
+        ok_first = tb.figs["first"][4][s_of[None, :], k[:, None]]
+        ok_after = tb.figs["after"][4][s_of[None, :], k[:, None]]
+        searchable = np.where(after[:, None], ok_after, ok_first)
+        rank = tb.rank[s_of[None, :], k[:, None]].astype(float)            # (R, P)
+        eligible = waiting & searchable
+        key = np.where(eligible, rank, np.inf)
+        order = np.argsort(key, axis=1, kind="stable")
+        n_assign = np.minimum(n_free, eligible.sum(axis=1))
+        blocked = waiting & ~searchable
+        if blocked.any():
+            self._note_unsearchable(runs, t, waiting, eligible, blocked, rank, n_free)
+        if not n_assign.any():
+            return
+        chan_order = np.argsort(~free, axis=1, kind="stable")              # free ones first
+        r_i, slot = np.nonzero(np.arange(order.shape[1])[None, :] < n_assign[:, None])
+        p = order[r_i, slot]
+        c = chan_order[r_i, slot]
+        run = runs[r_i]
+        kk = k[r_i]
+        s = s_of[p]
+        aft = after[r_i]
+        q, pd, pfa, dwell = (np.where(aft, fa[s, kk], ff[s, kk])
+                             for fa, ff in zip(tb.figs["after"][:4], tb.figs["first"][:4]))
+        d = _draw_durations(q, pd, pfa, dwell, tb.inp.penalty_s, self.rng)
+        end = t[r_i] + d
+        got = (end < tb.set[p]) & (end <= tb.t_end)
+        self.searched[run, p] = True
+        self.acq[run[got], p[got]] = end[got]
+        np.minimum.at(self.first_acq, run[got], end[got])
+        self.busy[run, c] = tb.busy_until[p]
+
+    def _note_unsearchable(self, runs, t, waiting, eligible, blocked, rank, n_free) -> None:
+        """A waiting satellite whose figures are not finite is noted when the scalar loop
+        would reach it: fewer eligible satellites rank above it than channels are free."""
+        key = np.where(waiting, rank, np.inf)
+        order = np.argsort(key, axis=1, kind="stable")
+        elig_sorted = np.take_along_axis(eligible, order, axis=1)
+        before = np.cumsum(elig_sorted, axis=1) - elig_sorted
+        reached_sorted = before < n_free[:, None]
+        reached = np.empty_like(reached_sorted)
+        np.put_along_axis(reached, order, reached_sorted, axis=1)
+        r_i, p = np.nonzero(blocked & reached)
+        for s, when in zip(self.tb.pass_sat[p].tolist(), t[r_i].tolist()):
+            if s not in self.unsearchable or when < self.unsearchable[s]:
+                self.unsearchable[s] = when
+
+
+def _draw_durations(q, pd, pfa, dwell, penalty, rng: np.random.Generator) -> np.ndarray:
+    """Serial-search times, one per element (see :func:`serial_search_time_samples`)."""
+    q_i = q.astype(np.int64)
+    detects = pd > 0
+    m = rng.geometric(np.where(detects, pd, 1.0))
+    j = rng.integers(0, q_i)
+    n = j + (m - 1) * (q_i - 1)
+    f = rng.binomial(n, pfa)
+    return np.where(detects, dwell * (m + n) + penalty * f, np.inf)
+
+
+def _batch_first_fix(acq: np.ndarray, set_t: np.ndarray, wait: float, k_fix: int,
+                     t_end: float) -> np.ndarray:
+    """:func:`first_fix_time_unix_s` for every row of (R, P) acquisition times (inf: pass
+    not acquired), tracks usable over [acq + wait, set)."""
+    n_r = acq.shape[0]
+    if n_r == 0:
+        return np.empty(0)
+    m = int(np.isfinite(acq).sum(axis=1).max())
+    if m < k_fix:
+        return np.full(n_r, np.inf)
+    order = np.argsort(acq, axis=1)[:, :m]
+    ready = np.take_along_axis(acq, order, axis=1) + wait               # (R, M)
+    until = set_t[order]
+    usable = (ready[:, None, :] <= ready[:, :, None]) & (ready[:, :, None] < until[:, None, :])
+    count = usable.sum(axis=2)
+    ok = (count >= k_fix) & (ready <= t_end) & np.isfinite(ready)
+    return np.where(ok, ready, np.inf).min(axis=1)
+
+
+def monte_carlo_ttff_reference(inputs: TimelineInputs, n_runs: int, seed: int,
+                     cancel: Callable[[], bool] | None = None) -> TtffStats:
+    """The event-by-event simulator run once per run (pure Python): the reference the
+    vectorized :func:`monte_carlo_ttff` is tested against (same process, same
+    distributions; the random streams differ)."""
     if int(n_runs) != n_runs or n_runs < 1:
         raise InputError(f"{n_runs} runs: need a whole number >= 1", field="n_runs")
     n_runs = int(n_runs)
@@ -772,18 +1019,4 @@ def monte_carlo_ttff(inputs: TimelineInputs, n_runs: int, seed: int,
             samples[i] = run.first_fix_unix_s - t0
         for s, t in run.unsearchable.items():
             unsearchable.setdefault(s, t)
-    samples.setflags(write=False)
-    ordered = np.sort(samples)
-    fixed = samples[np.isfinite(samples)]
-    n_no_fix = n_runs - fixed.size
-    notes = tuple(_input_warnings(inputs) + _unsearchable_warnings(inputs, unsearchable))
-    return TtffStats(
-        median_s=_empirical_quantile(ordered, 0.5),
-        p95_s=_empirical_quantile(ordered, 0.95),
-        mean_s=float(samples.mean()) if n_no_fix == 0 else math.inf,
-        n_runs=n_runs,
-        n_no_fix=int(n_no_fix),
-        samples_s=samples,
-        mean_fixed_s=float(fixed.mean()) if fixed.size else None,
-        warnings=notes,
-    )
+    return _stats(inputs, samples, unsearchable)
