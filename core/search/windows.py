@@ -434,7 +434,13 @@ def shift_summary(orbits, site, times, time_uncertainty_s: float, signals=None
     """
     if time_uncertainty_s <= TAYLOR_LIMIT_S:
         return None
+    from ..ground.geodesy import SitePath
     from ..orbits.node_interp import uniform_step_s
+
+    if isinstance(site, SitePath):
+        # A moving receiver is at its own place at each base time: one sample of the
+        # dense series would serve several places, so each shift is predicted on its own.
+        return _shift_summary_per_shift(orbits, site, times, time_uncertainty_s, signals)
 
     dt = float(time_uncertainty_s)
     u = np.asarray(times.unix_s if hasattr(times, "unix_s") else times, dtype=float)
@@ -464,3 +470,29 @@ def shift_summary(orbits, site, times, time_uncertainty_s: float, signals=None
         dense = u[k] + h * np.arange(-half, half + 1)
         _shift_reduce(orbits, site, u[k:k + 1], dense, 1, half, dt, h, signals, out, k)
     return ShiftSummary(out["dmin"], out["dmax"], out["d2"], h, out["gh"], out["gu"])
+
+
+def _shift_summary_per_shift(orbits, site, times, time_uncertainty_s: float, signals=None
+                             ) -> ShiftSummary:
+    """:func:`shift_summary` by one prediction per shift (offsets at most 15 s apart): for a
+    receiver whose position goes with the base time (a route)."""
+    from ..sky.predict import predict
+
+    base = times.unix_s
+    ref = predict(orbits, site, base, signals)
+    n = int(np.ceil(2.0 * time_uncertainty_s / 15.0)) + 1
+    taus = np.linspace(-time_uncertainty_s, time_uncertainty_s, max(n, 3))
+    dmin = dmax = np.zeros_like(ref.doppler_hz)
+    d2 = np.abs(doppler_second_derivative(ref))
+    gh, gu = position_gradient_hz_per_m(ref)
+    for tau in taus:
+        if tau == 0.0:
+            continue
+        p = predict(orbits, site, base + tau, signals)
+        diff = p.doppler_hz - ref.doppler_hz
+        dmin, dmax = np.minimum(dmin, diff), np.maximum(dmax, diff)
+        d2 = np.maximum(d2, np.abs(doppler_second_derivative(p)))
+        g1, g2 = position_gradient_hz_per_m(p)
+        gh, gu = np.maximum(gh, g1), np.maximum(gu, g2)
+    spacing = float(np.max(np.diff(np.sort(np.append(taus, 0.0)))))
+    return ShiftSummary(dmin, dmax, d2, spacing, gh, gu)
