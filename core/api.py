@@ -93,6 +93,16 @@ _PUBLIC: dict[str, str] = {
     "ranking_rows": "core.plan.sweep",
     "sweep_to_json": "core.plan.sweep",
     "short_key": "core.plan.sweep",
+    # records: what the receiver recorded, held against the plan
+    "Record": "core.records.record",
+    "RecordFormatError": "core.ground.errors",
+    "load_record": "core.records.record",
+    "parse_record": "core.records.record",
+    "measure": "core.records.measure",
+    "Measurements": "core.records.measure",
+    "Comparison": "core.records.compare",
+    "compare_record": "core.records.compare",
+    "record_scenario": "core.records.compare",
     # files: text in and out
     "load_scenario": "core.files.scenario",
     "save_scenario": "core.files.scenario",
@@ -139,7 +149,13 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
         whole_second,
         zone_names,
     )
-    from core.ground.errors import AcqplanError, Cancelled, ComputationError, InputError  # noqa: F401
+    from core.ground.errors import (  # noqa: F401
+        AcqplanError,
+        Cancelled,
+        ComputationError,
+        InputError,
+        RecordFormatError,
+    )
     from core.ground.geodesy import Site  # noqa: F401
     from core.ground.signals import SIGNALS, get_signal  # noqa: F401
     from core.ground.timeutil import TimeGrid, iso_z, parse_iso_utc, time_grid  # noqa: F401
@@ -174,6 +190,9 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
         sweep_spec,
         sweep_to_json,
     )
+    from core.records.compare import Comparison, compare_record, record_scenario  # noqa: F401
+    from core.records.measure import Measurements, measure  # noqa: F401
+    from core.records.record import Record, load_record, parse_record  # noqa: F401
     from core.search.bins import bin_centres, bin_count, design_bins, loss_curve  # noqa: F401
     from core.search.motion import MotionUncertainty, RouteMotion, route_motion  # noqa: F401
     from core.search.windows import Uncertainty, doppler_windows  # noqa: F401

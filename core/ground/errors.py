@@ -38,6 +38,10 @@ class OrbitFormatError(InputError):
     """An orbit file (YUMA, SEM, TLE, mapping) is malformed."""
 
 
+class RecordFormatError(InputError):
+    """A receiver record (RINEX observation file, NMEA log) is malformed."""
+
+
 class ScenarioError(InputError):
     """A scenario file or scenario value is invalid."""
 
