@@ -244,9 +244,12 @@ def compare_record(plan: Plan, record: Record) -> Comparison:
     fit = _fit_cn0(arr, sc)
     acq = plan.timeline.acquisition_unix_s
     mask = sc.mask.elevation_deg
-    sats = []
-    for i, sid in enumerate(common):
-        sats.append(_satellite(i, sid, arr, meas, int(m_rows[i]), plan, p_rows[i], acq.get(sid), mask))
+    sats = [_satellite(i, sid, arr, meas, int(m_rows[i]), plan, p_rows[i], acq.get(sid), mask)
+            for i, sid in enumerate(common)]
+    low = [s.sat_id for s in sats if s.epochs == 0]
+    if low:
+        notes.append(f"recorded only below the plan's {mask:g} deg mask, not compared: {_list(low)}")
+    sats = [s for s in sats if s.epochs > 0]
     finite = np.array([o.ppb for o in offsets])
     median_ppb = float(np.median(finite)) if finite.size else None
     osc = None if median_ppb is None else -median_ppb
@@ -477,4 +480,7 @@ def record_scenario(record: Record, orbit_files: list[str], *, name: str | None 
                  "horizontal_uncertainty_km": 1.0, "vertical_uncertainty_m": 100.0},
         "time": {"start": iso_z(start, 0), "end": iso_z(end, 0), "step_s": step},
         "receiver": {"signals": signals},
+        # coherent time: at least one code period of each signal (Galileo E1: 4 ms)
+        "search": {"per_signal": {sid: {"coherent_ms": SIGNALS[sid].code_period_s * 1000.0}
+                                  for sid in signals if SIGNALS[sid].code_period_s > 1e-3}},
     })

@@ -92,6 +92,8 @@ def band_carrier_hz(signal_id: str, glonass_k: int | None = None) -> float:
 
 def pick_code(record: Record, system: str, kind: str, signal_id: str) -> str | None:
     """The record's code of one kind ('L', 'D', 'S', 'C') for a planned signal."""
+    if kind in record.obs:               # NMEA: 'S' is the GSV C/N0 of any signal
+        return kind
     bands, attrs = SIGNAL_BANDS[signal_id]
     listed = record.codes_for(system)
     for band in bands:

@@ -37,6 +37,7 @@ from .record import Record
 KeepFn = Callable[[str, str], bool]      # (system letter, code) -> keep?
 
 _FIELD = 16
+_GLO_SLOT = re.compile(r"R([ \d]\d) ?([ +-]?\d{1,2})(?=\s|$)")
 _EPOCH2 = re.compile(r"^ [ \d]\d [ \d]\d [ \d]\d [ \d]\d [ \d]\d[ \d\.]{11}  \d[ \d]{3}")
 _EPOCH3 = re.compile(r"^> \d{4} [ \d]\d [ \d]\d [ \d]\d [ \d]\d[ \d\.]{11}  \d[ \d]{3}")
 
@@ -181,9 +182,6 @@ def _read_header(lines: list[str], source: str) -> dict:
         elif label == "APPROX POSITION XYZ":
             xyz = np.array([_num(line[14 * k:14 * k + 14], float, source, i, label) for k in range(3)])
             hdr["position"] = xyz if np.linalg.norm(xyz) > 6.0e6 else None
-            if hdr["position"] is None:
-                hdr["warnings"].append("the header position is zero or not on the Earth: "
-                                       "the record holds no site")
         elif label == "INTERVAL":
             v = _num(line[:10], float, source, i, label)
             hdr["interval"] = v if v > 0 else None
@@ -192,16 +190,18 @@ def _read_header(lines: list[str], source: str) -> dict:
         elif label == "REC # / TYPE / VERS":
             hdr["receiver"] = line[20:40].strip()
         elif label == "GLONASS SLOT / FRQ #":
-            for k in range(8):
-                entry = line[4 + 7 * k:11 + 7 * k]
-                if entry[:1] == "R" and entry[1:3].strip().isdigit():
-                    try:
-                        hdr["glonass_k"][f"R{int(entry[1:3]):02d}"] = int(entry[3:7])
-                    except ValueError:
-                        raise RecordFormatError(f"bad frequency number in '{entry}'", file=source,
-                                                line=i + 1, field=label) from None
+            # "R01  1 R02 -4 ..." (writers differ in the count's width: found by pattern)
+            for slot, k in _GLO_SLOT.findall(line[:60]):
+                if -7 <= int(k) <= 6:
+                    hdr["glonass_k"][f"R{int(slot):02d}"] = int(k)
+                else:
+                    hdr["warnings"].append(f"GLONASS R{slot}: frequency number {k} outside "
+                                           "-7..+6 ignored")
     if end is None:
         raise RecordFormatError("no 'END OF HEADER' line", file=source, field="header")
+    if hdr["position"] is None:
+        hdr["warnings"].append("no usable APPROX POSITION XYZ (missing, zero or not on the "
+                               "Earth): the record holds no site")
     if version < 3:
         codes = [c for c in pending_v2 if c][:n_v2]
         if n_v2 <= 0 or len(codes) != n_v2:
