@@ -95,9 +95,9 @@ def expand(data: bytes, source: str) -> bytes:
                                 f"({type(exc).__name__}: {str(exc)[:80]})", file=source) from None
     if not isinstance(out, bytes | bytearray):
         raise RecordFormatError("compressed content did not expand to text", file=source)
-    # a gzip of a Hatanaka file expands in one step; a second pass catches the rest
-    if out[:80].find(b"CRINEX") >= 0:
-        return expand(bytes(out), source)
+    if out[:80].find(b"CRINEX") >= 0 or out[:80].find(b"COMPACT RINEX") >= 0:
+        raise RecordFormatError("the Hatanaka (Compact RINEX) content could not be expanded",
+                                file=source)
     return bytes(out)
 
 
