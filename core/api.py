@@ -98,6 +98,7 @@ _PUBLIC: dict[str, str] = {
     "RecordFormatError": "core.ground.errors",
     "load_record": "core.records.record",
     "parse_record": "core.records.record",
+    "record_bands": "core.records.record",
     "measure": "core.records.measure",
     "Measurements": "core.records.measure",
     "Comparison": "core.records.compare",
@@ -192,7 +193,7 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     )
     from core.records.compare import Comparison, compare_record, record_scenario  # noqa: F401
     from core.records.measure import Measurements, measure  # noqa: F401
-    from core.records.record import Record, load_record, parse_record  # noqa: F401
+    from core.records.record import Record, load_record, parse_record, record_bands  # noqa: F401
     from core.search.bins import bin_centres, bin_count, design_bins, loss_curve  # noqa: F401
     from core.search.motion import MotionUncertainty, RouteMotion, route_motion  # noqa: F401
     from core.search.windows import Uncertainty, doppler_windows  # noqa: F401

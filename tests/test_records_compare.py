@@ -170,7 +170,9 @@ def test_rinex3_doppler_offset_inside_plan_holds(demo_plan, tmp_path):
 
 
 def test_offset_beyond_the_planned_uncertainty_misses(demo_plan, tmp_path):
-    times = _times(demo_plan, n=11)
+    # from the plan's start: before the plan's first acquisition, the first windows apply
+    times = _times(demo_plan, first_s=0.0, n=11, step=5.0)
+    assert times[-1] < min(demo_plan.timeline.acquisition_unix_s.values())
     write_rinex3(tmp_path / "r.obs", demo_plan, times, osc_ppb=-2000.0)
     res = compare_record(demo_plan, load_record(tmp_path / "r.obs"))
     assert res.oscillator_offset_ppb == pytest.approx(-2000.0, abs=0.05)
@@ -178,6 +180,7 @@ def test_offset_beyond_the_planned_uncertainty_misses(demo_plan, tmp_path):
     assert not res.held and res.verdict.startswith("plan missed")
     # 2000 ppb at L1 is 3.2 kHz: far beyond a window planned with +-500 ppb
     assert res.outside() and "OUTSIDE" in res.verdict
+    assert all(s.inside_window_fraction == 0.0 for s in res.satellites if s.doppler_samples)
     # the residual after the common offset stays small all the same
     assert max(s.residual_hz_max for s in res.satellites if s.doppler_samples) < 0.05
 
@@ -205,6 +208,18 @@ def test_rinex2_phase_rate_wrapped_lines_slips_and_jumps(demo_plan, tmp_path):
             assert s.residual_hz_max < 0.005 and s.inside_window_fraction == 1.0
             assert s.doppler_source == "L1 rate"
     assert res.held
+
+
+def test_after_first_acquisition_the_narrowed_window_follows_the_measured_oscillator(
+        demo_plan, tmp_path):
+    """Once acquired, the receiver knows its oscillator: the narrowed window is centred on
+    the measured offset, so a large but steady offset stays inside it [calc]."""
+    acq0 = min(demo_plan.timeline.acquisition_unix_s.values())
+    times = acq0 + 60.0 + 30.0 * np.arange(11)
+    write_rinex3(tmp_path / "r.obs", demo_plan, times, osc_ppb=-2000.0)
+    res = compare_record(demo_plan, load_record(tmp_path / "r.obs"))
+    assert all(s.inside_window_fraction == 1.0 for s in res.satellites if s.doppler_samples)
+    assert not res.held                            # the oscillator itself was off the plan
 
 
 def test_record_outside_the_plan_is_an_input_error(demo_plan, tmp_path):
@@ -294,9 +309,9 @@ def test_cli_compare_help_and_no_qt():
 
     from conftest import REPO
 
-    code = ("import sys; from planner_gui.cli import main\n"
-            "try:\n    main(['compare', '--help'])\nexcept SystemExit as e:\n    rc = e.code\n"
-            "print('QT', any(m.startswith('PySide6') for m in sys.modules), rc)")
+    code = ("import sys; from planner_gui.cli import main\nrc = None\n"
+            "try:\n    rc = main(['compare', '--help'])\nexcept SystemExit as e:\n    rc = e.code\n"
+            "print('QT', any(m.startswith('PySide6') for m in sys.modules), rc or 0)")
     out = subprocess.run([sys.executable, "-c", code], cwd=REPO, capture_output=True, text=True,
                          timeout=60)
     assert "usage:" in out.stdout and out.stdout.strip().endswith("QT False 0")

@@ -219,6 +219,10 @@ def compare_record(plan: Plan, record: Record) -> Comparison:
     by_system = {sp.system: sp.signal_id for sp in plan.satellites}
     plan_k = {sp.sat_id: sp.glonass_k for sp in plan.satellites if sp.glonass_k is not None}
     sub = _restrict(record, inside)
+    unplanned = sorted({sid for sid in record.sat_ids if sid[0] not in by_system})
+    if unplanned:
+        notes.append(f"{len(unplanned)} satellite(s) of systems the plan does not search "
+                     f"({', '.join(sorted({s[0] for s in unplanned}))}) are not compared")
     meas = measure(sub, by_system, plan_k)
     notes += meas.warnings
     plan_ids = {sp.sat_id: s for s, sp in enumerate(plan.satellites)}
@@ -241,6 +245,7 @@ def compare_record(plan: Plan, record: Record) -> Comparison:
     carrier = _carriers(plan, p_rows, record)
     offsets, shift_ppb = _common_offset(arr, plan, carrier, meas.sample_times_unix_s()[m_rows])
     arr.residual_hz = arr.measured_hz - arr.predicted_hz - shift_ppb[None, :] * 1e-9 * carrier[:, None]
+    _windows(plan, p_rows, arr, shift_ppb)
     fit = _fit_cn0(arr, sc)
     acq = plan.timeline.acquisition_unix_s
     mask = sc.mask.elevation_deg
@@ -330,19 +335,30 @@ def _predict_and_windows(plan: Plan, meas: Measurements, p_rows: list[int], m_ro
         mean_d[:, 1:] = -(rng[:, 1:] - rng[:, :-1]) / (lam[:, None] * dt[None, :])
     predicted = np.where(from_phase[:, None], mean_d, pred_d) * scale[:, None]
     sample_t = meas.sample_times_unix_s()[m_rows]
-    # elevation for each sample: at the epoch (the later epoch of a phase interval)
-    # windows the plan searched at each sample time
+    nan = np.full((n_s, n_e), np.nan)
+    return ComparisonArrays(ids, t, sample_t, measured, predicted, nan.copy(), nan.copy(),
+                            nan.copy(), el, meas.cn0_dbhz[m_rows])
+
+
+def _windows(plan: Plan, p_rows: list[int], arr: ComparisonArrays, shift_ppb: np.ndarray) -> None:
+    """The window the plan searched at each sample time: before the plan's first
+    acquisition the first window; after it the narrowed window, centred on the
+    oscillator as the receiver measured it (the common offset) - the narrowing assumes
+    the receiver has measured its oscillator on the first satellite, so its centre moves
+    with the real oscillator, not the planned one."""
     grid = plan.times.unix_s
     acq0 = min(plan.timeline.acquisition_unix_s.values(), default=math.inf)
-    low = np.full((n_s, n_e), np.nan)
-    high = np.full((n_s, n_e), np.nan)
+    e0_ppb = plan.scenario.receiver.oscillator_offset_ppb
+    finite = shift_ppb[np.isfinite(shift_ppb)]
+    shift = np.where(np.isfinite(shift_ppb), shift_ppb, np.median(finite) if finite.size else -e0_ppb)
     for i, s in enumerate(p_rows):
-        for w, sel in ((plan.windows_first, sample_t[i] < acq0), (plan.windows_after, sample_t[i] >= acq0)):
+        t = arr.sample_unix_s[i]
+        carrier = plan.satellites[s].carrier_hz
+        for w, sel, moved in ((plan.windows_first, t < acq0, False), (plan.windows_after, t >= acq0, True)):
             if sel.any():
-                low[i, sel] = np.interp(sample_t[i, sel], grid, w.low_hz[s])
-                high[i, sel] = np.interp(sample_t[i, sel], grid, w.high_hz[s])
-    return ComparisonArrays(ids, t, sample_t, measured, predicted, np.full((n_s, n_e), np.nan),
-                            low, high, el, meas.cn0_dbhz[m_rows])
+                centre = (shift[sel] + e0_ppb) * 1e-9 * carrier if moved else 0.0
+                arr.window_low_hz[i, sel] = np.interp(t[sel], grid, w.low_hz[s]) + centre
+                arr.window_high_hz[i, sel] = np.interp(t[sel], grid, w.high_hz[s]) + centre
 
 
 def _common_offset(arr: ComparisonArrays, plan: Plan, carrier: np.ndarray,

@@ -13,6 +13,7 @@ reader from the content (RINEX observation header, or NMEA ``$`` sentences).
 
 from __future__ import annotations
 
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -101,15 +102,16 @@ def expand(data: bytes, source: str) -> bytes:
     return bytes(out)
 
 
-def parse_record(data: bytes, source: str) -> Record:
-    """A record from (expanded) bytes: RINEX observation file or NMEA 0183 sentences."""
+def parse_record(data: bytes, source: str, bands: Iterable[str] | None = None) -> Record:
+    """A record from (expanded) bytes: RINEX observation file or NMEA 0183 sentences.
+    ``bands``: RINEX band digits to keep (e.g. ``{"1"}``; default all)."""
     from .nmea import looks_like_nmea, parse_nmea
     from .rinex_obs import looks_like_rinex_obs, parse_rinex_obs
 
     if not data.strip():
         raise RecordFormatError("the file is empty", file=source)
     if looks_like_rinex_obs(data):
-        return parse_rinex_obs(data, source)
+        return parse_rinex_obs(data, source, bands=bands)
     if looks_like_nmea(data):
         return parse_nmea(data, source)
     raise RecordFormatError("not a RINEX observation file (no 'RINEX VERSION / TYPE' line "
@@ -117,7 +119,15 @@ def parse_record(data: bytes, source: str) -> Record:
                             file=source, line=1)
 
 
-def load_record(path: str | Path) -> Record:
+def load_record(path: str | Path, bands: Iterable[str] | None = None) -> Record:
     """Read a receiver record: RINEX 2.10/2.11/3.0x observation file (plain, gzip, .Z,
-    Hatanaka) or an NMEA 0183 log. Errors are :class:`RecordFormatError`."""
-    return parse_record(read_record_bytes(path), str(path))
+    Hatanaka) or an NMEA 0183 log. ``bands`` limits the RINEX codes kept (band digits,
+    see :func:`record_bands`). Errors are :class:`RecordFormatError`."""
+    return parse_record(read_record_bytes(path), str(path), bands)
+
+
+def record_bands(signal_ids: Iterable[str]) -> set[str]:
+    """RINEX band digits that hold the given planned signals (GPS-L1CA -> {'1'})."""
+    from .measure import SIGNAL_BANDS
+
+    return {b for sid in signal_ids for b in SIGNAL_BANDS[sid][0]}

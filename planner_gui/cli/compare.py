@@ -53,13 +53,22 @@ def _inputs(args):
 
 
 def cmd_compare(args) -> int:
-    from core.api import compare_record, load_record, load_scenario, make_plan, record_scenario
+    from core.api import (
+        compare_record,
+        load_record,
+        load_scenario,
+        make_plan,
+        record_bands,
+        record_scenario,
+    )
 
     scenario_path, record_path = _inputs(args)
-    record = load_record(record_path)
     if scenario_path is not None:
         scenario = load_scenario(scenario_path)
+        # only the bands of the planned signals are read (the rest is never compared)
+        record = load_record(record_path, bands=record_bands(scenario.receiver.signals))
     else:
+        record = load_record(record_path)
         scenario = record_scenario(record, args.orbits)
     plan = make_plan(scenario, monte_carlo=False)
     result = compare_record(plan, record)
