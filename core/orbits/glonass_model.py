@@ -15,6 +15,7 @@ step (|t - tb| split into the same number of steps of at most ``MAX_STEP_S``).
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 
 import numpy as np
 
@@ -68,3 +69,41 @@ def glonass_ecef(pos0_m: np.ndarray, vel0_m_s: np.ndarray, acc_m_s2: np.ndarray,
         k4 = _derivative(state + h * k3, acc)
         state = state + h / 6.0 * (k1 + 2.0 * k2 + 2.0 * k3 + k4)
     return state[:, :3], state[:, 3:]
+
+
+def screen_glonass(records: Sequence, tolerance_m: float = 5_000.0,
+                   window_s: float = 3_600.0) -> tuple[list, list[str]]:
+    """Drop GLONASS records whose state contradicts the satellite's other records.
+
+    As :func:`core.orbits.ephemeris_model.screen_records`: at a record's tb, the median of
+    the satellite's other records within ``window_s`` (integrated to that tb; health
+    ignored), given at least two of them, must lie within ``tolerance_m`` of the record's
+    own position; otherwise it is dropped with a message."""
+    recs = list(records)
+    if not recs:
+        return [], []
+    sat = np.array([r.sat_id for r in recs])
+    tb = np.array([r.toe_gps_s for r in recs])
+    # All (record j, neighbour i) pairs of one satellite within the window, integrated at once.
+    jj, ii = np.nonzero((sat[:, None] == sat[None, :]) & (np.abs(tb[:, None] - tb[None, :])
+                                                           <= window_s))
+    keep_pair = jj != ii
+    jj, ii = jj[keep_pair], ii[keep_pair]
+    p0 = np.array([recs[i].pos_m for i in ii]).reshape(-1, 3)
+    v0 = np.array([recs[i].vel_m_s for i in ii]).reshape(-1, 3)
+    a0 = np.array([recs[i].acc_m_s2 for i in ii]).reshape(-1, 3)
+    p, _ = glonass_ecef(p0, v0, a0, tb[jj] - tb[ii])
+    own = np.array([r.pos_m for r in recs])
+    dropped: set[int] = set()
+    messages: list[str] = []
+    for j in np.unique(jj):
+        m = jj == j
+        if m.sum() < 2:
+            continue
+        off = float(np.linalg.norm(np.median(p[m], axis=0) - own[j]))
+        if off > tolerance_m:
+            dropped.add(int(j))
+            r = recs[j]
+            messages.append(f"{r.sat_id} record at line {r.line} is {off / 1000:.0f} km from "
+                            "the satellite's neighbouring records: dropped")
+    return [r for k, r in enumerate(recs) if k not in dropped], messages

@@ -1,8 +1,10 @@
 """A RINEX navigation file as an OrbitSet: one broadcast entry per satellite.
 
-Records are screened first (:func:`core.orbits.ephemeris_model.screen_records`: a record
-far from its satellite's neighbouring records is dropped with a message, as the "healthy"
-G01 record of a real file that holds G23's orbit). A satellite is healthy when at least one
+Records are screened first (:func:`core.orbits.ephemeris_model.screen_records`,
+:func:`core.orbits.glonass_model.screen_glonass`: a record far from its satellite's
+neighbouring records is dropped with a message, as the "healthy" G01 record of a real file
+that holds G23's orbit); the reader has already passed each record through the physical
+plausibility screen (:mod:`core.orbits.plausibility`). A satellite is healthy when at least one
 of its records is; its entry keeps all its records (toe order) and
 :mod:`core.orbits.broadcast` picks the one in force at each instant.
 """
@@ -15,6 +17,7 @@ import numpy as np
 
 from ...ground.timeutil import gps_to_unix_s
 from ..ephemeris_model import screen_records
+from ..glonass_model import screen_glonass
 from ..orbit_set import OrbitEntry, OrbitFileInfo, OrbitSet, SatelliteInfo
 from .rinex_nav import SYSTEM_NAMES, RinexNavFile, parse_rinex_nav
 
@@ -25,13 +28,14 @@ def nav_orbit_set(nav: RinexNavFile, reference_unix_s: float | None = None) -> O
     """The entries of a parsed navigation file; ``reference_unix_s`` sets the data age."""
     source = nav.path
     kept, screen_msgs = screen_records(nav.records)
-    warnings = [*nav.warnings, *(f"{source}: {m}" for m in screen_msgs)]
+    glonass, glo_msgs = screen_glonass(nav.glonass)
+    warnings = [*nav.warnings, *(f"{source}: {m}" for m in [*screen_msgs, *glo_msgs])]
     others = {k: v for k, v in nav.skipped.items() if v}
     if others:
         warnings.append(f"{source}: {', '.join(f'{v} {SYSTEM_NAMES.get(k, k)}' for k, v in others.items())} "
                         "record(s) skipped (systems not predicted from broadcast data)")
     by_sat: dict[str, list] = {}
-    for r in [*kept, *nav.glonass]:
+    for r in [*kept, *glonass]:
         by_sat.setdefault(r.sat_id, []).append(r)
     entries: list[OrbitEntry] = []
     for sid in sorted(by_sat, key=lambda x: (_ORDER.get(x[0], 9), x)):
@@ -68,6 +72,8 @@ def nav_orbit_set(nav: RinexNavFile, reference_unix_s: float | None = None) -> O
     return OrbitSet(entries, [info_file], warnings)
 
 
-def parse_broadcast(text: str, source: str, reference_unix_s: float | None = None) -> OrbitSet:
-    """Parse RINEX navigation text of any supported system into an OrbitSet."""
-    return nav_orbit_set(parse_rinex_nav(text, source), reference_unix_s)
+def parse_broadcast(text: str, source: str, reference_unix_s: float | None = None, *,
+                    strict: bool = True) -> OrbitSet:
+    """Parse RINEX navigation text of any supported system into an OrbitSet (``strict``:
+    an implausible record stops the reading; otherwise it is dropped with a warning)."""
+    return nav_orbit_set(parse_rinex_nav(text, source, strict=strict), reference_unix_s)

@@ -89,7 +89,7 @@ def parse_orbits(text: str, source: str, reference_time: datetime | float | None
     if fmt == "SEM":
         return parse_sem(text, source, reference_unix_s, strict=strict)
     if fmt == "RINEX-NAV":
-        return parse_broadcast(text, source, reference_unix_s)
+        return parse_broadcast(text, source, reference_unix_s, strict=strict)
     if fmt == "TLE":
         return with_reference(parse_tle(text, source, mapping, strict=strict,
                                         k_warning=k_warning), reference_unix_s)

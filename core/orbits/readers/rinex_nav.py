@@ -57,6 +57,7 @@ from ...ground.constants import (
 )
 from ...ground.errors import OrbitFormatError
 from ...ground.timeutil import unix_to_gps_s
+from ..plausibility import RecordScreen
 
 _FIELD_WIDTH = 19
 # A mantissa followed directly by a signed exponent with no letter (e.g. 0.4990-269).
@@ -261,9 +262,20 @@ def _resolve_toe_week(toc_cal_s: float, toe_sow_s: float) -> int:
     return toe_week
 
 
+_KEPLER_NAMES = {"sqrt_a_m05": "sqrt(A)", "eccentricity": "e", "inclination_rad": "i0",
+                 "node_rate_rad_s": "OMEGA DOT", "inclination_rate_rad_s": "IDOT",
+                 "mean_motion_delta_rad_s": "Delta n", "angle_rad:OMEGA0": "OMEGA0",
+                 "angle_rad:omega": "omega", "angle_rad:M0": "M0", "clock_bias_s": "af0",
+                 "clock_drift_s_s": "af1"}
+_KEPLER_LINE = {"sqrt_a_m05": 2, "eccentricity": 2, "inclination_rad": 4, "node_rate_rad_s": 4,
+                "inclination_rate_rad_s": 5, "mean_motion_delta_rad_s": 1,
+                "angle_rad:OMEGA0": 3, "angle_rad:omega": 4, "angle_rad:M0": 1,
+                "clock_bias_s": 0, "clock_drift_s_s": 0}
+
+
 def _kepler_record(system: str, prn: int, block: list[str], first_col: int, orbit_col: int,
-                   toc_cal_s: float, name: str, lineno: int, warnings: list[str]
-                   ) -> GpsEphemerisRecord | None:
+                   toc_cal_s: float, name: str, lineno: int, warnings: list[str],
+                   screen: RecordScreen) -> GpsEphemerisRecord | None:
     sid = f"{system}{prn:02d}"
     vals: dict[str, float] = {}
     for key, fld in zip(("af0_s", "af1_s_s", "af2_s_s2"), _fields(block[0], first_col, 3)):
@@ -277,6 +289,17 @@ def _kepler_record(system: str, prn: int, block: list[str], first_col: int, orbi
         warnings.append(f"{name} line {lineno}: {sid} record has an impossible orbit "
                         f"(sqrt(A) {vals['sqrt_a_m05']:g}, e {vals['eccentricity']:g}, toe "
                         f"{vals['toe_sow_s']:g} s): dropped")
+        return None
+    values = {"sqrt_a_m05": vals["sqrt_a_m05"], "eccentricity": vals["eccentricity"],
+              "inclination_rad": vals["i0_rad"], "node_rate_rad_s": vals["omega_dot_rad_s"],
+              "inclination_rate_rad_s": vals["idot_rad_s"],
+              "mean_motion_delta_rad_s": vals["delta_n_rad_s"],
+              "angle_rad:OMEGA0": vals["omega0_rad"], "angle_rad:omega": vals["arg_perigee_rad"],
+              "angle_rad:M0": vals["m0_rad"], "clock_bias_s": vals["af0_s"],
+              "clock_drift_s_s": vals["af1_s_s"]}
+    if not screen.keep(system, values, _KEPLER_NAMES, record=f"{sid} record", line=lineno,
+                       lines={k: lineno + v for k, v in _KEPLER_LINE.items()},
+                       kind="ephemeris"):
         return None
     offset = -BDT_MINUS_GPST_S if system == "C" else 0.0
     toe_week = _resolve_toe_week(toc_cal_s, vals["toe_sow_s"])
@@ -304,8 +327,8 @@ def _kepler_record(system: str, prn: int, block: list[str], first_col: int, orbi
 
 
 def _glonass_record(prn: int, block: list[str], first_col: int, orbit_col: int,
-                    toc_cal_s: float, name: str, lineno: int, warnings: list[str]
-                    ) -> GlonassRecord | None:
+                    toc_cal_s: float, name: str, lineno: int, warnings: list[str],
+                    screen: RecordScreen) -> GlonassRecord | None:
     sid = f"R{prn:02d}"
     head = [parse_rinex_float(f, file=name, line=lineno, field_name=k) for f, k in
             zip(_fields(block[0], first_col, 3), ("-TauN", "GammaN", "frame time"))]
@@ -320,6 +343,13 @@ def _glonass_record(prn: int, block: list[str], first_col: int, orbit_col: int,
         warnings.append(f"{name} line {lineno}: {sid} record has an impossible state "
                         f"(radius {r / 1000:.0f} km, channel {k_ch:g}): dropped")
         return None
+    vel = [1000.0 * vals[k] for k in ("vx", "vy", "vz")]
+    values = {"radius_m": r, "speed_m_s": math.sqrt(sum(v * v for v in vel)),
+              "clock_bias_s": head[0], "clock_drift_s_s": head[1]}
+    if not screen.keep("R", values, {"radius_m": "X, Y, Z", "speed_m_s": "VX, VY, VZ",
+                                     "clock_bias_s": "-TauN", "clock_drift_s_s": "GammaN"},
+                       record=f"{sid} record", line=lineno, kind="ephemeris"):
+        return None
     gps_s = float(unix_to_gps_s(toc_cal_s + GPS_EPOCH_UNIX_S))     # the epoch is UTC
     health = vals["health"]
     return GlonassRecord(
@@ -332,10 +362,15 @@ def _glonass_record(prn: int, block: list[str], first_col: int, orbit_col: int,
         age_days=vals["age_days"], line=lineno)
 
 
-def parse_rinex_nav(text: str, source: str, systems: tuple[str, ...] = ALL_SYSTEMS
-                    ) -> RinexNavFile:
-    """Parse RINEX 2.x / 3.x navigation text; keep the records of ``systems``."""
+def parse_rinex_nav(text: str, source: str, systems: tuple[str, ...] = ALL_SYSTEMS,
+                    *, strict: bool = True) -> RinexNavFile:
+    """Parse RINEX 2.x / 3.x navigation text; keep the records of ``systems``.
+
+    Every record passes the physical plausibility screen (:mod:`core.orbits.plausibility`):
+    ``strict`` stops at the first implausible record, otherwise it is dropped with a
+    warning."""
     name = source
+    screen = RecordScreen(source, strict)
     lines = text.splitlines()
     if not lines or not text.strip():
         raise OrbitFormatError("the file is empty", file=name)
@@ -419,15 +454,17 @@ def parse_rinex_nav(text: str, source: str, systems: tuple[str, ...] = ALL_SYSTE
         toc_cal = _calendar_s(parts, name, lineno)
         block = lines[i:i + needed]
         if system == "R":
-            g = _glonass_record(prn, block, first_col, orbit_col, toc_cal, name, lineno, warnings)
+            g = _glonass_record(prn, block, first_col, orbit_col, toc_cal, name, lineno, warnings,
+                                screen)
             if g is not None:
                 glonass.append(g)
         else:
             r = _kepler_record(system, prn, block, first_col, orbit_col, toc_cal, name, lineno,
-                               warnings)
+                               warnings, screen)
             if r is not None:
                 records.append(r)
         i += max(n_lines, needed)
+    warnings.extend(screen.warnings)
     if not records and not glonass:
         kept = ", ".join(SYSTEM_NAMES[s] for s in systems if s in SYSTEM_NAMES)
         raise OrbitFormatError(f"no navigation records of {kept} found", file=name)
