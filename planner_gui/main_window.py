@@ -54,7 +54,7 @@ from core.api import (
 )
 
 from .models import PlanModel
-from .scenario_panel import ScenarioPanel
+from .scenario_panel import ORBIT_FILE_FILTER, ScenarioPanel
 from .settings import PlannerSettings
 from .style import SAFETY_CAUTIONS, SIGN_CONVENTIONS
 from .views import (
@@ -643,7 +643,7 @@ class PlannerWindow(QMainWindow):
 
     def add_orbit_files_dialog(self) -> None:
         paths, _ = QFileDialog.getOpenFileNames(self, "Add orbit files", self.settings.last_folder("orbits"),
-                                                "Orbit files (*.txt *.alm *.yuma *.sem *.tle *.3le);;All files (*)")
+                                                ORBIT_FILE_FILTER)
         if paths:
             self.settings.set_last_folder("orbits", paths[0])
             self.add_orbit_files(paths)
@@ -932,7 +932,8 @@ class PlannerWindow(QMainWindow):
         plan = result.plan
         ages = [f.age_s for f in plan.orbit_files if f.age_s is not None]
         if ages:
-            lo, hi = min(ages) / 86400.0, max(ages) / 86400.0
+            # round first, so that a broadcast file centred on the start reads 0.0, not -0.0
+            lo, hi = (round(x / 86400.0, 1) + 0.0 for x in (min(ages), max(ages)))
             span = f"{lo:.1f} days" if abs(hi - lo) < 0.05 else f"{lo:.1f}–{hi:.1f} days"
             self.status_age.setText(f"orbit data {span} old at the start")
         else:

@@ -71,7 +71,7 @@ GROUPS: tuple[tuple[str, str], ...] = (
 FIELDS: dict[str, tuple[str, int, float]] = {
     "name": ("Name", 0, 1),
     "format_version": ("Scenario file layout", 0, 1),
-    "orbits.files": ("Orbit files (YUMA, SEM, TLE)", 0, 1),
+    "orbits.files": ("Orbit files (YUMA, SEM, TLE, RINEX nav)", 0, 1),
     "orbits.mapping": ("GLONASS slot/channel file", 0, 1),
     "site.lat_deg": ("Latitude (°, north +)", 6, 0.01),
     "site.lon_deg": ("Longitude (°, east +)", 6, 0.01),
@@ -118,7 +118,7 @@ ADVANCED = ("format_version", "search.monte_carlo_runs", "search.seed")
 
 PRIORITY_TEXT = {"elevation": "highest elevation first", "rising": "rising satellites first"}
 ORBIT_FILE_FILTER = ("Orbit files (*.txt *.alm *.al3 *.yuma *.sem *.tle *.3le *.agl *.nav "
-                     "*.rnx *.*n *.*g *.*p *.sp3);;All files (*)")
+                     "*.rnx *.*n *.*g *.*q *.*p *.sp3 *.gz *.Z);;All files (*)")
 MAPPING_FILE_FILTER = "Mapping files (*.txt *.csv);;All files (*)"
 
 _PROBLEM_STYLE = "border: 2px solid #D55E00; border-radius: 3px;"
