@@ -86,6 +86,8 @@ FILE_NAMES = {
     "glonass_tle": "demo_glonass.tle",
     "glonass_mapping": "demo_glonass_mapping.txt",
     "scenario": "demo_scenario.toml",
+    "drive_route": "demo_drive_route.csv",
+    "drive_scenario": "demo_drive_scenario.toml",
     "readme": "README.md",
 }
 
@@ -572,6 +574,145 @@ elevation_deg = 10
 """
 
 
+# ---------------------------------------------------------------------------------------
+# The invented drive: a loop around the proving ground (issue 8's demo)
+
+# Loop centre 7 km south-east of the site; the road's distance from the centre swings
+# with the heading angle theta (all invented): r = 8.6 km + 2.2 sin(3 theta) + 0.9 cos(5 theta).
+DRIVE_CENTRE_OFFSET = (135.0, 7000.0)      # azimuth (deg) and distance (m) from the site
+DRIVE_POINTS = 480
+# Named places along the loop: theta (deg) -> name (all invented).
+DRIVE_WAYPOINTS = {0.0: "Depot Hainvelde", 54.0: "Waldeck", 96.0: "Forsthaus Lindach",
+                   150.0: "Altmarkt Kressing", 216.0: "Kressberg tunnel", 300.0: "Sennfeld crossing"}
+DRIVE_DWELL_S = {"Altmarkt Kressing": 120.0}
+
+
+def _drive_geometry():
+    from geographiclib.geodesic import Geodesic
+
+    g = Geodesic.WGS84
+    c = g.Direct(SITE_LAT_DEG, SITE_LON_DEG, DRIVE_CENTRE_OFFSET[0], DRIVE_CENTRE_OFFSET[1])
+    rows = []
+    start = None
+    for k in range(DRIVE_POINTS + 1):
+        theta = 360.0 * k / DRIVE_POINTS
+        th = math.radians(theta)
+        r = 8600.0 + 2200.0 * math.sin(3 * th) + 900.0 * math.cos(5 * th)
+        p = g.Direct(c["lat2"], c["lon2"], (theta + 315.0) % 360.0, r)
+        h = SITE_HEIGHT_M + 40.0 * math.sin(2 * th) + 15.0 * math.cos(7 * th)
+        name = DRIVE_WAYPOINTS.get(round(theta, 6), "")
+        if k == DRIVE_POINTS:
+            name = ""            # the loop closes on the depot's point
+        rows.append((p["lat2"], p["lon2"], h, name))
+        if start is None:
+            start = p
+    dist = [0.0]
+    for a, b in zip(rows, rows[1:]):
+        dist.append(dist[-1] + g.Inverse(a[0], a[1], b[0], b[1], Geodesic.DISTANCE)["s12"])
+    return rows, dist
+
+
+def drive_route_text() -> str:
+    """The invented loop as a route CSV without times (timed from the planned speeds)."""
+    rows, _ = _drive_geometry()
+    lines = ["# acqplan demo route: INVENTED loop around the fictional Hainvelde Proving Ground.",
+             "# No times: the scenario times it from planned speeds. Columns: docs/scenario-keys.md",
+             "time_utc,lat_deg,lon_deg,height_m,name"]
+    for lat, lon, h, name in rows:
+        lines.append(f",{lat:.7f},{lon:.7f},{h:.1f},{name}")
+    return "\n".join(lines) + "\n"
+
+
+def _drive_km(theta_deg: float) -> float:
+    _, dist = _drive_geometry()
+    return round(dist[int(round(theta_deg / 360.0 * DRIVE_POINTS))] / 1000.0, 3)
+
+
+def drive_scenario_text() -> str:
+    """The demo drive scenario: the demo scenario's receiver on the invented loop."""
+    f = FILE_NAMES
+    base = scenario_text()
+    head, body = base.split("[orbits]", 1)
+    rows, dist = _drive_geometry()
+    length_km = dist[-1] / 1000.0
+    canyon = (_drive_km(141.0), _drive_km(159.0))
+    tunnel = (_drive_km(216.0), _drive_km(216.0) + 1.4)
+    return f"""\
+# acqplan demo DRIVE scenario: INVENTED data (fictional site, route, date, satellites).
+# Regenerate with: python scripts/generate_demo.py    Keys: docs/scenario-keys.md
+#
+# The demo receiver driven once round the invented {length_km:.1f} km loop around the
+# {SITE_NAME}: a forest road, the street canyon of an invented market town, a tunnel.
+# Safety: the driver only drives; a second person works the laptop. Follow traffic law,
+# the site's rules and local rules on radio equipment.
+
+name = "{SITE_NAME} loop drive, 18 May 2027 (invented demo)"
+format_version = 1
+
+[orbits]{body}
+[route]
+file = "{f['drive_route']}"
+speed_kmh = 60                     # planned speed where no stretch sets one
+slip_min = 3                       # up to 3 minutes early or late on the timetable
+speed_uncertainty_kmh = 10
+heading_uncertainty_deg = 15
+event_horizon_min = 10             # each event planned over 10 minutes from its time
+outage_drift_ppb_per_s = 0.2
+
+[route.dwell_s]
+"Altmarkt Kressing" = {DRIVE_DWELL_S['Altmarkt Kressing']:g}    # stop in the market square
+
+[[route.stretch]]
+kind = "trees"
+from = "Waldeck"
+to = "Forsthaus Lindach"
+name = "Lindach forest road"
+extra_loss_db = 8
+speed_kmh = 50
+
+[[route.stretch]]
+kind = "canyon"
+from = {canyon[0]}
+to = {canyon[1]}
+name = "Kressing old town"
+building_height_m = 16
+street_width_m = 12
+speed_kmh = 30
+
+[[route.stretch]]
+kind = "outage"
+from = {tunnel[0]:.3f}
+to = {tunnel[1]:.3f}
+name = "Kressberg tunnel"
+speed_kmh = 70
+
+[[event]]
+kind = "cold"
+at = "Depot Hainvelde"
+name = "cold start at the depot"
+
+[[event]]
+kind = "warm"
+at = 12.0
+name = "warm start on the ring road"
+
+[[event]]
+kind = "hot"
+at = "Altmarkt Kressing"
+name = "hot start in the market square"
+
+[[event]]
+kind = "hot"
+at = "Sennfeld crossing"
+name = "hot start at the crossing"
+
+[[event]]
+kind = "warm"
+at = "2027-05-18T05:30:00Z"
+name = "warm start back at the depot"
+"""
+
+
 def readme_text() -> str:
     f = FILE_NAMES
     return f"""\
@@ -605,6 +746,8 @@ Follow traffic law and the rules of the test site.
 | `{f['glonass_tle']}` | GLONASS, 3 planes x 8, a = 25,508 km, i = 64.8 deg (90101-90124); names carry no slot |
 | `{f['glonass_mapping']}` | catalogue number, slot ID and channel k of each GLONASS TLE |
 | `{f['scenario']}` | the demo scenario |
+| `{f['drive_route']}` | an invented loop around the proving ground (route CSV, no times, named waypoints) |
+| `{f['drive_scenario']}` | the demo receiver driven round the loop: forest, street canyon, tunnel, five events and a re-acquisition after the tunnel |
 
 ## How the orbits were made
 
@@ -646,6 +789,8 @@ def demo_files() -> dict[str, str]:
         f["glonass_tle"]: tle_text(glo),
         f["glonass_mapping"]: glonass_mapping_text(glo),
         f["scenario"]: scenario_text(),
+        f["drive_route"]: drive_route_text(),
+        f["drive_scenario"]: drive_scenario_text(),
         f["readme"]: readme_text(),
     }
 

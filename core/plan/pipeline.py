@@ -56,6 +56,7 @@ from ..search.windows import (
     ShiftSummary,
     Uncertainty,
     doppler_windows,
+    full_range_windows,
     oscillator_fraction_after,
     shift_summary,
     windows_after_first_acquisition,
@@ -105,6 +106,10 @@ class PreparedGeometry:
     # the windows, and the surroundings' attenuation (dB) per (S, T) for the C/N0.
     motion: RouteMotion | None = None
     extra_loss_db: np.ndarray | float = 0.0
+    # A start that knows nothing (cold): the whole Doppler range per satellite (S,), Hz,
+    # and the fastest receiver speed (m/s), instead of windows from the uncertainties.
+    full_range_hz: np.ndarray | None = None
+    full_range_speed_m_s: float = 0.0
 
 
 def _select_satellites(orbits: OrbitSet, signals: tuple[str, ...]) -> tuple[OrbitSet, dict[str, str], list[str]]:
@@ -126,11 +131,12 @@ def _select_satellites(orbits: OrbitSet, signals: tuple[str, ...]) -> tuple[Orbi
     return orbits.select(keep), by_system, warnings
 
 
-def prepare_geometry(sc: Scenario, progress: ProgressFn | None = None,
-                     cancel: CancelFn | None = None) -> PreparedGeometry:
+def load_satellites(sc: Scenario, progress: ProgressFn | None = None
+                    ) -> tuple[OrbitSet, dict[str, str], list[str]]:
+    """Stage 0a: the scenario's orbit files read, and the satellites of the chosen signals
+    (the acquisition signal per system) with the warnings of that choice."""
     from ..orbits.readers import load_orbit_files
 
-    t0 = _time.perf_counter()
     missing = sc.missing_orbit_files()
     if missing:
         raise InputError("orbit file not found (moved or deleted?)", file=str(missing[0]))
@@ -139,7 +145,13 @@ def prepare_geometry(sc: Scenario, progress: ProgressFn | None = None,
     _report(progress, 0.02, "reading orbit files")
     orbits = load_orbit_files(sc.resolved_orbit_files(), reference_time=sc.time.start_unix_s,
                               mapping=sc.resolved_mapping())
-    orbits, by_system, warnings = _select_satellites(orbits, tuple(sc.receiver.signals))
+    return _select_satellites(orbits, tuple(sc.receiver.signals))
+
+
+def prepare_geometry(sc: Scenario, progress: ProgressFn | None = None,
+                     cancel: CancelFn | None = None) -> PreparedGeometry:
+    t0 = _time.perf_counter()
+    orbits, by_system, warnings = load_satellites(sc, progress)
     site = Site(sc.site.lat_deg, sc.site.lon_deg, sc.site.height_m)
     grid = time_grid(sc.time.start, sc.time.end, sc.time.step_s)
     if len(grid) < 2:
@@ -412,7 +424,11 @@ def first_windows(g: PreparedGeometry, unc: Uncertainty, margins: OrbitMargins
     wkey = (unc, margins.doppler_hz.tobytes())
     cached = g.window_cache.get(wkey)
     if cached is None:
-        w_raw = doppler_windows(g.prediction, unc, margins.doppler_hz, shifted=g.shifted, motion=g.motion)
+        if g.full_range_hz is not None:
+            w_raw = full_range_windows(g.prediction, unc, g.full_range_hz, g.full_range_speed_m_s)
+        else:
+            w_raw = doppler_windows(g.prediction, unc, margins.doppler_hz, shifted=g.shifted,
+                                    motion=g.motion)
         cached = (w_raw, _widen_for_unknown_k(w_raw, unknown_glonass_k(g)))
         g.window_cache.clear()
         g.window_cache[wkey] = cached

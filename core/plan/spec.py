@@ -144,6 +144,7 @@ KEY_RULES: tuple[KeyRule, ...] = (
 )
 
 RULES_BY_DOTTED: dict[str, KeyRule] = {r.dotted: r for r in KEY_RULES}
+DRIVE_SECTIONS: tuple[str, ...] = ("route", "event")     # their keys: core.plan.drive
 SECTIONS: tuple[str, ...] = ("orbits", "site", "time", "receiver", "search", "signal", "mask")
 # Sections with no required key: absent, every value is a default. A saved scenario holds
 # them all, so their absence is reported (Scenario.defaults_used), never an error.
@@ -278,6 +279,9 @@ class Scenario:
     search: SearchSpec = SearchSpec()
     signal: SignalSpec = SignalSpec()
     mask: MaskSpec = MaskSpec()
+    # The drive (core.plan.drive): a route and test events; None / () = a single site.
+    route: Any = None
+    events: tuple = ()
     path: Path | None = field(default=None, compare=False)
     base_dir: Path = field(default_factory=Path.cwd, compare=False)
     # Sections that every saved scenario holds but this one's file left out (or left
@@ -335,6 +339,9 @@ class Scenario:
                     per[sid] = sub
                 table["per_signal"] = per
             out[section] = table
+        if self.route is not None or self.events:
+            from .drive import drive_to_dict
+            out.update(drive_to_dict(self.route, self.events))
         return out
 
     @classmethod
@@ -720,9 +727,9 @@ def _build(d: Mapping[str, Any], *, base_dir: Any, path: Any, text: str | None) 
                 tables[key] = {}
             else:
                 tables[key] = v
-        elif key not in _SECTION_KEYS[""]:
+        elif key not in _SECTION_KEYS[""] and key not in DRIVE_SECTIONS:
             kind = "section" if isinstance(v, Mapping) else "key"
-            chk.unknown(key, key, (*_SECTION_KEYS[""], *SECTIONS), kind)
+            chk.unknown(key, key, (*_SECTION_KEYS[""], *SECTIONS, *DRIVE_SECTIONS), kind)
 
     per_signal: list[tuple[str, SignalOverride]] = []
     for section in ("", *SECTIONS):
@@ -767,6 +774,9 @@ def _build(d: Mapping[str, Any], *, base_dir: Any, path: Any, text: str | None) 
                 f"cn0_zenith_dbhz = {s['cn0_zenith_dbhz']:g} dB-Hz; C/N0 at the mask may not exceed "
                 "the zenith value")
 
+    from .drive import check_drive
+    drive_route, drive_events = check_drive(chk, d.get("route"), d.get("event"))
+
     if chk.problems:
         raise ScenarioValidationError(chk.problems, file=file)
 
@@ -778,7 +788,7 @@ def _build(d: Mapping[str, Any], *, base_dir: Any, path: Any, text: str | None) 
         base_dir = path.resolve().parent if path is not None else Path.cwd()
     defaulted = tuple(sec for sec in DEFAULTABLE_SECTIONS if not tables.get(sec))
     return Scenario(name=values[""]["name"], path=path, base_dir=Path(base_dir),
-                    defaults_used=defaulted, **specs)
+                    defaults_used=defaulted, route=drive_route, events=drive_events, **specs)
 
 
 def _check_per_signal(chk: _Checker, v: Any) -> list[tuple[str, SignalOverride]]:

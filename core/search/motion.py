@@ -88,6 +88,8 @@ class RouteMotion:
 
 
 def _leg_end_azimuths(route: Route) -> np.ndarray:
+    if route.leg_end_azimuth_deg is not None:
+        return np.asarray(route.leg_end_azimuth_deg, dtype=float)
     n = route.lat_deg.size
     out = np.array(route.leg_azimuth_deg, dtype=float)
     for j in range(n - 1):

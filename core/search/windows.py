@@ -343,6 +343,47 @@ def _route_windows(pred: Prediction, unc: Uncertainty, orbit_margin_hz, shifted:
     return DopplerWindows(nominal, nominal + sum(lows.values()), nominal + sum(highs.values()), lows, highs)
 
 
+def full_range_windows(pred: Prediction, unc: Uncertainty, max_doppler_hz: np.ndarray,
+                       max_receiver_speed_m_s: float = 0.0) -> DopplerWindows:
+    """Windows of a receiver that knows neither where nor when it is (a cold start): every
+    satellite's whole Doppler range +-``max_doppler_hz`` (S,) (see
+    :func:`max_doppler_anywhere_hz`), the receiver's own speed in any direction, and the
+    oscillator exactly as for any window. Booked as "position" (satellite Doppler range),
+    "velocity" (receiver speed) and "oscillator"."""
+    f_c = pred.carrier_hz[:, None]
+    lam = pred.wavelength_m[:, None]
+    shape = pred.doppler_hz.shape
+    d_max = np.broadcast_to(np.asarray(max_doppler_hz, dtype=float)[:, None], shape)
+    vel = np.broadcast_to(max_receiver_speed_m_s / lam, shape)
+    zero = np.zeros(shape)
+    nominal = apparent_doppler_hz(zero, f_c, unc.oscillator_offset_ppb)
+    e0, de = unc.oscillator_offset_ppb, unc.oscillator_uncertainty_ppb
+    top = d_max + vel
+    o_low = apparent_doppler_hz(-top, f_c, e0 + de) - (nominal - top)
+    o_high = apparent_doppler_hz(top, f_c, e0 - de) - (nominal + top)
+    lows = {"position": -d_max, "time": zero, "velocity": -vel, "oscillator": np.minimum(o_low, 0.0),
+            "orbit": zero}
+    highs = {"position": d_max + 0.0, "time": zero, "velocity": vel + 0.0, "oscillator": np.maximum(o_high, 0.0),
+             "orbit": zero}
+    return DopplerWindows(nominal, nominal + sum(lows.values()), nominal + sum(highs.values()), lows, highs)
+
+
+def max_doppler_anywhere_hz(pred: Prediction) -> np.ndarray:
+    """(S,) the largest |Doppler| a satellite can show to a receiver standing anywhere on
+    the Earth during the grid: |v_horizontal| R / r + |v_radial| over the wavelength
+    [calc: the line of sight from the surface is at most asin(R / r) off the nadir; its
+    component along the orbital velocity is at most sin of that], R the Earth's equatorial
+    radius. Needs the states (predict(keep_states=True))."""
+    pos, vel = pred.sat_pos_ecef_m, pred.sat_vel_ecef_m_s
+    if pos is None:
+        raise ValueError("the cold-start range needs predict(..., keep_states=True)")
+    r = np.linalg.norm(pos, axis=-1)
+    v_r = np.sum(pos * vel, axis=-1) / r
+    v_h = np.sqrt(np.maximum(np.sum(vel * vel, axis=-1) - v_r * v_r, 0.0))
+    d = (v_h * WGS84_A_M / r + np.abs(v_r)) / pred.wavelength_m[:, None]
+    return np.nanmax(np.where(pred.valid, d, np.nan), axis=1)
+
+
 def oscillator_fraction_after(w: DopplerWindows, carrier_hz: np.ndarray, sats, ks,
                                bin_half_width_hz) -> float:
     """Fractional oscillator uncertainty once one of the satellites ``sats`` (acquired at

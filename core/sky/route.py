@@ -81,6 +81,14 @@ class RouteFile:
     def n_points(self) -> int:
         return int(self.lat_deg.size)
 
+    def legs(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """:func:`leg_geodesics` of the points, computed once."""
+        cached = self.__dict__.get("_legs")
+        if cached is None:
+            cached = leg_geodesics(self.lat_deg, self.lon_deg)
+            self.__dict__["_legs"] = cached
+        return cached
+
     def time_problem(self) -> str | None:
         """Why the recorded times cannot be driven, or None when they can."""
         t = self.time_unix_s
@@ -270,24 +278,23 @@ def read_route_file(path: str | Path) -> RouteFile:
 
 # --- geodesics along the polyline --------------------------------------------------------
 
-def leg_geodesics(lat_deg: np.ndarray, lon_deg: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Length (m) and start azimuth (deg) of the geodesic from each point to the next."""
+def leg_geodesics(lat_deg: np.ndarray, lon_deg: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Length (m), start azimuth and end azimuth (deg) of the geodesic from each point to
+    the next."""
     n = lat_deg.size
-    s12 = np.zeros(max(n - 1, 0))
-    azi = np.zeros(max(n - 1, 0))
+    out = np.zeros((3, max(n - 1, 0)))
     for k in range(n - 1):
         g = GEOD.Inverse(lat_deg[k], lon_deg[k], lat_deg[k + 1], lon_deg[k + 1],
                          Geodesic.DISTANCE | Geodesic.AZIMUTH)
-        s12[k] = g["s12"]
-        azi[k] = g["azi1"]
-    return s12, azi
+        out[:, k] = g["s12"], g["azi1"], g["azi2"]
+    return out[0], out[1], out[2]
 
 
 def place_waypoints(rf: RouteFile, named: list[tuple[str, float, float]]) -> list[Waypoint]:
     """Each named waypoint on its nearest route point (geodesic distance)."""
     if not named or rf.n_points == 0:
         return []
-    s12, _ = leg_geodesics(rf.lat_deg, rf.lon_deg)
+    s12 = rf.legs()[0]
     dist = np.concatenate(([0.0], np.cumsum(s12)))
     out = []
     for name, la, lo in named:
@@ -295,8 +302,8 @@ def place_waypoints(rf: RouteFile, named: list[tuple[str, float, float]]) -> lis
         d2 = (rf.lat_deg - la) ** 2 + ((rf.lon_deg - lo) * math.cos(math.radians(la))) ** 2
         best = np.argsort(d2)[:5]
         offs = [GEOD.Inverse(la, lo, rf.lat_deg[b], rf.lon_deg[b], Geodesic.DISTANCE)["s12"] for b in best]
-        k = int(best[int(np.argmin(offs))])
-        out.append(Waypoint(name, float(la), float(lo), k, float(dist[k]), float(min(offs))))
+        off, k = min((round(o, 3), int(b)) for o, b in zip(offs, best))   # ties: the first point
+        out.append(Waypoint(name, float(la), float(lo), k, float(dist[k]), float(off)))
     out.sort(key=lambda w: w.distance_m)
     return out
 
@@ -346,6 +353,7 @@ class Route:
     waypoints: list[Waypoint]
     timing: str                    # "recorded", "recorded, shifted by ... s", "planned speed"
     notes: list[str] = field(default_factory=list)
+    leg_end_azimuth_deg: np.ndarray | None = None   # (N - 1,) azimuth at each leg's end
 
     @property
     def length_m(self) -> float:
@@ -461,7 +469,7 @@ def time_route(rf: RouteFile, *, start_unix_s: float | None = None, shift_to_sta
     ``dwell_s`` seconds at the named waypoints."""
     if rf.n_points == 0:
         raise InputError("the route file holds no track or route points", file=rf.path)
-    s12, azi = leg_geodesics(rf.lat_deg, rf.lon_deg)
+    s12, azi, azi_end = rf.legs()
     dist = np.concatenate(([0.0], np.cumsum(s12)))
     notes = list(rf.problems)
     problem = rf.time_problem()
@@ -475,7 +483,7 @@ def time_route(rf: RouteFile, *, start_unix_s: float | None = None, shift_to_sta
             t = t + shift
             timing = f"recorded, shifted by {shift:+.0f} s to start at {iso_z(start_unix_s)}"
         return Route(rf.path, rf.lat_deg.copy(), rf.lon_deg.copy(), rf.height_m.copy(), t, dist,
-                     azi, list(rf.waypoints), timing, notes)
+                     azi, list(rf.waypoints), timing, notes, azi_end)
     if speed_m_s is None and not stretch_speeds:
         raise InputError(f"the recorded times cannot be driven: {problem}; give a planned speed "
                          f"({field_prefix}.speed_kmh) to time the route", file=rf.path)
@@ -524,17 +532,19 @@ def time_route(rf: RouteFile, *, start_unix_s: float | None = None, shift_to_sta
     d_out = dist[idx_a]
     az_full = np.concatenate((azi, [azi[-1] if azi.size else 0.0]))
     az_out = az_full[idx_a[:-1]]
+    az_end = np.concatenate((azi_end, [azi_end[-1] if azi_end.size else 0.0]))[idx_a[:-1]]
+    az_end = np.where(np.diff(d_out) > 0, az_end, az_out)      # a dwell leg keeps its start azimuth
     wps = [Waypoint(w.name, w.lat_deg, w.lon_deg, int(np.searchsorted(idx_a, w.index)), w.distance_m, w.offset_m)
            for w in rf.waypoints]
     timing = "planned speed" + (" per stretch" if stretch_speeds else "")
     return Route(rf.path, rf.lat_deg[idx_a], rf.lon_deg[idx_a], rf.height_m[idx_a], np.array(times),
-                 d_out, az_out, wps, timing, notes)
+                 d_out, az_out, wps, timing, notes, az_end)
 
 
 def route_file_summary(rf: RouteFile, speed_m_s: float | None = None) -> dict:
     """What ``acqplan route`` prints: length, duration (recorded or at the planned speed),
     points, segments (each with its points, length and times) and problems."""
-    s12, _ = leg_geodesics(rf.lat_deg, rf.lon_deg) if rf.n_points else (np.zeros(0), None)
+    s12 = rf.legs()[0]
     problems = list(rf.problems)
     segments = []
     for a, b in rf.segments:

@@ -1,0 +1,208 @@
+"""Test events along a drive: the demo loop, outage re-acquisitions, scenario keys."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from core.files.demo import write_demo
+from core.files.scenario import load_scenario
+from core.ground.errors import InputError
+from core.plan.events import (
+    HOT_OSCILLATOR_UNCERTAINTY_PPB,
+    plan_drive,
+    reacquire_time_uncertainty_s,
+    single_site_equivalent,
+)
+from core.plan.pipeline import make_plan, plan_to_json
+from core.search.windows import Uncertainty, doppler_windows
+from core.sky.predict import predict
+
+
+@pytest.fixture(scope="module")
+def demo_dir(tmp_path_factory):
+    d = tmp_path_factory.mktemp("demo")
+    write_demo(d)
+    return d
+
+
+@pytest.fixture(scope="module")
+def drive(demo_dir):
+    sc = load_scenario(demo_dir / "demo_drive_scenario.toml")
+    return sc, plan_drive(sc)
+
+
+def test_demo_loop_and_events(drive):
+    sc, dp = drive
+    r = dp.drive.route
+    assert 40_000 <= r.length_m <= 80_000            # issue 8: a loop of 40-80 km
+    kinds = [s.kind for s in dp.drive.stretches]
+    assert {"trees", "canyon", "outage"} <= set(kinds)
+    assert len(dp.events) >= 4
+    assert [e.event.kind for e in dp.events].count("reacquire") == 1     # made by the tunnel
+    assert dp.events == sorted(dp.events, key=lambda e: e.event.unix_s)
+    for e in dp.events:
+        assert e.plan.times.start_unix_s == pytest.approx(e.event.unix_s)
+        assert e.ttff_p95_s is not None and e.ttff_p95_s >= e.ttff_median_s
+        assert e.first_fix_unix_s is not None and e.first_fix_unix_s > e.event.unix_s
+    # [trade] a cold start takes longest; hot and re-acquisition are quick.
+    assert dp.worst.event.kind == "cold"
+    hot = [e for e in dp.events if e.event.kind in ("hot", "reacquire")]
+    warm = [e for e in dp.events if e.event.kind == "warm"]
+    assert max(e.ttff_median_s for e in hot) < min(e.ttff_median_s for e in warm)
+
+
+def test_canyon_blocks_satellites_across_the_street(drive):
+    sc, dp = drive
+    ev = next(e for e in dp.events if e.stretch == "Kressing old town")
+    assert ev.blocked_ids and ev.visible_ids
+    pred = ev.plan.prediction
+    st = dp.drive.stretches[[s.name for s in dp.drive.stretches].index("Kressing old town")]
+    h = st.building_height_m - 1.5
+    for sid in ev.blocked_ids:
+        s = pred.index(sid)
+        rel = math.radians(pred.azimuth_deg[s, 0] - ev.heading_deg)
+        # [calc] behind the wall: elevation below atan(h |sin b| / (w/2))
+        assert pred.elevation_deg[s, 0] < math.degrees(math.atan2(h * abs(math.sin(rel)), st.street_width_m / 2))
+        assert not ev.plan.visible[s, 0]
+
+
+def test_cold_start_searches_the_whole_doppler_range(drive):
+    sc, dp = drive
+    ev = next(e for e in dp.events if e.event.kind == "cold")
+    w = ev.plan.windows_first
+    gps = [i for i, s in enumerate(ev.plan.satellites) if s.system == "G" and ev.plan.visible[i, 0]]
+    half = w.share_hz["position"][gps, 0]
+    # [mem: Kaplan & Hegarty, Understanding GPS, 2nd ed., sec. 9: the Doppler of a GPS
+    # satellite seen from the ground stays within about +-5 kHz at L1]
+    assert np.all((4000.0 < half) & (half < 5200.0))
+    true_d = ev.plan.prediction.doppler_hz[gps, 0]
+    assert np.all(np.abs(true_d) < half)
+
+
+def test_outage_growth_and_window_order(demo_dir, tmp_path):
+    # A 60 s outage: the re-acquisition window lies between the hot and the warm one, and
+    # its oscillator term is the documented e0 + drift L.
+    text = (demo_dir / "demo_drive_scenario.toml").read_text()
+    text = text.replace("speed_kmh = 70", "speed_kmh = 84")       # 1.4 km at 84 km/h = 60 s [calc]
+    (demo_dir / "t60.toml").write_text(text)
+    sc = load_scenario(demo_dir / "t60.toml")
+    dp0 = plan_drive(sc, monte_carlo=False)
+    r = next(e for e in dp0.events if e.event.kind == "reacquire")
+    assert r.event.outage_s == pytest.approx(60.0, abs=0.01)
+    at = r.event.unix_s
+    lines = text.split("[[event]]")[0]
+    lines += "".join(f'[[event]]\nkind = "{k}"\nat = "{_iso(at)}"\n' for k in ("hot", "warm"))
+    (demo_dir / "t60b.toml").write_text(lines)
+    dp = plan_drive(load_scenario(demo_dir / "t60b.toml"), monte_carlo=False)
+    by = {e.event.kind: e for e in dp.events}
+    rq, hot, warm = by["reacquire"], by["hot"], by["warm"]
+    wid = {k: e.plan.windows_first.width_hz[:, 0] for k, e in by.items()}
+    vis = rq.plan.visible[:, 0] & hot.plan.visible[:, 0] & warm.plan.visible[:, 0]
+    assert np.all(wid["reacquire"][vis] > wid["hot"][vis])
+    assert np.all(wid["reacquire"][vis] < wid["warm"][vis])
+    # Oscillator: e(L) = 20 ppb + 0.2 ppb/s x 60 s = 32 ppb; its half-width is
+    # f_c e / (1 - e^2) at zero Doppler offset, about f_c e [calc]
+    assert rq.event.knowledge.oscillator_uncertainty_ppb == pytest.approx(HOT_OSCILLATOR_UNCERTAINTY_PPB + 12.0)
+    f_c = rq.plan.prediction.carrier_hz
+    osc = rq.plan.windows_first.share_hz["oscillator"][:, 0]
+    assert np.allclose(osc[vis], f_c[vis] * 32e-9, rtol=2e-3)
+    # Clock: 1 us + 20 ppb x 60 s + 0.2 ppb/s x 60^2 / 2 = 2.56 us [calc]
+    assert reacquire_time_uncertainty_s(60.0, 0.2) == pytest.approx(2.56e-6, rel=1e-9)
+    assert rq.event.knowledge.fine_time_us == pytest.approx(2.56, rel=1e-6)
+    # Position: hot 0.05 km + 1.4 km driven + 10 km/h x 60 s = 1.6167 km [calc]
+    assert rq.event.knowledge.horizontal_uncertainty_km == pytest.approx(0.05 + 1.4 + 10 / 3.6 * 60 / 1000, rel=1e-6)
+
+
+def _iso(u):
+    from core.ground.timeutil import iso_z
+
+    return iso_z(u, 0)
+
+
+def test_route_window_narrower_than_the_single_site_cover(drive):
+    # The single site covering the same drive (its centre, the farthest point as the
+    # horizontal uncertainty, the fastest speed in any direction) needs wider windows.
+    sc, dp = drive
+    ev = next(e for e in dp.events if e.event.kind == "warm")
+    g = ev.plan.prepared
+    t0, t1 = ev.plan.times.start_unix_s, ev.plan.times.end_unix_s
+    site, radius_m, vmax = single_site_equivalent(dp.drive.route, t0 - 180.0, t1 + 180.0, 10 / 3.6)
+    pred = predict(g.orbits, site, ev.plan.times)
+    k = ev.event.knowledge
+    unc = Uncertainty(k.horizontal_uncertainty_km * 1000 + radius_m, k.vertical_uncertainty_m, k.time_uncertainty_s,
+                      vmax, 1.0, 0.0, k.oscillator_uncertainty_ppb)
+    w_site = doppler_windows(pred, unc)
+    vis = ev.plan.visible
+    ratio = (ev.plan.windows_first.width_hz[vis] / w_site.width_hz[vis])
+    assert np.all(ratio < 1.0)
+    print(f"route / single-site window width on {ev.event.id}: median {np.median(ratio):.3f}")
+
+
+def test_event_json_layout(drive):
+    sc, dp = drive
+    js = dp.to_json()
+    # [pub: issue 8 section 4: the keys of route, samples and events]
+    assert {"length_m", "duration_s", "stretches", "samples"} <= set(js["route"])
+    assert set(js["route"]["samples"][0]) == {"time", "lat_deg", "lon_deg", "height_m", "speed_m_s",
+                                              "heading_deg", "distance_m", "stretch"}
+    assert len(js["route"]["samples"]) == len(sc.time.grid())
+    ev = js["events"][0]
+    assert {"id", "kind", "time", "lat_deg", "lon_deg", "satellites", "timeline", "first_fix_time",
+            "ttff_median_s", "ttff_p95_s", "warnings"} <= set(ev)
+    today = plan_to_json(make_plan(load_scenario(sc.path.parent / "demo_scenario.toml")))
+    assert set(ev["satellites"][0]) == set(today["satellites"][0])
+    assert set(ev["timeline"][0]) == set(today["timeline"][0])
+    assert js["drive_summary"]["worst_event"] == dp.worst.event.id
+
+
+def _write(demo_dir, name, text):
+    p = demo_dir / name
+    p.write_text(text)
+    return p
+
+
+@pytest.mark.parametrize("old, new, field", [
+    ('from = "Waldeck"', 'from = "Waldek"', "route.stretch[1].from"),
+    ('at = "Altmarkt Kressing"', 'at = "Altmarkt"', "event[3].at"),
+    ('at = 12.0', 'at = 99.0', "event[2].at"),
+    ('at = "2027-05-18T05:30:00Z"', 'at = "2027-05-18T07:30:00Z"', "event[5].at"),
+    ('to = "Forsthaus Lindach"', 'to = 28.0', "route.stretch[2].from"),
+])
+def test_bad_drive_input_names_the_field(demo_dir, old, new, field):
+    text = (demo_dir / "demo_drive_scenario.toml").read_text()
+    assert old in text
+    p = _write(demo_dir, "bad.toml", text.replace(old, new, 1))
+    sc = load_scenario(p)
+    with pytest.raises(InputError) as exc:
+        plan_drive(sc, monte_carlo=False)
+    assert exc.value.field == field and "\n" not in str(exc.value)
+    assert str(p) in str(exc.value)
+
+
+def test_stretch_past_the_end(demo_dir):
+    text = (demo_dir / "demo_drive_scenario.toml").read_text()
+    p = _write(demo_dir, "bad2.toml", text.replace('to = "Forsthaus Lindach"', "to = 90.0", 1))
+    with pytest.raises(InputError, match="past the route's end") as exc:
+        plan_drive(load_scenario(p), monte_carlo=False)
+    assert exc.value.field == "route.stretch[1].to"
+
+
+def test_drive_keys_round_trip_and_are_checked(demo_dir):
+    from core.plan.spec import ScenarioValidationError, Scenario
+
+    sc = load_scenario(demo_dir / "demo_drive_scenario.toml")
+    again = Scenario.from_dict(sc.to_dict(), base_dir=sc.base_dir)
+    assert again == sc and again.route.stretches[1].kind == "canyon" and len(again.events) == 5
+    d = sc.to_dict()
+    d["route"]["slip_min"] = 500
+    d["event"][0]["kind"] = "lukewarm"
+    with pytest.raises(ScenarioValidationError) as exc:
+        Scenario.from_dict(d, base_dir=sc.base_dir)
+    fields = {p.field for p in exc.value.problems}
+    assert fields == {"route.slip_min", "event[1].kind"}
+    plain = load_scenario(demo_dir / "demo_scenario.toml")
+    assert plain.route is None and plain.events == ()
+    assert "route" not in plain.to_dict() and "event" not in plain.to_dict()
