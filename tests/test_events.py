@@ -191,7 +191,7 @@ def test_stretch_past_the_end(demo_dir):
 
 
 def test_drive_keys_round_trip_and_are_checked(demo_dir):
-    from core.plan.spec import ScenarioValidationError, Scenario
+    from core.plan.spec import Scenario, ScenarioValidationError
 
     sc = load_scenario(demo_dir / "demo_drive_scenario.toml")
     again = Scenario.from_dict(sc.to_dict(), base_dir=sc.base_dir)
