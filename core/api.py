@@ -106,6 +106,7 @@ _PUBLIC: dict[str, str] = {
     "record_scenario": "core.records.compare",
     # files: text in and out
     "load_scenario": "core.files.scenario",
+    "load_scenario_for_editing": "core.files.scenario",
     "save_scenario": "core.files.scenario",
     "scenario_to_toml": "core.files.scenario",
     "export_all": "core.files.plan_export",
@@ -136,7 +137,12 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     from core.files.atomic import write_bytes_atomic, write_text_atomic  # noqa: F401
     from core.files.demo import write_demo  # noqa: F401
     from core.files.plan_export import content_hash, export_all  # noqa: F401
-    from core.files.scenario import load_scenario, save_scenario, scenario_to_toml  # noqa: F401
+    from core.files.scenario import (  # noqa: F401
+        load_scenario,
+        load_scenario_for_editing,
+        save_scenario,
+        scenario_to_toml,
+    )
     from core.ground.display import (  # noqa: F401
         STATE_MEANING,
         clock_text,

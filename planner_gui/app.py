@@ -133,11 +133,38 @@ def wait_for_first_plan(window: Any, timeout_s: float = FIRST_PLAN_TIMEOUT_S) ->
     return state["plan"]
 
 
+def no_screen_reason(environ: Any = None, platform: str | None = None) -> str | None:
+    """Why a window cannot be shown here, or None: on Linux, Qt's X11 (xcb) and Wayland
+    platforms need a display server, and without one Qt aborts the process. Only the
+    plain cases are caught (no DISPLAY, no WAYLAND_DISPLAY); other platforms (offscreen,
+    vnc, eglfs...) and other systems are left to Qt."""
+    env = os.environ if environ is None else environ
+    if not (platform or sys.platform).startswith("linux"):
+        return None
+    qpa = env.get("QT_QPA_PLATFORM", "").split(":")[0].split(";")[0].strip().lower()
+    if qpa.startswith("wayland"):
+        return None if env.get("WAYLAND_DISPLAY") else "WAYLAND_DISPLAY is not set"
+    if qpa not in ("", "xcb"):
+        return None
+    if qpa == "" and env.get("WAYLAND_DISPLAY"):
+        return None
+    return None if env.get("DISPLAY") else "DISPLAY is not set"
+
+
+NO_SCREEN_HINT = ("to render the window without a screen use acqplan gui [SCENARIO.toml | --demo] "
+                  "--screenshot DIR, or run with QT_QPA_PLATFORM=offscreen")
+
+
 def run_gui(args: Any) -> int:
     """Entry point of ``acqplan gui``."""
     screenshot_dir = getattr(args, "screenshot", None)
     if screenshot_dir and not os.environ.get("QT_QPA_PLATFORM"):
         os.environ["QT_QPA_PLATFORM"] = "offscreen"
+    reason = no_screen_reason()
+    if reason is not None:
+        print(f"acqplan gui: no screen to show the window on ({reason}); {NO_SCREEN_HINT}",
+              file=sys.stderr)
+        return EXIT_BAD_INPUT
     try:
         size = parse_size(getattr(args, "size", None) or "1600x1000")
     except ValueError as err:
@@ -166,6 +193,13 @@ def run_gui(args: Any) -> int:
             opened = window.open_scenario(args.scenario)
         elif getattr(args, "demo", False):
             opened = window.open_demo()
+        if screenshot_dir and not opened:
+            # A scenario that cannot be planned gives no pictures: the reason, exit 2.
+            problem = window.message_bar.text.text() or "the scenario could not be opened"
+            print(f"acqplan gui: {' '.join(problem.split())}; no screenshots written",
+                  file=sys.stderr)
+            window.close()
+            return EXIT_BAD_INPUT
         if screenshot_dir:
             window.resize(*size)
             window.show()

@@ -48,7 +48,7 @@ from core.api import (
     Scenario,
     ScenarioValidationError,
     clock_text,
-    load_scenario,
+    load_scenario_for_editing,
     save_scenario,
     utc_stamp,
 )
@@ -594,21 +594,34 @@ class PlannerWindow(QMainWindow):
             self.open_scenario(path)
 
     def open_scenario(self, path: str | Path, template: bool = False) -> bool:
-        """Load a scenario file and plan it. On failure the window keeps what it shows."""
+        """Load a scenario file and plan it; True when it was planned.
+
+        A file that cannot be read or parsed leaves the window as it was. A file with bad
+        values is shown in the form with every good value loaded and each bad field marked
+        with its message (nothing is planned until they are fixed)."""
         p = Path(path)
         try:
-            sc = load_scenario(p)
+            sc, problems = load_scenario_for_editing(p)
         except (AcqplanError, OSError) as err:
             self.show_problem(error_text(err), kind="error", details=self._problem_details(err))
             return False
         self.panel.set_scenario(sc)
-        self.scenario = sc
         self.current_path = None if template else p      # a template: Save asks for a name
         self._saved_dict = self.panel.to_dict()
         if not template:
             self.settings.add_recent(p)
-        self.message_bar.clear()
         self._update_title()
+        if problems:
+            err = ScenarioValidationError(problems, file=str(p))
+            self.panel.show_problems(problems_of(err))
+            self._form_invalid = True
+            shown = ("the plan on screen is from the last valid inputs" if self.model.plan is not None
+                     else "nothing is planned until they are fixed")
+            self.show_problem(f"{error_text(err)} (marked in the set-up form; {shown})",
+                              kind="input", details=self._problem_details(err))
+            return False
+        self.scenario = sc
+        self.message_bar.clear()
         self.request_plan(sc)
         return True
 

@@ -63,4 +63,6 @@ def test_screenshot_of_a_bad_scenario_reports_and_fails(tmp_path):
     assert proc.returncode == 2
     assert "bad.toml" in proc.stderr and "line" in proc.stderr
     assert "Traceback" not in proc.stderr
-    assert png_size(tmp_path / "shots" / "window.png") == (1100, 720)
+    # No pictures of a window that shows no plan (earlier versions wrote them anyway).
+    shots = tmp_path / "shots"
+    assert not shots.exists() or not any(shots.iterdir())

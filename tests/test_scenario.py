@@ -561,3 +561,40 @@ def test_examples_in_the_documentation_are_valid():
     assert full.search.integration_for("BDS-B1I") == (1.0, 20)
     example = Scenario.from_dict(tomllib.loads(blocks[1]))
     assert example.search.coherent_ms == 4.0 and example.receiver.signals == ("GPS-L1CA", "GAL-E1")
+
+
+# --------------------------------------------------------------------------- salvage for the form
+
+def _problems(d: dict):
+    with pytest.raises(ScenarioValidationError) as info:
+        Scenario.from_dict(d)
+    return info.value.problems
+
+
+@pytest.mark.parametrize("dotted, value", [
+    ("site.lat_deg", 95), ("receiver.channels", 0), ("search.coherent_ms", "four"),
+    ("time.end", "2027-03-02T06:00:00Z"), ("time.start", "yesterday"), ("site.latt", 1),
+    ("mask", 5), ("search.per_signal", {"GPS-L9": {"coherent_ms": 2}}),
+])
+def test_salvage_keeps_every_good_value(dotted, value):
+    from core.plan.spec import salvage_scenario
+
+    d = with_value(base(), dotted, value)
+    problems = _problems(d)
+    sc = salvage_scenario(d, problems)
+    good = Scenario.from_dict(base())
+    section = dotted.split(".")[0]
+    # every section the bad value is not in is exactly the file's
+    for other in ("site", "time", "receiver", "search", "signal", "mask"):
+        if other != section:
+            assert getattr(sc, other) == getattr(good, other), (dotted, other)
+    # the bad value is a default or a stand-in, never a value taken from nowhere
+    if dotted == "site.lat_deg":
+        assert sc.site.lat_deg == 0.0 and sc.site.lon_deg == 8.5
+    if dotted == "time.end":          # not after start: two hours after the good start
+        assert sc.time.end_unix_s - sc.time.start_unix_s == 7200.0
+        assert sc.time.start == good.time.start
+    if dotted == "time.start":        # unreadable: two hours before the good end
+        assert sc.time.end == good.time.end and sc.time.end_unix_s - sc.time.start_unix_s == 7200.0
+    if dotted == "receiver.channels":
+        assert sc.receiver.channels == 12 and sc.receiver.signals == good.receiver.signals

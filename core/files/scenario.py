@@ -16,7 +16,7 @@ from pathlib import Path
 import tomli_w
 
 from ..ground.errors import ScenarioError
-from ..plan.spec import Scenario, ScenarioValidationError, _build, _Locator
+from ..plan.spec import Scenario, ScenarioValidationError, _build, _Locator, salvage_scenario
 from .atomic import write_text_atomic
 
 
@@ -61,6 +61,22 @@ def load_scenario(path: str | os.PathLike[str], *, check_files: bool = True) -> 
     return sc
 
 
+def load_scenario_for_editing(path: str | os.PathLike[str]) -> tuple[Scenario, list[ScenarioError]]:
+    """For the window: the scenario with every good value, and the problems of the bad ones.
+
+    A file that reads and parses but holds bad values gives the salvaged scenario
+    (:func:`core.plan.spec.salvage_scenario`) with the problems to mark at their fields;
+    a file that cannot be read or is not TOML raises as :func:`load_scenario` does.
+    """
+    try:
+        return load_scenario(path), []
+    except ScenarioValidationError as err:
+        problems = err.problems
+    p = Path(path)
+    d = tomllib.loads(p.read_bytes().decode("utf-8-sig"))
+    return salvage_scenario(d, problems, base_dir=p.resolve().parent, path=p), problems
+
+
 def _rebase(name: str, old_dir: Path, new_dir: Path) -> str:
     """A relative orbit file name re-expressed for a scenario saved in another folder."""
     p = Path(name).expanduser()
@@ -99,4 +115,4 @@ def save_scenario(scenario: Scenario, path: str | os.PathLike[str]) -> Scenario:
     return saved
 
 
-__all__ = ["load_scenario", "save_scenario", "scenario_to_toml"]
+__all__ = ["load_scenario", "load_scenario_for_editing", "save_scenario", "scenario_to_toml"]

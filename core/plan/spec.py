@@ -791,6 +791,72 @@ def _build(d: Mapping[str, Any], *, base_dir: Any, path: Any, text: str | None) 
                     defaults_used=defaulted, route=drive_route, events=drive_events, **specs)
 
 
+def salvage_scenario(d: Mapping[str, Any], problems: list[ScenarioError], *,
+                     base_dir: Any = None, path: Any = None) -> Scenario:
+    """The scenario of ``d`` with every good value kept and each bad one left out.
+
+    For the window, which shows a file with bad values as a form: a bad optional value (or
+    an unknown key, or a section that is not a table) falls back to its default; a bad
+    required value gets a stand-in (latitude/longitude 0, a start two hours before a good
+    end or an end two hours after a good start). ``problems`` are those of
+    :class:`ScenarioValidationError`; the form marks them at their fields, so the
+    stand-ins are never taken for the file's values. Raises the validation error again
+    when the values cannot be salvaged.
+    """
+    work: dict[str, Any] = {k: dict(v) if isinstance(v, Mapping) else v for k, v in d.items()}
+    pending = list(problems)
+    for _ in range(8):
+        for problem in pending:
+            _leave_out(work, problem.field)
+        try:
+            sc = _build(work, base_dir=base_dir, path=path, text=None)
+        except ScenarioValidationError as err:
+            pending = err.problems
+            continue
+        defaulted = tuple(sec for sec in DEFAULTABLE_SECTIONS
+                          if not (isinstance(d.get(sec), Mapping) and d.get(sec)))
+        return replace(sc, defaults_used=defaulted)
+    raise ScenarioValidationError(list(problems), file=None if path is None else str(path))
+
+
+def _leave_out(work: dict[str, Any], field_name: str | None) -> None:
+    if not field_name:
+        return
+    parts = field_name.split(".")
+    rule = RULES_BY_DOTTED.get(field_name)
+    if parts[0] in SECTIONS and not isinstance(work.get(parts[0]), dict):
+        work.pop(parts[0], None)                  # a section that is not a table
+    if rule is not None and rule.required:
+        table = work.setdefault(rule.section, {})
+        table[rule.key] = _stand_in(work, rule)
+    elif len(parts) == 1:
+        work.pop(parts[0], None)
+    elif parts[:2] == ["search", "per_signal"]:
+        work.get("search", {}).pop("per_signal", None)
+    elif isinstance(work.get(parts[0]), dict):
+        work[parts[0]].pop(parts[1], None)
+
+
+def _stand_in(work: dict[str, Any], rule: KeyRule) -> Any:
+    if rule.kind != "time":
+        return 0.0                                   # latitude, longitude
+    other = work.get("time", {}).get("end" if rule.key == "start" else "start")
+    t = None
+    if isinstance(other, str):
+        try:
+            other = parse_iso_utc(other)
+        except InputError:
+            other = None
+    if isinstance(other, datetime):
+        t = (other if other.tzinfo else other.replace(tzinfo=UTC)).timestamp()
+    elif isinstance(other, int | float) and not isinstance(other, bool):
+        t = float(other)
+    if t is None:
+        now = datetime.now(UTC).replace(minute=0, second=0, microsecond=0)
+        t = now.timestamp() + (7200.0 if rule.key == "start" else 0.0)
+    return datetime.fromtimestamp(t + (-7200.0 if rule.key == "start" else 7200.0), UTC)
+
+
 def _check_per_signal(chk: _Checker, v: Any) -> list[tuple[str, SignalOverride]]:
     out: list[tuple[str, SignalOverride]] = []
     if not isinstance(v, Mapping):
@@ -831,6 +897,6 @@ def _check_per_signal(chk: _Checker, v: Any) -> list[tuple[str, SignalOverride]]
 __all__ = [
     "DEFAULTABLE_SECTIONS", "FORMAT_VERSION", "KEY_RULES", "KeyRule", "MAX_WINDOW_S", "MaskSpec", "OrbitSpec",
     "PER_SIGNAL_KEYS", "PRIORITIES", "REQUIRED", "ReceiverSpec", "Scenario",
-    "ScenarioValidationError", "SearchSpec", "SignalOverride", "SignalSpec", "SiteSpec",
+    "ScenarioValidationError", "SearchSpec", "salvage_scenario", "SignalOverride", "SignalSpec", "SiteSpec",
     "TimeSpec",
 ]
