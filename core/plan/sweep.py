@@ -585,7 +585,7 @@ def _pool_context():
     if "forkserver" in mp.get_all_start_methods():
         ctx = mp.get_context("forkserver")
         # loaded once in the server, inherited by every worker it forks
-        ctx.set_forkserver_preload(["core.plan.sweep", "core.plan.pipeline"])
+        ctx.set_forkserver_preload(["core.plan.sweep", "core.plan.pipeline", "core.orbits.readers"])
         return ctx
     return mp.get_context("spawn")
 
