@@ -13,7 +13,7 @@ The local pool is created inside each timed sweep (as ``acqplan sweep`` does: it
 is part of the cost); the cluster exists before (as a cluster does), and each timed sweep
 ships the orbit files to its workers again.
 
-Run: python benchmarks/bench_sweep.py [--departures 288] [--mc-runs 100] [--repeats 1]
+Run: python benchmarks/bench_sweep.py [--departures 288] [--mc-runs N] [--repeats 1]
 """
 
 from __future__ import annotations
@@ -35,8 +35,8 @@ VARY = {"coherent_ms": [4, 8, 12], "noncoherent": [5, 10], "channels": [8, 12]}
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--departures", type=int, default=288, help="departures, every 5 min (default 288 = 24 h)")
-    ap.add_argument("--mc-runs", type=int, default=100,
-                    help="Monte Carlo runs per plan (default 100; the demo file says 500)")
+    ap.add_argument("--mc-runs", type=int, default=None,
+                    help="Monte Carlo runs per plan (default: the demo's 500)")
     ap.add_argument("--repeats", type=int, default=1)
     ap.add_argument("--no-dask", action="store_true")
     args = ap.parse_args()
@@ -46,7 +46,8 @@ def main() -> int:
 
     tmp = Path(tempfile.mkdtemp(prefix="bench_sweep_"))
     sc = load_scenario(write_demo(tmp))
-    sc = sc.with_changes(search={"monte_carlo_runs": args.mc_runs})
+    if args.mc_runs is not None:
+        sc = sc.with_changes(search={"monte_carlo_runs": args.mc_runs})
     start = sc.time.start_unix_s
 
     def spec_for(n: int):
@@ -72,7 +73,7 @@ def main() -> int:
         contenders["Dask LocalCluster, 2 workers"] = (2, lambda s: run_sweep(sc, s, client=client))
 
     print(f"sweep of the demo: {len(spec.departures_unix_s)} departures x {len(spec.settings)} "
-          f"settings = {spec.n_combinations} plans, {args.mc_runs} Monte Carlo runs each, "
+          f"settings = {spec.n_combinations} plans, {sc.search.monte_carlo_runs} Monte Carlo runs each, "
           f"{spec.window_s / 3600:g} h window at {sc.time.step_s:g} s; machine: {cores} cores "
           f"(shared with other work: timings vary)")
     for name, (_, fn) in contenders.items():
