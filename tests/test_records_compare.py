@@ -213,13 +213,27 @@ def test_rinex2_phase_rate_wrapped_lines_slips_and_jumps(demo_plan, tmp_path):
 def test_after_first_acquisition_the_narrowed_window_follows_the_measured_oscillator(
         demo_plan, tmp_path):
     """Once acquired, the receiver knows its oscillator: the narrowed window is centred on
-    the measured offset, so a large but steady offset stays inside it [calc]."""
-    acq0 = min(demo_plan.timeline.acquisition_unix_s.values())
+    the measured offset, so an offset near the edge of the planned +-500 ppb (700 Hz at
+    L1, far more than the narrowed half-width) stays inside it [calc]. Beyond the planned
+    range the first search could not succeed: the first window is held, and missed."""
+    # a static receiver that knows its place within 1 km: narrow windows once acquired
+    plan = make_plan(demo_plan.scenario.with_changes(
+        site={"horizontal_uncertainty_km": 1.0, "vertical_uncertainty_m": 50.0},
+        receiver={"max_horizontal_speed_m_s": 0.0, "max_vertical_speed_m_s": 0.0}),
+        monte_carlo=False)
+    acq0 = min(plan.timeline.acquisition_unix_s.values())
     times = acq0 + 60.0 + 30.0 * np.arange(11)
-    write_rinex3(tmp_path / "r.obs", demo_plan, times, osc_ppb=-2000.0)
-    res = compare_record(demo_plan, load_record(tmp_path / "r.obs"))
+    k = plan.index_at(float(times[5]))
+    half = 0.5 * (plan.windows_after.high_hz[:, k] - plan.windows_after.low_hz[:, k])
+    assert np.nanmax(half[plan.visible[:, k]]) < 0.5 * 450e-9 * 1575.42e6
+    write_rinex3(tmp_path / "r.obs", plan, times, osc_ppb=450.0)
+    res = compare_record(plan, load_record(tmp_path / "r.obs"))
     assert all(s.inside_window_fraction == 1.0 for s in res.satellites if s.doppler_samples)
-    assert not res.held                            # the oscillator itself was off the plan
+    assert res.held
+    write_rinex3(tmp_path / "r2.obs", plan, times, osc_ppb=-2000.0)
+    res = compare_record(plan, load_record(tmp_path / "r2.obs"))
+    assert all(s.inside_window_fraction == 0.0 for s in res.satellites if s.doppler_samples)
+    assert not res.held
 
 
 def test_record_outside_the_plan_is_an_input_error(demo_plan, tmp_path):

@@ -30,9 +30,11 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 
+from ..ground.display import iso_utc
 from ..ground.errors import ComputationError, InputError
 from ..ground.geodesy import Site, ecef_to_geodetic
 from ..ground.signals import SIGNALS
@@ -59,7 +61,7 @@ class CommonOffset:
     satellites: int
 
     def to_dict(self) -> dict:
-        return {"time": iso_z(self.time_unix_s, 1), "hz": round(self.hz, 4),
+        return {"time": iso_utc(self.time_unix_s), "hz": round(self.hz, 4),
                 "ppb": round(self.ppb, 3), "satellites": self.satellites}
 
 
@@ -104,9 +106,8 @@ class SatelliteComparison:
                 "residual_hz_max": _r(self.residual_hz_max, 4),
                 "inside_window_fraction": _r(self.inside_window_fraction, 4),
                 "cn0_dbhz_median": _r(self.cn0_dbhz_median, 2),
-                "first_seen": None if self.first_seen_unix_s is None else iso_z(self.first_seen_unix_s, 1),
-                "planned_acquisition": (None if self.planned_acquisition_unix_s is None
-                                        else iso_z(self.planned_acquisition_unix_s, 1)),
+                "first_seen": iso_utc(self.first_seen_unix_s),
+                "planned_acquisition": iso_utc(self.planned_acquisition_unix_s),
                 "signal": self.signal_id, "doppler_source": self.doppler_source,
                 "doppler_samples": self.doppler_samples, "outside_samples": self.outside_samples,
                 "measured_low_hz": _r(self.measured_low_hz, 2),
@@ -345,16 +346,21 @@ def _windows(plan: Plan, p_rows: list[int], arr: ComparisonArrays, shift_ppb: np
     acquisition the first window; after it the narrowed window, centred on the
     oscillator as the receiver measured it (the common offset) - the narrowing assumes
     the receiver has measured its oscillator on the first satellite, so its centre moves
-    with the real oscillator, not the planned one."""
+    with the real oscillator, not the planned one. At epochs where the real oscillator
+    lies outside the planned offset +- uncertainty the first search could not have found
+    a satellite, no narrowing happens, and the first window is the one held."""
     grid = plan.times.unix_s
     acq0 = min(plan.timeline.acquisition_unix_s.values(), default=math.inf)
-    e0_ppb = plan.scenario.receiver.oscillator_offset_ppb
+    rx = plan.scenario.receiver
+    e0_ppb, de_ppb = rx.oscillator_offset_ppb, rx.oscillator_uncertainty_ppb
     finite = shift_ppb[np.isfinite(shift_ppb)]
     shift = np.where(np.isfinite(shift_ppb), shift_ppb, np.median(finite) if finite.size else -e0_ppb)
+    in_plan = np.abs(-shift - e0_ppb) <= de_ppb          # the oscillator the plan allowed for
     for i, s in enumerate(p_rows):
         t = arr.sample_unix_s[i]
         carrier = plan.satellites[s].carrier_hz
-        for w, sel, moved in ((plan.windows_first, t < acq0, False), (plan.windows_after, t >= acq0, True)):
+        narrowed = (t >= acq0) & in_plan
+        for w, sel, moved in ((plan.windows_first, ~narrowed, False), (plan.windows_after, narrowed, True)):
             if sel.any():
                 centre = (shift[sel] + e0_ppb) * 1e-9 * carrier if moved else 0.0
                 arr.window_low_hz[i, sel] = np.interp(t[sel], grid, w.low_hz[s]) + centre
@@ -481,6 +487,9 @@ def record_scenario(record: Record, orbit_files: list[str], *, name: str | None 
     start = math.floor(t0 / step) * step
     end = max(math.ceil(t1 / step) * step, start + 2 * step)
     orbits = load_orbit_files(orbit_files, reference_time=start)
+    if not record.sat_ids:
+        raise InputError("the record holds no satellite observation (an NMEA log needs GSV "
+                         "sentences)", file=record.source, field="satellites")
     systems = {e.info.system for e in orbits.entries} & set(record.systems)
     from ..ground.signals import DEFAULT_SIGNAL_FOR_SYSTEM
 
@@ -490,7 +499,7 @@ def record_scenario(record: Record, orbit_files: list[str], *, name: str | None 
             f"the orbit files hold systems {', '.join(sorted({e.info.system for e in orbits.entries}))} "
             f"and the record {', '.join(record.systems)}: nothing in common to compare")
     return Scenario.from_dict({
-        "name": name or f"record {record.source}",
+        "name": name or f"record {Path(record.source).name}",
         "orbits": {"files": [str(p) for p in orbit_files]},
         "site": {"lat_deg": lat, "lon_deg": lon, "height_m": h,
                  "horizontal_uncertainty_km": 1.0, "vertical_uncertainty_m": 100.0},

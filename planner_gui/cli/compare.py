@@ -86,8 +86,10 @@ def cmd_compare(args) -> int:
         return EXIT_OK
     parts = [f"Record {record.source} ({record.format}, {record.n_epochs} epochs) against plan "
              f"'{plan.scenario.name}'",
-             "Per satellite (residual = measured - predicted Doppler after the common offset, Hz)",
-             format_rows(rows, "table", SAT_COLUMNS)]
+             "Per satellite: residual = measured - predicted Doppler after the common offset (Hz); "
+             "inside = share of measured Doppler inside the window searched then; window and "
+             "measured = lowest..highest Hz; times UTC",
+             format_rows([_table_row(r) for r in rows], "table", TABLE_COLUMNS)]
     if offsets:
         parts += ["Common frequency offset (measured - predicted, median over satellites; Hz at "
                   "1575.42 MHz; the oscillator offset is minus the ppb figure)",
@@ -100,6 +102,30 @@ def cmd_compare(args) -> int:
     parts.append(result.verdict)
     emit("\n".join(parts), args.output)
     return EXIT_OK
+
+
+TABLE_COLUMNS = ["id", "signal", "doppler", "epochs", "res_med", "res_p95", "res_max", "inside",
+                 "window_hz", "measured_hz", "cn0_dbhz", "model_dbhz", "first_seen", "planned_acq"]
+
+
+def _span(lo, hi) -> str:
+    return "" if lo is None or hi is None else f"{lo:.0f}..{hi:.0f}"
+
+
+def _table_row(r: dict) -> dict:
+    """The table's short form of one satellite's comparison (CSV and JSON have it all)."""
+    def clock(iso):
+        return "" if not iso else iso[11:19]
+
+    return {"id": r["id"], "signal": r["signal"], "doppler": r["doppler_source"] or "none",
+            "epochs": r["epochs"], "res_med": r["residual_hz_median"], "res_p95": r["residual_hz_p95"],
+            "res_max": r["residual_hz_max"],
+            "inside": "" if r["inside_window_fraction"] is None else f"{100 * r['inside_window_fraction']:.0f}%",
+            "window_hz": _span(r["window_low_hz"], r["window_high_hz"]),
+            "measured_hz": _span(r["measured_low_hz"], r["measured_high_hz"]),
+            "cn0_dbhz": None if r["cn0_dbhz_median"] is None else round(r["cn0_dbhz_median"], 1),
+            "model_dbhz": None if r["cn0_model_dbhz_median"] is None else round(r["cn0_model_dbhz_median"], 1),
+            "first_seen": clock(r["first_seen"]), "planned_acq": clock(r["planned_acquisition"])}
 
 
 def _thin(rows: list[dict], n: int) -> list[dict]:
