@@ -20,8 +20,10 @@ from datetime import UTC, datetime
 
 import numpy as np
 
+from core.api import state_word
 from planner_gui.sheet_layout import (
     CAUTION,
+    CAUTION_INK,
     INK,
     INK_FAINT,
     INK_SOFT,
@@ -37,13 +39,13 @@ from planner_gui.sheet_layout import (
 )
 from planner_gui.style import SEGMENT_COLOURS, SYSTEM_STYLES, style_for
 
-F_AXIS = FontSpec(6.0, condensed=True)
-F_AXIS_BOLD = FontSpec(6.0, bold=True, condensed=True)
-F_LABEL = FontSpec(6.0, bold=True, condensed=True)
-F_ROW = FontSpec(6.5, condensed=True)
-F_ROW_BOLD = FontSpec(7.0, bold=True, condensed=True)
-F_LEGEND = FontSpec(6.5)
-F_COMPASS = FontSpec(8.0, bold=True)
+F_AXIS = FontSpec(9.0, condensed=True)
+F_AXIS_BOLD = FontSpec(9.0, bold=True, condensed=True)
+F_LABEL = FontSpec(9.0, bold=True, condensed=True)
+F_ROW = FontSpec(9.5, condensed=True)
+F_ROW_BOLD = FontSpec(10.0, bold=True, condensed=True)
+F_LEGEND = FontSpec(9.0)
+F_COMPASS = FontSpec(11.0, bold=True)
 
 SEARCH_EDGE = "#9A5A00"     # darker orange: hatching and outline of searches
 TRACK_EDGE = "#2C7FB0"      # darker sky blue: outline of tracks
@@ -143,14 +145,19 @@ def _axis_labels(page: Page, ticks: list[float], xof, y: float, h: float, bounds
 
 # --------------------------------------------------------------------------- timeline
 
-def timeline_chart(ctx, page: Page, rect: Rect, ch_from: int, ch_to: int) -> None:
+def timeline_chart(ctx, page: Page, rect: Rect, ch_from: int, ch_to: int,
+                   until_unix_s: float | None = None) -> None:
+    """Channels ch_from..ch_to over the test window, or from its start to ``until_unix_s``
+    (the inset of the first minutes)."""
     m = page.geo.mm
     plan, clock = ctx.plan, ctx.clock
     x, y, w, h = rect
     axis = m(7.0)
-    label_w = m(11.0)
+    label_w = m(14.0)
     px0, pw = x + label_w, w - label_w - m(2.5)
     t0, t1 = plan.times.start_unix_s, plan.times.end_unix_s
+    if until_unix_s is not None:
+        t1 = min(t1, max(until_unix_s, t0 + 60.0))
 
     def X(t: float) -> float:
         return px0 + (min(max(t, t0), t1) - t0) / (t1 - t0) * pw
@@ -166,19 +173,19 @@ def timeline_chart(ctx, page: Page, rect: Rect, ch_from: int, ch_to: int) -> Non
     for t in ticks:
         page.line(X(t), rows_top, X(t), rows_bottom, PANEL_DARK, 0.15)
         page.line(X(t), rows_bottom, X(t), rows_bottom + m(1.0), INK_SOFT, 0.2)
-    _axis_labels(page, ticks, X, rows_bottom + m(1.3), m(3.0), (px0 - m(4), y, pw + m(6.5), h),
+    _axis_labels(page, ticks, X, rows_bottom + m(1.3), m(4.2), (px0 - m(4), y, pw + m(6.5), h),
                  lambda t: _tick_label(t, None, clock.multi_day))
-    page.text((x, rows_bottom + m(1.3), label_w - m(4.0), m(3.0)), "UTC", F_AXIS_BOLD,
+    page.text((x, rows_bottom + m(1.3), label_w - m(4.0), m(4.2)), "UTC", F_AXIS_BOLD,
               align="right", role="axis-name")
     if clock.has_local:
         off = datetime.fromtimestamp(t0, UTC).astimezone(clock.zone).utcoffset()
         lticks = time_ticks(t0, t1, max_ticks, off.total_seconds() if off else 0.0)
         for t in lticks:
             page.line(X(t), rows_top - m(1.0), X(t), rows_top, INK_SOFT, 0.2)
-        _axis_labels(page, lticks, X, rows_top - m(4.3), m(3.0), (px0 - m(4), y, pw + m(6.5), h),
+        _axis_labels(page, lticks, X, rows_top - m(5.4), m(4.2), (px0 - m(4), y, pw + m(6.5), h),
                      lambda t: _tick_label(t, clock.zone, clock.local_multi_day))
         zone_name = datetime.fromtimestamp(t0, UTC).astimezone(clock.zone).tzname() or "local"
-        page.text((x, rows_top - m(4.3), label_w - m(4.0), m(3.0)), zone_name, F_AXIS_BOLD,
+        page.text((x, rows_top - m(5.4), label_w - m(4.0), m(4.2)), zone_name, F_AXIS_BOLD,
                   align="right", role="axis-name")
     search_c = SEGMENT_COLOURS["search"]
     track_c = SEGMENT_COLOURS["track"]
@@ -191,7 +198,8 @@ def timeline_chart(ctx, page: Page, rect: Rect, ch_from: int, ch_to: int) -> Non
             page.line(px0, ry, px0 + pw, ry, PANEL, 0.15)
         page.text((x, ry, label_w - m(1.5), rh), f"ch {ch}", F_ROW, align="right", role="row-label")
         by = ry + rh * 0.5
-        segs = sorted((s for s in plan.timeline.segments if s.channel == ch), key=lambda s: s.start_unix_s)
+        segs = sorted((s for s in plan.timeline.segments if s.channel == ch and s.start_unix_s < t1),
+                      key=lambda s: s.start_unix_s)
         for s in segs:
             x0, x1 = X(s.start_unix_s), X(s.end_unix_s)
             x1 = max(x1, x0 + m(0.35))
@@ -242,7 +250,7 @@ def _legend_flow(page: Page, rect: Rect, items: list[tuple]) -> float:
     m = page.geo.mm
     x, y, w, h = rect
     sw = m(5.0)
-    lh = m(3.6)
+    lh = m(4.6)
     cx, cy = x, y
     for draw, text in items:
         tw = page.measure(text, F_LEGEND) + m(0.3)
@@ -343,12 +351,12 @@ def sky_chart(ctx, page: Page, rect: Rect) -> None:
         obstacles.append(box.ink)
     for el in (30, 60):
         r = float(rad(el))
-        box = page.text((cx + m(0.6), cy - r + m(0.3), m(6.0), m(2.8)), f"{el}°", F_AXIS,
+        box = page.text((cx + m(0.6), cy - r + m(0.3), m(8.0), m(4.2)), f"{el}°", F_AXIS,
                         colour=INK_FAINT, role="ring")
         obstacles.append(box.ink)
     if mask > 0:
-        box = page.text((cx + m(0.6), cy - rm + m(0.3), m(14.0), m(2.8)), f"mask {mask:g}°", F_AXIS,
-                        colour=CAUTION, role="ring", halo="#FFFFFF")
+        box = page.text((cx + m(0.6), cy - rm + m(0.3), m(20.0), m(4.2)), f"mask {mask:g}°", F_AXIS,
+                        colour=CAUTION_INK, role="ring", halo="#FFFFFF")
         obstacles.append(box.ink)
     # Tracks, direction arrows, markers.
     az_all, el_all = plan.prediction.azimuth_deg, plan.prediction.elevation_deg
@@ -434,7 +442,7 @@ def _sky_legend(ctx, page: Page, rect: Rect, mask: float) -> None:
     systems = sorted({sp.system for s, sp in enumerate(ctx.plan.satellites) if ctx.plan.visible[s].any()},
                      key=lambda k: list(SYSTEM_STYLES).index(k) if k in SYSTEM_STYLES else 99)
     lh = m(4.0)
-    page.text((x, y, w, lh), "Constellations", FontSpec(7.0, bold=True), role="legend-title")
+    page.text((x, y, w, lh), "Constellations", FontSpec(10.0, bold=True), role="legend-title")
     y += lh + m(0.5)
     for sys_id in systems:
         st = style_for(sys_id)
@@ -489,7 +497,7 @@ def ladder_chart(ctx, page: Page, rect: Rect, entries, span: tuple[float, float,
     clock = ctx.clock
     x, y, w, h = rect
     axis = m(7.0)
-    label_w, right_w = m(31.0), m(15.0)
+    label_w, right_w = m(36.0), m(17.0)
     px0, pw = x + label_w, w - label_w - right_w
     f0, f1, step = span
 
@@ -506,11 +514,11 @@ def ladder_chart(ctx, page: Page, rect: Rect, entries, span: tuple[float, float,
         page.line(X(t), rows_bottom, X(t), rows_bottom + m(1.0), INK_SOFT, 0.2)
     bounds = (px0 - m(5), y, pw + m(10), h)
     fmt = _tick_formatter(ticks)
-    _axis_labels(page, ticks, X, rows_top - m(4.3), m(3.0), bounds, fmt)
-    _axis_labels(page, ticks, X, rows_bottom + m(1.3), m(3.0), bounds, fmt)
-    page.text((x, rows_bottom + m(1.3), label_w - m(6.0), m(3.0)), "Doppler, Hz", F_AXIS_BOLD,
+    _axis_labels(page, ticks, X, rows_top - m(5.4), m(4.2), bounds, fmt)
+    _axis_labels(page, ticks, X, rows_bottom + m(1.3), m(4.2), bounds, fmt)
+    page.text((x, rows_bottom + m(1.3), label_w - m(6.0), m(4.2)), "Doppler, Hz", F_AXIS_BOLD,
               align="right", role="axis-name")
-    page.text((x, rows_top - m(4.3), label_w - m(6.0), m(3.0)), "Doppler, Hz", F_AXIS_BOLD,
+    page.text((x, rows_top - m(5.4), label_w - m(6.0), m(4.2)), "Doppler, Hz", F_AXIS_BOLD,
               align="right", role="axis-name")
     if not entries:
         page.text((px0, rows_top, pw, rows_bottom - rows_top), "No search scheduled in the window.",
@@ -524,14 +532,14 @@ def ladder_chart(ctx, page: Page, rect: Rect, entries, span: tuple[float, float,
             page.rect((px0 + pw + m(1.0), ry, right_w - m(1.0), rh), fill=PANEL)
         st = style_for(e.system)
         page.marker(st.marker_name, x + m(1.8), ry + rh * 0.3, 2.0, st.colour)
-        page.text((x + m(3.6), ry + m(0.2), m(10.0), rh * 0.5 - m(0.2)), e.sat_id, F_ROW_BOLD,
+        page.text((x + m(3.6), ry + m(0.2), m(11.0), rh * 0.5 - m(0.2)), e.sat_id, F_ROW_BOLD,
                   role="doppler-sat")
-        state = "F" if e.state == "first" else "A"
-        page.text((x + m(13.0), ry + m(0.2), label_w - m(14.5), rh * 0.5 - m(0.2)),
-                  f"ch {e.channel} · {state}", F_ROW, align="right", colour=INK_SOFT,
+        state = state_word(e.state)
+        page.text((x + m(15.0), ry + m(0.2), label_w - m(16.5), rh * 0.5 - m(0.2)),
+                  f"ch {e.channel}", F_ROW, align="right", colour=INK_SOFT,
                   role="doppler-ch")
         page.text((x + m(3.6), ry + rh * 0.5, label_w - m(5.1), rh * 0.5 - m(0.2)),
-                  f"start {clock.hms(e.start_unix_s)}", F_ROW, colour=INK_SOFT, role="doppler-start")
+                  f"{state} · {clock.hms(e.start_unix_s)}", F_ROW, colour=INK_SOFT, role="doppler-start")
         page.text((px0 + pw + m(1.5), ry, right_w - m(2.0), rh), f"{e.bins} bins", F_ROW,
                   align="right", role="doppler-bins")
         bar_h = rh * 0.38
@@ -572,5 +580,5 @@ def ladder_legend(ctx, page: Page, rect: Rect) -> float:
     items = [(bins, "frequency bins (alternating shades, width to scale)"),
              (bracket, "search window, low to high"),
              (tick, "predicted Doppler at the search start"),
-             (None, "F: first search · A: after the first acquisition")]
+             (None, "first: oscillator error unknown · narrowed: after the first acquisition")]
     return _legend_flow(page, rect, items)

@@ -47,14 +47,16 @@ FAMILIES = ["DejaVu Sans", "Liberation Sans", "Arial", "Helvetica"]
 MONO_FAMILIES = ["DejaVu Sans Mono", "Liberation Mono", "Courier New", "Courier"]
 
 # Ink and tints (the Okabe-Ito hues come from planner_gui.style).
+MIN_BODY_PT = 9.0           # smallest type of everything but the footer line
 INK = "#1B1F24"
 INK_SOFT = "#4A525C"
-INK_FAINT = "#7A838E"
+INK_FAINT = "#565E68"        # still dark: contrast 6.5:1 on white (grey prints badly)
 RULE = "#AEB5BD"
 PANEL = "#F1F3F5"
 PANEL_DARK = "#E2E6EA"
 ACCENT = "#0072B2"          # Okabe-Ito blue
 CAUTION = "#D55E00"         # Okabe-Ito vermillion
+CAUTION_INK = "#A33A00"     # the same hue dark enough for text (contrast 5.9:1 on white)
 
 
 def tint(hex_colour: str, amount: float) -> str:
@@ -304,7 +306,12 @@ def fit_text(ts: Typesetter, cell: Rect, text: str, spec: FontSpec, *, align: st
              valign: str = "middle", colour: str = INK, wrap: bool = False,
              min_pt: float | None = None, role: str = "") -> TextBox:
     x, y, w, h = cell
-    lowest = min_pt if min_pt is not None else max(5.0, spec.size_pt * 0.8)
+    # Text may shrink to fit, but never below the MIN_BODY_PT readable in a moving
+    # vehicle (a smaller size given on purpose, e.g. the footer, stays as it is).
+    floor = min(spec.size_pt, MIN_BODY_PT)
+    lowest = max(min_pt if min_pt is not None else spec.size_pt * 0.8, floor)
+    if min_pt is not None and min_pt < floor:
+        lowest = min_pt if spec.size_pt < MIN_BODY_PT else floor
     sizes = [spec.size_pt]
     s = spec.size_pt
     while s - 0.25 >= lowest - 1e-9:

@@ -43,7 +43,16 @@ from zoneinfo import ZoneInfo
 
 import numpy as np
 
-from core.api import InputError, Plan, clock_text, hz_text, utc_stamp, whole_second
+from core.api import (
+    InputError,
+    Plan,
+    clock_text,
+    gps_week_tow,
+    hz_text,
+    state_word,
+    utc_stamp,
+    whole_second,
+)
 from core.files.plan_export import (
     ContentHash,
     SearchEntry,
@@ -57,6 +66,7 @@ from planner_gui import sheet_charts as charts
 from planner_gui.sheet_layout import (
     ACCENT,
     CAUTION,
+    CAUTION_INK,
     INK,
     INK_FAINT,
     INK_SOFT,
@@ -67,29 +77,28 @@ from planner_gui.sheet_layout import (
     FontSpec,
     Geometry,
     Page,
-    Rect,
     Typesetter,
     layout_problems,
     tint,
     wrap_lines,
 )
-from planner_gui.style import SAFETY_CAUTIONS, SIGN_CONVENTIONS, style_for
+from planner_gui.style import SAFETY_CAUTIONS, style_for
 
 DOCUMENT_TITLE = "Acquisition search plan"
 PDF_DPI = 1200
 
 # Layout constants, millimetres (see also sheet_layout).
-TABLE_INTRO_MM = 9.0
-TABLE_HEAD_MM = 8.0
-TABLE_ROW_MM = 4.2
-TABLE_LEGEND_MM = 13.0
+TABLE_INTRO_MM = 11.0
+TABLE_HEAD_MM = 10.0
+TABLE_ROW_MM = 5.2
+TABLE_LEGEND_MM = 18.0
 TABLE_PAD_MM = 0.9
 LADDER_INTRO_MM = 9.0
-LADDER_AXIS_MM = 7.0
+LADDER_AXIS_MM = 8.5
 LADDER_LEGEND_MM = 10.0
-LADDER_ROW_MM = 6.2
-TIMELINE_ROW_MM = 6.0
-TIMELINE_AXIS_MM = 7.0
+LADDER_ROW_MM = 10.0
+TIMELINE_ROW_MM = 8.5
+TIMELINE_AXIS_MM = 8.5
 TIMELINE_LEGEND_MM = 12.0
 TIMELINE_INTRO_MM = 9.0
 OVERVIEW_MAX_CHANNELS = 16
@@ -103,28 +112,31 @@ CARDS_INTRO_MM = 9.0
 SEARCHES_PER_CARD = 3
 
 # Type styles.
-F_KICKER = FontSpec(6.5, bold=True)
+F_KICKER = FontSpec(9.0, bold=True)
 F_SECTION = FontSpec(13.0, bold=True)
-F_HEADER_NAME = FontSpec(7.5)
+F_HEADER_NAME = FontSpec(9.0)
 F_FOOT = FontSpec(6.5)
 F_FOOT_BOLD = FontSpec(6.5, bold=True)
 F_TITLE = FontSpec(15.0, bold=True)
-F_SUBTITLE = FontSpec(8.5)
-F_H2 = FontSpec(9.0, bold=True)
-F_BODY = FontSpec(7.5)
-F_BODY_BOLD = FontSpec(7.5, bold=True)
-F_SMALL = FontSpec(6.5)
-F_SMALL_ITALIC = FontSpec(6.5, italic=True)
-F_TILE_CAPTION = FontSpec(6.5, bold=True)
+F_SUBTITLE = FontSpec(10.0)
+F_H2 = FontSpec(11.0, bold=True)
+F_BODY = FontSpec(9.5)
+F_BODY_BOLD = FontSpec(9.5, bold=True)
+F_SMALL = FontSpec(9.0)
+F_SMALL_ITALIC = FontSpec(9.0, italic=True)
+F_TILE_CAPTION = FontSpec(9.0, bold=True)
 F_TILE_VALUE = FontSpec(15.0, bold=True)
-F_TILE_NOTE = FontSpec(6.5)
-F_TABLE = FontSpec(7.0, condensed=True)
-F_TABLE_HEAD = FontSpec(6.5, bold=True, condensed=True)
-F_CARD_HEAD = FontSpec(10.0, bold=True)
-F_CARD_SAT = FontSpec(12.0, bold=True)
-F_CARD_START = FontSpec(11.0, bold=True)
-F_CARD = FontSpec(8.0, condensed=True)
-F_CARD_SOFT = FontSpec(7.0, condensed=True)
+F_TILE_NOTE = FontSpec(9.0)
+F_TABLE = FontSpec(9.5, condensed=True)
+F_TABLE_HEAD = FontSpec(9.0, bold=True, condensed=True)
+F_CARD_HEAD = FontSpec(12.0, bold=True)
+F_CARD_SAT = FontSpec(14.0, bold=True)
+F_CARD_START = FontSpec(13.0, bold=True)
+F_CARD = FontSpec(11.0, condensed=True)
+F_CARD_SOFT = FontSpec(10.0, condensed=True)
+F_CARD_BOLD = FontSpec(11.0, bold=True, condensed=True)
+CARD_HEAD_MM = 8.0          # the channel's title bar
+CARD_TITLE_MM = 12.0        # a search's first line (satellite, start) and its time line
 
 
 # --------------------------------------------------------------------------- formats
@@ -198,6 +210,10 @@ class Clock:
         body = d.strftime("%d %H:%M:%S" if self.local_multi_day else "%H:%M:%S")
         return f"{body} {d.tzname()}"
 
+    def gps(self, u: float) -> str:
+        week, tow = gps_week_tow(u)
+        return f"GPS {week} / {tow} s"
+
     def full(self, u: float) -> str:
         return utc_stamp(u)
 
@@ -263,9 +279,9 @@ def _header(ctx: Context, page: Page) -> None:
     x, y, w, h = ctx.geo.header
     m = ctx.geo.mm
     left_w = w * 0.55
-    page.text((x, y, left_w, m(3.6)), DOCUMENT_TITLE.upper(), F_KICKER, colour=ACCENT,
+    page.text((x, y, left_w, m(4.2)), DOCUMENT_TITLE.upper(), F_KICKER, colour=ACCENT,
               valign="top", role="kicker")
-    page.text((x, y + m(3.8), left_w, h - m(4.6)), page.section, F_SECTION, valign="top",
+    page.text((x, y + m(4.3), left_w, h - m(5.0)), page.section, F_SECTION, valign="top",
               min_pt=9.0, role="section")
     page.text((x + left_w + m(4), y, w - left_w - m(4), h - m(1.5)), ctx.plan.scenario.name,
               F_HEADER_NAME, align="right", valign="top", wrap=True, colour=INK_SOFT,
@@ -280,13 +296,13 @@ def _footer(ctx: Context, page: Page, number: int, total: int) -> None:
     saved = "" if ctx.digest.from_saved_file else " (as planned, not the saved file)"
     left = f"{ctx.scenario_file} · content {ctx.digest.short}{saved}"
     gen = datetime.fromtimestamp(ctx.generated_unix_s, UTC).strftime("%Y-%m-%d %H:%M UTC")
-    centre = f"generated {gen} · acqplan {ctx.version}"
+    centre = f"generated {gen} · acqplan {ctx.version} · {FOOTER_CONVENTIONS}"
     cy = y + m(0.8)
     ch = h - m(0.8)
-    page.text((x, cy, w * 0.42, ch), left, F_FOOT, colour=INK_SOFT, min_pt=4.5, role="footer-file")
-    page.text((x + w * 0.43, cy, w * 0.37, ch), centre, F_FOOT, align="center", colour=INK_SOFT,
+    page.text((x, cy, w * 0.38, ch), left, F_FOOT, colour=INK_SOFT, min_pt=4.5, role="footer-file")
+    page.text((x + w * 0.385, cy, w * 0.48, ch), centre, F_FOOT, align="center", colour=INK_SOFT,
               min_pt=4.5, role="footer-generated")
-    page.text((x + w * 0.81, cy, w * 0.19, ch), f"page {number} of {total}", F_FOOT_BOLD,
+    page.text((x + w * 0.87, cy, w * 0.13, ch), f"page {number} of {total}", F_FOOT_BOLD,
               align="right", role="footer-page")
 
 
@@ -436,19 +452,23 @@ def _tiles(ctx: Context, page: Page, x: float, y: float, w: float) -> float:
     m = ctx.geo.mm
     tiles = _headline(ctx)
     gap = m(2.0)
-    tw = (w - gap * (len(tiles) - 1)) / len(tiles)
-    th = m(19.0)
+    per_row = 3                          # three across: 9 pt captions and notes fit
+    tw = (w - gap * (per_row - 1)) / per_row
+    th = m(21.0)
     for i, (cap, value, note) in enumerate(tiles):
-        tx = x + i * (tw + gap)
-        page.rect((tx, y, tw, th), fill=PANEL)
-        page.rect((tx, y, m(0.9), th), fill=ACCENT)
+        r, c = divmod(i, per_row)
+        tx = x + c * (tw + gap)
+        ty = y + r * (th + gap)
+        page.rect((tx, ty, tw, th), fill=PANEL)
+        page.rect((tx, ty, m(0.9), th), fill=ACCENT)
         ix, iw = tx + m(2.4), tw - m(3.4)
-        page.text((ix, y + m(1.4), iw, m(3.0)), cap, F_TILE_CAPTION, colour=INK_SOFT, min_pt=5.0,
+        page.text((ix, ty + m(1.2), iw, m(4.0)), cap, F_TILE_CAPTION, colour=INK_SOFT,
                   role="tile-caption")
-        page.text((ix, y + m(4.6), iw, m(7.0)), value, F_TILE_VALUE, min_pt=9.0, role="tile-value")
-        page.text((ix, y + m(11.8), iw, th - m(12.6)), note, F_TILE_NOTE, wrap=True, valign="top",
-                  colour=INK_SOFT, min_pt=5.0, role="tile-note")
-    return y + th
+        page.text((ix, ty + m(5.2), iw, m(7.0)), value, F_TILE_VALUE, min_pt=9.0, role="tile-value")
+        page.text((ix, ty + m(12.4), iw, th - m(12.8)), note, F_TILE_NOTE, wrap=True, valign="top",
+                  colour=INK_SOFT, role="tile-note")
+    rows = math.ceil(len(tiles) / per_row)
+    return y + rows * th + (rows - 1) * gap
 
 
 def _shown_path(ctx: Context, path: str) -> str:
@@ -462,21 +482,21 @@ def _shown_path(ctx: Context, path: str) -> str:
 
 def _orbit_table(ctx: Context, page: Page, x: float, y: float, w: float, draw: bool = True) -> float:
     m = ctx.geo.mm
-    cols = [("File", 0.0), ("Format", m(14)), ("Satellites", m(15)), ("Epoch (UTC)", m(33)),
-            ("Age at start", m(22))]
+    cols = [("File", 0.0), ("Format", m(16)), ("Satellites", m(19)), ("Epoch (UTC)", m(40)),
+            ("Age at start", m(32))]
     first_w = w - sum(c[1] for c in cols[1:])
     widths = [first_w] + [c[1] for c in cols[1:]]
     pad = m(1.0)
     if draw:
         cx = x
         for (title, _), cw in zip(cols, widths):
-            page.text((cx + pad, y, cw - 2 * pad, m(3.6)), title, F_SMALL, colour=INK_SOFT,
+            page.text((cx + pad, y, cw - 2 * pad, m(4.4)), title, F_SMALL, colour=INK_SOFT,
                       align="left" if cx == x else "right", role="orbit-head")
             cx += cw
-    y += m(4.0)
+    y += m(4.8)
     for f in ctx.plan.orbit_files:
         shown = _shown_path(ctx, f.path)
-        h = max(_wrapped_height(page, shown, F_SMALL, first_w - 2 * pad), m(3.2))
+        h = max(_wrapped_height(page, shown, F_SMALL, first_w - 2 * pad), m(4.2))
         if draw:
             page.line(x, y - m(0.3), x + w, y - m(0.3), PANEL_DARK, 0.15)
             age = "n/a" if f.age_s is None else f"{f.age_s / 86400:.2f} d ({f.age_s / 3600:.1f} h)"
@@ -491,7 +511,7 @@ def _orbit_table(ctx: Context, page: Page, x: float, y: float, w: float, draw: b
     mapping = ctx.plan.scenario.resolved_mapping()
     if mapping is not None:
         shown = _shown_path(ctx, str(mapping))
-        h = max(_wrapped_height(page, shown, F_SMALL, first_w - 2 * pad), m(3.2))
+        h = max(_wrapped_height(page, shown, F_SMALL, first_w - 2 * pad), m(4.2))
         if draw:
             page.line(x, y - m(0.3), x + w, y - m(0.3), PANEL_DARK, 0.15)
             page.text((x + pad, y, first_w - 2 * pad, h), shown, F_SMALL, wrap=True,
@@ -503,16 +523,9 @@ def _orbit_table(ctx: Context, page: Page, x: float, y: float, w: float, draw: b
     return y
 
 
-def _notes_texts(ctx: Context) -> list[str]:
-    d = ctx.digest
-    how = ("SHA-256 of the scenario file followed by each orbit file (and the mapping file), "
-           "first 10 hex digits: cat SCENARIO ORBIT... | sha256sum")
-    if not d.from_saved_file:
-        how += "; this plan's scenario differs from its file, so the scenario text as planned was hashed"
-    return [*SIGN_CONVENTIONS,
-            f"Content hash {d.short}: {how}.",
-            "Times are UTC unless marked local; whole seconds. Frequencies are apparent Doppler "
-            "(oscillator offset included) rounded to 1 Hz; bin widths to 0.01 Hz."]
+# The sign conventions in the few words of the footer line (in full in the README and the
+# window's About box; how to re-compute the content hash is in the README).
+FOOTER_CONVENTIONS = "Doppler + approaching · oscillator offset + = fast reference"
 
 
 def _caution_box(ctx: Context, page: Page, x: float, y: float, w: float, draw: bool = True) -> float:
@@ -533,7 +546,7 @@ def _caution_box(ctx: Context, page: Page, x: float, y: float, w: float, draw: b
         page.rect((ix + icon / 2 - m(0.35), iy + icon * 0.3, m(0.7), icon * 0.32), fill="#FFFFFF")
         page.rect((ix + icon / 2 - m(0.35), iy + icon * 0.68, m(0.7), m(0.7)), fill="#FFFFFF")
         page.text((tx, y + pad, tw, hh), "SAFETY — READ BEFORE THE TEST", F_BODY_BOLD,
-                  colour=CAUTION, valign="top", role="caution-title")
+                  colour=CAUTION_INK, valign="top", role="caution-title")
         cy = y + pad + hh
         for c, h in zip(SAFETY_CAUTIONS, heights):
             page.text((tx, cy, tw, h), c, F_BODY, wrap=True, valign="top", role="caution")
@@ -546,7 +559,7 @@ RECORD_FIELDS = (("Receiver, firmware", "Antenna, vehicle"), ("Laptop operator",
 
 
 def _record_box(ctx: Context, page: Page, x: float, y: float, w: float, h: float) -> None:
-    """Write-in fields for the test record (drawn when the summary page has room)."""
+    """Write-in fields for the test record (on the field-record page, every paper size)."""
     m = ctx.geo.mm
     yy = _section_title(ctx, page, x, y, w, "Test record (fill in)")
     gap = m(6.0)
@@ -556,7 +569,7 @@ def _record_box(ctx: Context, page: Page, x: float, y: float, w: float, h: float
         ry = yy + i * row_h
         for j, label in enumerate(pair):
             fx = x + j * (cw + gap)
-            lw = m(38.0)
+            lw = m(52.0)
             page.text((fx, ry, lw, row_h), label, F_BODY, colour=INK_SOFT, role="record-label")
             page.line(fx + lw, ry + row_h * 0.75, fx + cw, ry + row_h * 0.75, RULE, 0.25)
 
@@ -587,16 +600,10 @@ def _summary_pages(ctx: Context) -> list[Page]:
     ry = _section_title(ctx, page, bx + cw + col_gap, y, cw, "Receiver and search")
     ry = _kv_block(ctx, page, bx + cw + col_gap, ry, cw, right)
     y = max(ly, ry) + m(3.0)
-    # The bottom block (cautions, notes) is anchored to the bottom of the first page.
-    notes = _notes_texts(ctx)
-    note_h = [_wrapped_height(page, t, F_SMALL, bw) for t in notes]
-    notes_total = sum(note_h) + m(0.8) * (len(notes) - 1)
+    # The cautions are anchored to the bottom of the first page.
     caution_h = _caution_box(ctx, page, bx, 0, bw, draw=False)
-    bottom_top = by + bh - notes_total - m(3.0) - caution_h
-    cy = _caution_box(ctx, page, bx, bottom_top, bw) + m(3.0)
-    for t, h in zip(notes, note_h):
-        page.text((bx, cy, bw, h), t, F_SMALL, wrap=True, valign="top", colour=INK_SOFT, role="note")
-        cy += h + m(0.8)
+    bottom_top = by + bh - caution_h
+    _caution_box(ctx, page, bx, bottom_top, bw)
     limit = bottom_top - m(3.0)
 
     def continuation() -> tuple[Page, float]:
@@ -613,9 +620,6 @@ def _summary_pages(ctx: Context) -> list[Page]:
     y = _orbit_table(ctx, page, bx, y, bw) + m(3.0)
     # Warnings flow into the space left, then onto continuation pages.
     warnings = list(plan.warnings)
-    record_h = m(RECORD_MM)
-    if not warnings and len(pages) == 1 and limit - y >= record_h:
-        _record_box(ctx, page, bx, limit - record_h, bw, record_h)
     if warnings:
         y = _section_title(ctx, page, bx, y, bw, f"Plan warnings ({len(warnings)})")
         while warnings:
@@ -630,6 +634,48 @@ def _summary_pages(ctx: Context) -> list[Page]:
     return pages
 
 
+INCIDENT_COLUMNS = (("Time (UTC)", 0.16), ("Place (km post, landmark, lat/lon)", 0.32),
+                    ("What happened (outage, re-task, restart, interference, ...)", 0.52))
+
+
+def _field_record_pages(ctx: Context) -> list[Page]:
+    """The test record and the incident log: always on a page of their own, so every
+    paper size keeps them."""
+    m = ctx.geo.mm
+    bx, by, bw, bh = ctx.geo.body
+    page = ctx.new_page("Field record", kind="record")
+    plan, c = ctx.plan, ctx.clock
+    t0 = plan.times.start_unix_s
+    ff = plan.timeline.first_fix_unix_s
+    times = [("Test start", t0)] + ([("Expected first fix", ff)] if ff is not None else [])
+    y = _section_title(ctx, page, bx, by, bw, "Times to compare with the receiver log")
+    for label, u in times:
+        local = f" · {c.full_local(u)}" if c.has_local else ""
+        text = f"{label}: {c.full(u)}{local} · {c.gps(u)}"
+        page.text((bx, y, bw, m(5.5)), text, F_BODY, role="record-times")
+        y += m(6.0)
+    y += m(2.0)
+    _record_box(ctx, page, bx, y, bw, m(RECORD_MM))
+    y += m(RECORD_MM) + m(4.0)
+    y = _section_title(ctx, page, bx, y, bw, "Incident log")
+    hh = m(8.0)
+    page.rect((bx, y, bw, hh), fill=PANEL_DARK)
+    x = bx
+    for title, frac in INCIDENT_COLUMNS:
+        page.text((x + m(1.5), y, bw * frac - m(3.0), hh), title, F_TABLE_HEAD, role="log-head")
+        x += bw * frac
+    y += hh
+    row = m(9.0)
+    while y + row <= by + bh:
+        page.line(bx, y + row, bx + bw, y + row, RULE, 0.3)
+        x = bx
+        for _t, frac in INCIDENT_COLUMNS[:-1]:
+            x += bw * frac
+            page.line(x, y, x, y + row, RULE, 0.3)
+        y += row
+    return [page]
+
+
 # --------------------------------------------------------------------------- table
 
 @dataclass
@@ -640,28 +686,23 @@ class Column:
 
 
 COLUMNS = [
+    Column("ch", "Ch\n"),
     Column("id", "ID\n", "left"),
     Column("signal", "Signal\n", "left"),
-    Column("carrier", "Carrier\nMHz"),
     Column("view", "In view\nUTC", "center"),
-    Column("maxel", "Max el\n°"),
-    Column("state", "S\n", "center"),
+    Column("state", "Window\n", "left"),
     Column("start", "Search\nstart UTC"),
     Column("low", "Window\nlow Hz"),
     Column("high", "Window\nhigh Hz"),
-    Column("width", "Bin\nwidth Hz"),
     Column("bins", "Bins\n"),
-    Column("first", "First bin\nHz"),
-    Column("last", "Last bin\nHz"),
-    Column("code", "Code win.\nchips"),
+    Column("code", "Code\nchips"),
     Column("cn0", "C/N0\ndB-Hz"),
     Column("pd", "Pd\n"),
     Column("exp", "Exp.\nsearch s"),
-    Column("ch", "Ch\n"),
+    Column("acq", "Expected\nacq. UTC"),
 ]
-SEARCH_KEYS = ["state", "start", "low", "high", "width", "bins", "first", "last", "code", "cn0",
-               "pd", "exp", "ch"]
-NO_SEARCH_TEXT = "no search scheduled in the window"
+SEARCH_KEYS = ["state", "start", "low", "high", "bins", "code", "cn0", "pd", "exp", "ch", "acq"]
+NOT_SEARCHED_TEXT = "In view, no search scheduled"
 
 
 @dataclass
@@ -670,30 +711,40 @@ class TableRow:
     cells: dict[str, str]
     continuation: bool = False
     system: str = ""
+    folded: str = ""          # the one line of satellites in view that are never searched
 
 
 def table_rows(ctx: Context) -> list[TableRow]:
+    """Searched satellites in the order the crew works: by channel, then search start;
+    the satellites in view that are never searched folded into one line at the end."""
     plan, clock = ctx.plan, ctx.clock
     rows: list[TableRow] = []
-    for s in in_view_satellites(plan):
+    idle: list[str] = []
+    order = sorted(in_view_satellites(plan), key=lambda s: (
+        (plan.satellites[s].search.channel, plan.satellites[s].search.start_unix_s)
+        if plan.satellites[s].search is not None else (math.inf, math.inf)))
+    for s in order:
         sp = plan.satellites[s]
-        iv = view_intervals(plan, s)
-        cells = {"id": sp.sat_id, "signal": sp.signal_id, "carrier": fmt_mhz(sp.carrier_hz),
-                 "view": clock.view_range(*iv[0]) if iv else "",
-                 "maxel": f"{max_elevation_deg(plan, s):.1f}"}
         q = sp.search
-        if q is not None:
-            cells.update({
-                "state": "F" if q.state == "first" else "A", "start": clock.hms(q.start_unix_s),
-                "low": fmt_hz(q.low_hz), "high": fmt_hz(q.high_hz),
-                "width": fmt_bin_width(q.bin_width_hz), "bins": str(q.bins),
-                "first": fmt_hz(float(q.bin_centres_hz[0])), "last": fmt_hz(float(q.bin_centres_hz[-1])),
-                "code": f"{q.code_window_chips:.1f}", "cn0": f"{q.cn0_dbhz:.1f}", "pd": f"{q.pd:.3f}",
-                "exp": fmt_s(q.expected_search_s), "ch": str(q.channel)})
+        if q is None:
+            idle.append(sp.sat_id)
+            continue
+        iv = view_intervals(plan, s)
+        cells = {"id": sp.sat_id, "signal": sp.signal_id,
+                 "view": clock.view_range(*iv[0]) if iv else "",
+                 "maxel": f"{max_elevation_deg(plan, s):.1f}",
+                 "state": state_word(q.state), "start": clock.hms(q.start_unix_s),
+                 "low": fmt_hz(q.low_hz), "high": fmt_hz(q.high_hz),
+                 "bins": str(q.bins),
+                 "code": f"{q.code_window_chips:.1f}", "cn0": f"{q.cn0_dbhz:.1f}", "pd": f"{q.pd:.3f}",
+                 "exp": fmt_s(q.expected_search_s), "ch": str(q.channel),
+                 "acq": "—" if q.acquired_unix_s is None else clock.hms(q.acquired_unix_s)}
         rows.append(TableRow(s, cells, system=sp.system))
         for a, b in iv[1:]:
             rows.append(TableRow(s, {"view": clock.view_range(a, b)}, continuation=True,
                                  system=sp.system))
+    if idle:
+        rows.append(TableRow(-1, {}, folded=f"{NOT_SEARCHED_TEXT} ({len(idle)}): " + " ".join(idle)))
     return rows
 
 
@@ -705,7 +756,7 @@ def _table_widths(ctx: Context, page: Page, rows: list[TableRow], width: float
     size = F_TABLE.size_pt
     while True:
         body = F_TABLE.sized(size)
-        head = F_TABLE_HEAD.sized(size - 0.5)
+        head = F_TABLE_HEAD.sized(max(size - 0.5, 9.0))
         widths = []
         for col in COLUMNS:
             need = max(page.measure(line, head) for line in col.head.split("\n"))
@@ -717,7 +768,7 @@ def _table_widths(ctx: Context, page: Page, rows: list[TableRow], width: float
                 need += marker_w
             widths.append(need + 2 * pad)
         total = sum(widths)
-        if total <= width or size <= 5.5:
+        if total <= width or size <= 9.0:
             break
         size -= 0.25
     extra = max(0.0, width - total) / len(widths)
@@ -729,7 +780,15 @@ def _table_pages(ctx: Context) -> list[Page]:
     bx, by, bw, bh = ctx.geo.body
     rows = table_rows(ctx)
     per_page = capacity(ctx.geo).table_rows
-    chunks = [rows[i:i + per_page] for i in range(0, len(rows), per_page)] or [[]]
+    chunks: list[list[TableRow]] = [[]]
+    used = 0
+    for r in rows:                       # the folded line takes up to four rows' height
+        cost = 4 if r.folded else 1
+        if used + cost > per_page and chunks[-1]:
+            chunks.append([])
+            used = 0
+        chunks[-1].append(r)
+        used += cost
     probe = ctx.new_page("probe")
     body, head, widths = _table_widths(ctx, probe, rows, bw)
     pad = m(TABLE_PAD_MM)
@@ -756,6 +815,13 @@ def _table_pages(ctx: Context) -> list[Page]:
         prev_sys = None
         stripe = False
         for r in chunk:
+            if r.folded:
+                fh = _wrapped_height(page, r.folded, body, bw - 2 * pad)
+                page.line(bx, y, bx + bw, y, INK_FAINT, 0.25)
+                page.text((bx + pad, y + m(0.6), bw - 2 * pad, fh), r.folded, body, wrap=True,
+                          valign="top", role="cell-folded")
+                y += fh + m(1.2)
+                continue
             if not r.continuation:
                 stripe = not stripe
                 if prev_sys is not None and r.system != prev_sys:
@@ -775,18 +841,13 @@ def _table_pages(ctx: Context) -> list[Page]:
                     cw -= m(2.6)
                 page.text((cx, y, cw, rh), v, body, align=col.align, min_pt=body.size_pt,
                           role=f"cell-{col.key}")
-            if not r.continuation and "start" not in r.cells:
-                i0 = [c.key for c in COLUMNS].index(SEARCH_KEYS[0])
-                x0, x1 = xs[i0], xs[len(COLUMNS)]
-                page.text((x0 + pad, y, x1 - x0 - 2 * pad, rh), NO_SEARCH_TEXT,
-                          replace_italic(body), align="center", colour=INK_FAINT, role="cell-none")
             y += rh
         page.line(bx, y, bx + bw, y, INK_FAINT, 0.25)
-        legend = ("S: F = first search (oscillator offset unknown); A = after the first acquisition "
-                  "(oscillator calibrated, window narrowed). Window: apparent Doppler at the search "
-                  "start, Hz. Bins tile the window centred on it; first/last: bin centres. Code win.: "
-                  "code-phase window searched. Exp. search: mean serial search time. Ch: channel. "
-                  "A second line under a satellite is a further pass in the window.")
+        legend = ("Rows by channel (Ch) and search start, the order the crew works in. Window: "
+                  "first = oscillator error still unknown; narrowed = after the first acquisition "
+                  "(oscillator measured). Window low/high: apparent Doppler at the search start, "
+                  "Hz; the bins (widths on the cards) tile it. Code: code-phase window. Exp. search: mean serial search "
+                  "time. A second line under a satellite is a further pass in the window.")
         ly = y + m(1.5)
         page.text((bx, ly, bw, m(TABLE_LEGEND_MM) - m(1.5)), legend, F_SMALL, wrap=True,
                   valign="top", colour=INK_SOFT, role="table-legend")
@@ -820,117 +881,177 @@ def channel_cards(ctx: Context) -> list[Card]:
     return cards
 
 
+def _ends_with_window(ctx: Context, u: float) -> bool:
+    """True when ``u`` is the end of the test window (a search cut there is not 'setting')."""
+    return abs(u - ctx.plan.times.end_unix_s) <= max(1.0, 0.5 * ctx.plan.scenario.time.step_s)
+
+
 def _end_text(ctx: Context, e: SearchEntry) -> str:
     c = ctx.clock
     if e.acquired:
-        txt = f"expect acquisition {c.hms(e.end_unix_s)} (+{e.end_unix_s - e.start_unix_s:.0f} s)"
+        txt = f"Expect acquisition {c.hms(e.end_unix_s)} (+{e.end_unix_s - e.start_unix_s:.0f} s)"
         if e.track_end_unix_s is not None:
-            why = {"set": "sets", "window_end": "window end"}.get(e.track_end_reason, e.track_end_reason)
-            if abs(e.track_end_unix_s - ctx.plan.times.end_unix_s) < 0.5:
+            if _ends_with_window(ctx, e.track_end_unix_s) or e.track_end_reason == "window_end":
                 why = "window end"
-            txt += f" · track to {c.hms(e.track_end_unix_s)} ({why})"
+            else:
+                why = {"set": "it sets"}.get(e.track_end_reason, e.track_end_reason)
+            txt += f", then track to {c.hms(e.track_end_unix_s)} ({why})"
         return txt
-    why = "it sets" if e.end_reason == "set" else "the window ends"
-    return f"not expected before {why} at {c.hms(e.end_unix_s)}; search abandoned"
+    if e.end_reason == "set" and not _ends_with_window(ctx, e.end_unix_s):
+        why = "it sets"
+    else:
+        why = "the test window ends"
+    return f"Not expected before {why} at {c.hms(e.end_unix_s)}: the search is cut there"
 
 
-def _card(ctx: Context, page: Page, card: Card, rect: Rect) -> None:
+def _settings_text(e: SearchEntry) -> tuple[str, str]:
+    """The receiver settings of one search, in the order a receiver asks for them."""
+    centre = 0.5 * (e.low_hz + e.high_hz)
+    span = e.high_hz - e.low_hz
+    first = (f"Doppler centre {hz_text(centre, signed=True, unicode_minus=False)} Hz, span "
+             f"{fmt_hz(span)} Hz · {e.bins} bins × {fmt_bin_width(e.bin_width_hz)} Hz "
+             f"(centres {fmt_hz(float(e.bin_centres_hz[0]))} … {fmt_hz(float(e.bin_centres_hz[-1]))} Hz)")
+    second = (f"{e.coherent_ms:g} ms coherent × {e.noncoherent} non-coherent · code window "
+              f"{e.code_window_chips:.1f} chips · threshold {e.threshold_db:.1f} dB over mean noise")
+    return first, second
+
+
+def give_up_unix_s(e: SearchEntry) -> float | None:
+    return None if not math.isfinite(e.give_up_s) else e.start_unix_s + e.give_up_s
+
+
+def _action_text(ctx: Context, e: SearchEntry) -> str:
+    """When to give up, and what to do then."""
+    c = ctx.clock
+    t = give_up_unix_s(e)
+    if t is None or t >= min(e.end_unix_s if not e.acquired else math.inf, ctx.plan.times.end_unix_s):
+        if not e.acquired:
+            return "No give-up inside the search: keep searching until it is cut."
+    if t is None:
+        return ""
+    head = f"Give up at {c.hms(t)} (95 % of searches succeed by then): "
+    if e.spare:
+        return head + f"re-task channel {e.channel} to {e.spare} (spare)."
+    return (head + f"widen the window by one bin each side (±{fmt_bin_width(e.bin_width_hz)} Hz) "
+            "and search again.")
+
+
+_SP = "\u2003"                      # em spaces: kept apart when the line is wrapped
+RECORD_LINE = _SP.join(["☐ acquired", "☐ not acquired", "at ________", "C/N0 ______ dB-Hz",
+                        "Doppler ________ Hz"])
+
+
+def _search_lines(ctx: Context, e: SearchEntry) -> list[tuple[str, FontSpec, str]]:
+    one, two = _settings_text(e)
+    lines = [(one, F_CARD, "card-settings"), (two, F_CARD, "card-integration"),
+             (_end_text(ctx, e), F_CARD, "card-end")]
+    action = _action_text(ctx, e)
+    if action:
+        lines.append((action, F_CARD_BOLD, "card-action"))
+    lines.append((RECORD_LINE, F_CARD, "card-record"))
+    return lines
+
+
+def _search_height(ctx: Context, page: Page, e: SearchEntry, width: float) -> float:
+    m = ctx.geo.mm
+    body = sum(_wrapped_height(page, t, f, width) + m(0.8) for t, f, _r in _search_lines(ctx, e))
+    return m(CARD_TITLE_MM) + body + m(3.0)
+
+
+def _search_block(ctx: Context, page: Page, e: SearchEntry, x: float, y: float, w: float) -> float:
+    """One search: what to set, what to expect, when to give up and what then, and the
+    blanks for what the receiver showed. Returns the y below it."""
     m = ctx.geo.mm
     clock = ctx.clock
-    x, y, w, h = rect
-    page.rect(rect, stroke=INK_SOFT, width_mm=0.35)
-    hh = m(7.0)
-    page.rect((x, y, w, hh), fill=tint(ACCENT, 0.85))
-    page.text((x + m(2.5), y, w * 0.55, hh), f"CHANNEL {card.channel}", F_CARD_HEAD, role="card-title")
-    n_total = len([e for e in ctx.entries if e.channel == card.channel])
-    part = f" · card {card.part} of {card.parts}" if card.parts > 1 else ""
-    right = f"{n_total} search{'es' if n_total != 1 else ''}{part}"
-    page.text((x + w * 0.55, y, w * 0.45 - m(2.5), hh), right, F_CARD_SOFT, align="right",
-              colour=INK_SOFT, role="card-count")
-    ey = y + hh + m(2.0)
-    if not card.entries:
-        page.text((x + m(3), ey, w - m(6), m(8)),
-                  "No search planned on this channel in the test window.", F_CARD, wrap=True,
-                  valign="top", colour=INK_SOFT, role="card-idle")
-        ey += m(8)
-    box = m(5.0)
-    bx = x + m(2.5)
-    ix = bx + box + m(2.5)
-    iw = x + w - m(2.5) - ix
-    line = m(3.8)
-    for i, e in enumerate(card.entries):
-        if i:
-            page.line(bx, ey - m(1.0), x + w - m(2.5), ey - m(1.0), PANEL_DARK, 0.25)
-        page.rect((bx, ey + m(0.4), box, box), stroke=INK, width_mm=0.4)
-        st = style_for(e.system)
-        page.marker(st.marker_name, ix + m(1.4), ey + m(3.0), 2.8, st.colour)
-        sat_w = page.measure(e.sat_id, F_CARD_SAT) + m(0.6)
-        page.text((ix + m(3.4), ey, sat_w, m(6.0)), e.sat_id, F_CARD_SAT, role="card-sat")
-        sig = e.signal_id + (f" k{e.glonass_k:+d}" if e.glonass_k is not None else "")
-        sig_x = ix + m(3.4) + sat_w + m(1.2)
-        sig_w = page.measure(sig, F_CARD_SOFT) + m(0.4)
-        page.text((sig_x, ey + m(0.6), sig_w, m(5.4)), sig, F_CARD_SOFT, colour=INK_SOFT,
-                  role="card-signal")
-        sx = sig_x + sig_w + m(1.5)
-        page.text((sx, ey, ix + iw - sx, m(6.0)), clock.hms(e.start_unix_s), F_CARD_START,
-                  align="right", min_pt=8.0, role="card-start")
-        ry = ey + m(6.2)
-        local = clock.local_hms(e.start_unix_s) if clock.has_local else "UTC"
-        local_w = page.measure(local, F_CARD_SOFT) + m(0.4)
-        state = "first search" if e.state == "first" else "after first acquisition"
-        win = (f"window {fmt_hz(e.low_hz)} … {fmt_hz(e.high_hz)} Hz · {e.bins} bins × "
-               f"{fmt_bin_width(e.bin_width_hz)} Hz")
-        page.text((ix, ry, iw - local_w - m(1.5), line), win, F_CARD, min_pt=6.0, role="card-window")
-        page.text((ix + iw - local_w, ry, local_w, line), local, F_CARD_SOFT, align="right",
-                  colour=INK_SOFT, role="card-local")
-        ry += line
-        centres = (f"centres {fmt_hz(float(e.bin_centres_hz[0]))} … {fmt_hz(float(e.bin_centres_hz[-1]))} Hz"
-                   f" · {state}")
-        acq_w = m(25.0)
-        page.text((ix, ry, iw - acq_w - m(1.5), line), centres, F_CARD, min_pt=6.0, role="card-centres")
-        page.text((ix + iw - acq_w, ry, m(10.0), line), "acquired", F_CARD_SOFT, colour=INK_FAINT,
-                  role="card-actual")
-        page.line(ix + iw - acq_w + m(10.5), ry + line - m(0.5), ix + iw, ry + line - m(0.5),
-                  INK_FAINT, 0.25)
-        ry += line
-        page.text((ix, ry, iw, line), _end_text(ctx, e), F_CARD, min_pt=6.0, role="card-end")
-        ey = ry + line + m(2.6)
-    # Lines for notes in the space left.
-    bottom = y + h - m(2.5)
-    if bottom - ey >= m(9.0):
-        page.text((bx, ey, m(12.0), m(3.4)), "notes", F_CARD_SOFT, colour=INK_FAINT, role="card-notes")
-        ly = ey + m(7.5)
-        while ly <= bottom:
-            page.line(bx, ly, x + w - m(2.5), ly, PANEL_DARK, 0.25)
-            ly += m(6.0)
+    box = m(5.5)
+    page.rect((x, y + m(0.6), box, box), stroke=INK, width_mm=0.45)
+    ix = x + box + m(2.5)
+    iw = x + w - ix
+    st = style_for(e.system)
+    page.marker(st.marker_name, ix + m(1.6), y + m(3.4), 3.2, st.colour)
+    sat_w = page.measure(e.sat_id, F_CARD_SAT) + m(0.6)
+    page.text((ix + m(4.0), y, sat_w, m(7.0)), e.sat_id, F_CARD_SAT, role="card-sat")
+    sig = (e.signal_id + (f" k{e.glonass_k:+d}" if e.glonass_k is not None else "")
+           + f" · {state_word(e.state)} window")
+    sig_x = ix + m(4.0) + sat_w + m(1.5)
+    start = clock.hms(e.start_unix_s)
+    start_w = page.measure(start, F_CARD_START) + m(0.5)
+    page.text((sig_x, y + m(0.8), ix + iw - start_w - m(2) - sig_x, m(6.2)), sig, F_CARD_SOFT,
+              colour=INK_SOFT, role="card-signal")
+    page.text((ix + iw - start_w, y, start_w, m(7.0)), start, F_CARD_START, align="right",
+              role="card-start")
+    times = (f"{clock.local_hms(e.start_unix_s)} · " if clock.has_local else "") + clock.gps(e.start_unix_s)
+    page.text((ix, y + m(7.0), iw, m(4.6)), times, F_CARD_SOFT, align="right", colour=INK_SOFT,
+              role="card-local")
+    ry = y + m(CARD_TITLE_MM)
+    for text, spec, role in _search_lines(ctx, e):
+        h = _wrapped_height(page, text, spec, iw)
+        page.text((ix, ry, iw, h), text, spec, wrap=True, valign="top", role=role)
+        ry += h + m(0.8)
+    return ry + m(3.0)
 
 
 def _card_pages(ctx: Context) -> list[Page]:
+    """One card per channel, full width, flowing down the pages; a card that does not fit
+    continues on the next page under its channel's title."""
     m = ctx.geo.mm
     bx, by, bw, bh = ctx.geo.body
-    cards = channel_cards(ctx)
-    cap = capacity(ctx.geo)
-    ncol, nrow = cap.card_columns, cap.card_rows
-    per = cap.cards_per_page
-    pages = []
-    n_pages = math.ceil(len(cards) / per)
-    gap = m(CARD_GAP_MM)
-    top = by + m(CARDS_INTRO_MM)
-    cw = (bw - gap * (ncol - 1)) / ncol
-    ch = (by + bh - top - gap * (nrow - 1)) / nrow
-    for n in range(n_pages):
-        chunk = cards[n * per:(n + 1) * per]
-        title = "Channel cards" + (f" ({n + 1} of {n_pages})" if n_pages > 1 else "")
-        page = ctx.new_page(title, kind="cards", channels=[c.channel for c in chunk])
-        intro = ("One card per receiver channel, searches in time order. Tick the box when the "
-                 "receiver reports the acquisition and note the time. Times UTC"
-                 + (f", local time ({ctx.clock.zone_name}) in brackets." if ctx.clock.has_local else "."))
-        page.text((bx, by, bw, m(CARDS_INTRO_MM) - m(1.5)), intro, F_BODY, wrap=True, valign="top",
-                  colour=INK_SOFT, role="cards-intro")
-        for i, card in enumerate(chunk):
-            r, c = divmod(i, ncol)
-            _card(ctx, page, card, (bx + c * (cw + gap), top + r * (ch + gap), cw, ch))
+    bottom = by + bh
+    pages: list[Page] = []
+    inner_x, inner_w = bx + m(3.0), bw - m(6.0)
+    text_w = inner_w - m(8.0)
+    hh = m(CARD_HEAD_MM)
+
+    def new_page() -> tuple[Page, float]:
+        page = ctx.new_page("Channel cards", kind="cards", channels=[])
+        intro = ("One card per receiver channel, searches in time order: set the receiver as "
+                 "listed, tick acquired or not acquired and write what it shows. Times UTC"
+                 + (f"; local time ({ctx.clock.zone_name}) and GPS week / time of week beside "
+                    "each start." if ctx.clock.has_local else "; GPS week / time of week beside each start."))
+        ih = _wrapped_height(page, intro, F_BODY, bw)
+        page.text((bx, by, bw, ih), intro, F_BODY, wrap=True, valign="top", colour=INK_SOFT,
+                  role="cards-intro")
         pages.append(page)
+        return page, by + ih + m(2.5)
+
+    page, y = new_page()
+    n = ctx.plan.scenario.receiver.channels
+    for ch in range(1, n + 1):
+        mine = sorted((e for e in ctx.entries if e.channel == ch), key=lambda e: e.start_unix_s)
+        heights = [_search_height(ctx, page, e, text_w) for e in mine]
+        first_h = hh + (heights[0] if heights else m(9.0))
+        if y + first_h > bottom:
+            page, y = new_page()
+        part = 0
+
+        def head(page: Page, y: float, cont: bool, ch: int = ch, mine: list = mine) -> float:
+            page.tags.setdefault("channels", []).append(ch)
+            page.rect((bx, y, bw, hh), fill=tint(ACCENT, 0.85), stroke=INK_SOFT, width_mm=0.35)
+            title = f"CHANNEL {ch}" + (" (continued)" if cont else "")
+            page.text((bx + m(2.5), y, bw * 0.6, hh), title, F_CARD_HEAD, role="card-title")
+            right = f"{len(mine)} search{'es' if len(mine) != 1 else ''}"
+            page.text((bx + bw * 0.6, y, bw * 0.4 - m(2.5), hh), right, F_CARD_SOFT, align="right",
+                      colour=INK_SOFT, role="card-count")
+            return y + hh + m(2.0)
+
+        y = head(page, y, False)
+        if not mine:
+            page.text((inner_x, y, inner_w, m(6.0)), "No search planned on this channel in the "
+                      "test window.", F_CARD, role="card-idle")
+            y += m(9.0)
+        for e, h in zip(mine, heights):
+            if y + h > bottom:
+                page, y = new_page()
+                y = head(page, y, True)
+            if part:
+                page.line(inner_x, y - m(1.5), inner_x + inner_w, y - m(1.5), RULE, 0.25)
+            y = _search_block(ctx, page, e, inner_x, y, inner_w)
+            part += 1
+        y += m(CARD_GAP_MM)
+    total = len(pages)
+    for i, pg_ in enumerate(pages, start=1):
+        if total > 1:
+            pg_.section = f"Channel cards ({i} of {total})"
     return pages
 
 
@@ -963,6 +1084,36 @@ def capacity(geo: Geometry) -> Capacity:
                     max(1, min(CARD_ROWS, rows)))
 
 
+def _first_minutes_pages(ctx: Context) -> list[Page]:
+    """The start of the test to scale: the searches before the first fix, which are
+    slivers on the whole window's axis."""
+    plan = ctx.plan
+    m = ctx.geo.mm
+    bx, by, bw, bh = ctx.geo.body
+    n_ch = plan.scenario.receiver.channels
+    ends = [plan.timeline.first_fix_unix_s or plan.times.start_unix_s]
+    if plan.ttff is not None and math.isfinite(plan.ttff.p95_s):
+        ends.append(plan.times.start_unix_s + plan.ttff.p95_s)
+    until = max(ends) + 60.0
+    if until >= plan.times.end_unix_s - 60.0:
+        return []                       # the whole window is already the first minutes
+    page = ctx.new_page("Channel timeline: the first minutes", kind="first-minutes")
+    minutes = (until - plan.times.start_unix_s) / 60.0
+    intro = (f"The first {minutes:.0f} minutes of the test to scale, up to a minute past the "
+             "95th-percentile time to first fix: the searches before the first fix.")
+    ih = _wrapped_height(page, intro, F_BODY, bw)
+    page.text((bx, by, bw, ih), intro, F_BODY, wrap=True, valign="top", colour=INK_SOFT,
+              role="first-minutes-intro")
+    y = by + ih + m(3.0)
+    tl_h = m(2 * TIMELINE_AXIS_MM) + n_ch * m(TIMELINE_ROW_MM)
+    if y + tl_h + m(TIMELINE_LEGEND_MM) > by + bh:
+        return []
+    charts.timeline_chart(ctx, page, (bx, y, bw, tl_h), 1, n_ch, until_unix_s=until)
+    y += tl_h + m(1.0)
+    charts.timeline_legend(ctx, page, (bx, y, bw, m(TIMELINE_LEGEND_MM)))
+    return [page]
+
+
 def _chart_pages(ctx: Context) -> list[Page]:
     m = ctx.geo.mm
     bx, by, bw, bh = ctx.geo.body
@@ -979,6 +1130,7 @@ def _chart_pages(ctx: Context) -> list[Page]:
         y = _section_title(ctx, page, bx, y, bw, "Sky plot")
         charts.sky_chart(ctx, page, (bx, y, bw, by + bh - y))
         pages.append(page)
+        pages.extend(_first_minutes_pages(ctx))
     else:
         per = cap.timeline_rows
         n_pages = math.ceil(n_ch / per)
@@ -1026,7 +1178,8 @@ def build_pages(plan: Plan, device, geo: Geometry, generated_unix_s: float | Non
                 ) -> list[Page]:
     """Lay out every page (no painting)."""
     ctx = _context(plan, device, geo, generated_unix_s)
-    pages = (_summary_pages(ctx) + _table_pages(ctx) + _chart_pages(ctx) + _card_pages(ctx))
+    pages = (_summary_pages(ctx) + _table_pages(ctx) + _chart_pages(ctx) + _card_pages(ctx)
+             + _field_record_pages(ctx))
     for i, page in enumerate(pages, start=1):
         _header(ctx, page)
         _footer(ctx, page, i, len(pages))
@@ -1216,6 +1369,53 @@ def write_sheet_pdf(plan: Plan, path: str | os.PathLike[str], paper: str = "a4",
     return len(pages)
 
 
+def write_sheet_pngs(plan: Plan, folder: str | os.PathLike[str], paper: str = "a4",
+                     dpi: float = 80.0, *, generated_unix_s: float | None = None) -> list[Path]:
+    """Each sheet page as ``page-N-<paper>.png`` at ``dpi`` (for looking at the pages and
+    for the README pictures), laid out exactly as the PDF: the pages are built for the
+    PDF device and painted on an image that reports the PDF resolution, scaled down."""
+    from PySide6.QtCore import QBuffer, QIODevice, Qt
+    from PySide6.QtGui import QImage, QPainter
+
+    from core.api import write_bytes_atomic
+
+    paper = paper.lower()
+    if paper not in PAPER_MM:
+        raise InputError(f"'{paper}' is not a paper size (a4 or letter)", field="paper")
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    ensure_gui_application()
+    buf = QBuffer()
+    buf.open(QIODevice.OpenModeFlag.WriteOnly)
+    writer = _pdf_writer(buf, paper)
+    geo = _device_geometry(writer)
+    pages = build_pages(plan, writer, geo, generated_unix_s)
+    w_mm, h_mm = PAPER_MM[paper]
+    scale = dpi / PDF_DPI
+    written = []
+    for n, page in enumerate(pages, start=1):
+        img = QImage(round(w_mm / 25.4 * dpi), round(h_mm / 25.4 * dpi), QImage.Format.Format_RGB32)
+        img.setDotsPerMeterX(round(PDF_DPI / 0.0254))
+        img.setDotsPerMeterY(round(PDF_DPI / 0.0254))
+        img.fill(Qt.GlobalColor.white)
+        painter = QPainter(img)
+        painter.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+        painter.setRenderHint(QPainter.RenderHint.TextAntialiasing, True)
+        painter.scale(scale, scale)
+        _paint_page(painter, page, pages[0].typesetter)
+        painter.end()
+        img.setDotsPerMeterX(round(dpi / 0.0254))
+        img.setDotsPerMeterY(round(dpi / 0.0254))
+        out = QBuffer()
+        out.open(QIODevice.OpenModeFlag.WriteOnly)
+        img.save(out, "PNG")
+        target = folder / f"page-{n}-{paper}.png"
+        write_bytes_atomic(target, bytes(out.data()), what="write the page image")
+        written.append(target)
+    del writer
+    return written
+
+
 # --------------------------------------------------------------------------- window
 
 def show_print_preview(plan: Plan, parent=None) -> None:
@@ -1255,6 +1455,16 @@ def _paint_guarded(plan: Plan, printer, parent) -> bool:
 
 # --------------------------------------------------------------------------- command
 
+def _write_outputs(plan: Plan, args) -> int:
+    """The PDF, and the page images when asked (while the plan's files still exist)."""
+    pages = write_sheet_pdf(plan, args.output, args.paper)
+    png_dir = getattr(args, "png", None)
+    if png_dir:
+        for path in write_sheet_pngs(plan, png_dir, args.paper):
+            print(f"wrote {path}")
+    return pages
+
+
 def run_sheet_command(args) -> int:
     """``acqplan sheet SCENARIO.toml -o plan.pdf [--paper a4|letter] [--demo]``."""
     from core.api import load_scenario, make_plan
@@ -1267,11 +1477,9 @@ def run_sheet_command(args) -> int:
             from core.api import write_demo
 
             with tempfile.TemporaryDirectory(prefix="acqplan-demo-") as tmp:
-                plan = make_plan(load_scenario(write_demo(tmp)))
-                pages = write_sheet_pdf(plan, args.output, args.paper)
+                pages = _write_outputs(make_plan(load_scenario(write_demo(tmp))), args)
         else:
-            plan = make_plan(load_scenario(args.scenario))
-            pages = write_sheet_pdf(plan, args.output, args.paper)
+            pages = _write_outputs(make_plan(load_scenario(args.scenario)), args)
     except InputError as err:
         # One line, also for a scenario with several problems (listed "; "-separated).
         lines = [ln.strip().lstrip("- ") for ln in str(err).splitlines() if ln.strip()]
@@ -1284,5 +1492,5 @@ def run_sheet_command(args) -> int:
 __all__ = [
     "Capacity", "DOCUMENT_TITLE", "build_pages", "capacity", "channel_cards", "ensure_gui_application",
     "layout_problems", "paint_sheets", "run_sheet_command", "show_print_dialog",
-    "show_print_preview", "table_rows", "write_sheet_pdf",
+    "show_print_preview", "table_rows", "write_sheet_pdf", "write_sheet_pngs",
 ]

@@ -15,7 +15,6 @@ import re
 import subprocess
 import sys
 import unicodedata
-from collections import Counter
 from datetime import UTC, datetime
 from pathlib import Path
 from zoneinfo import ZoneInfo
@@ -167,33 +166,54 @@ def test_layout_check_finds_overflow_overlap_and_leaving_the_page(qapp, tmp_path
 
 # --------------------------------------------------------------------------- pages
 
-def _expected_pages(plan, paper: str) -> int:
+def _expected_table_pages(plan, paper: str) -> int:
+    """Rows: one per pass of each searched satellite in view, plus the folded line of the
+    satellites never searched (four rows' height), filled page by page."""
     cap = sheets.capacity(Geometry.for_paper(paper))
-    # Layout constants for portrait A4 and Letter: 2 x 3 channel cards per page.
-    assert (cap.card_columns, cap.card_rows) == (2, 3)
-    rows = sum(len(sp.passes) or 1 for s, sp in enumerate(plan.satellites) if plan.visible[s].any())
-    searches = [g for g in plan.timeline.segments if g.kind == "search"]
-    n_ch = plan.scenario.receiver.channels
-    per_ch = Counter(g.channel for g in searches)
-    cards = sum(max(1, math.ceil(per_ch[c] / sheets.SEARCHES_PER_CARD)) for c in range(1, n_ch + 1))
-    overview = 1 if n_ch <= sheets.OVERVIEW_MAX_CHANNELS else math.ceil(n_ch / cap.timeline_rows) + 1
-    return (1 + math.ceil(rows / cap.table_rows) + overview
-            + max(1, math.ceil(len(searches) / cap.ladder_rows))
-            + math.ceil(cards / (cap.card_columns * cap.card_rows)))
+    costs = []
+    idle = 0
+    for s, sp in enumerate(plan.satellites):
+        if not plan.visible[s].any():
+            continue
+        if sp.search is None:
+            idle += 1
+        else:
+            costs += [1] * (len(sp.passes) or 1)
+    if idle:
+        costs.append(4)
+    pages, used = 1, 0
+    for c in costs:
+        if used + c > cap.table_rows and used:
+            pages, used = pages + 1, 0
+        used += c
+    return pages
 
 
 @pytest.mark.parametrize("paper", ["a4", "letter"])
 @pytest.mark.parametrize("name", ["demo", "long", "real"])
 def test_page_count_follows_satellites_and_channels(rendered, plans, name, paper):
     doc = rendered(name, paper, parse=False)
-    n = len(doc["reader"].pages)
-    assert n == _expected_pages(plans[name], paper)
-    # One summary page, then the table (its header on every page), then the rest.
+    plan = plans[name]
+    cap = sheets.capacity(Geometry.for_paper(paper))
     sections = [p.section for p in doc["pages"]]
-    assert sections[0] == "Summary" and sections[1].startswith("Satellites in view")
+    kinds = [p.tags.get("kind") for p in doc["pages"]] if "kind" in doc["pages"][0].tags else None
+    assert len(doc["reader"].pages) == len(sections)
+    # Summary first, then the table (its header on every page), charts, cards, field record.
+    assert sections[0] == "Summary" and sections[-1] == "Field record"
+    table = [x for x in sections if x.startswith("Satellites in view")]
+    assert len(table) == _expected_table_pages(plan, paper)
+    searches = [g for g in plan.timeline.segments if g.kind == "search"]
+    ladder = [x for x in sections if x.startswith("Doppler")]
+    assert len(ladder) == max(1, math.ceil(len(searches) / cap.ladder_rows))
+    cards = [p for p in doc["pages"] if p.section.startswith("Channel cards")]
+    assert cards and sorted({c for p in cards for c in p.tags["channels"]}) == \
+        list(range(1, plan.scenario.receiver.channels + 1))
+    assert kinds is None or kinds.count("record") == 1
     if name == "long":
-        assert sum(s.startswith("Satellites in view") for s in sections) >= 3
-        assert sum(s.startswith("Channel timeline") for s in sections) >= 1 and "Sky plot" in sections
+        assert len(table) >= 3
+        assert sum(x.startswith("Channel timeline") for x in sections) >= 1 and "Sky plot" in sections
+    else:
+        assert "Channel timeline: the first minutes" in sections
 
 
 @pytest.mark.parametrize("name", ["demo", "long"])
@@ -241,7 +261,8 @@ def test_charts_are_vector_drawings(rendered):
 # --------------------------------------------------------------------------- values
 
 def _hms(u: float) -> str:
-    return datetime.fromtimestamp(round(u), UTC).strftime("%H:%M:%S")
+    """[calc] the nearest whole second, halves up."""
+    return datetime.fromtimestamp(math.floor(u + 0.5), UTC).strftime("%H:%M:%S")
 
 
 def _view(rise: float, set_: float) -> str:
@@ -252,17 +273,18 @@ def _view(rise: float, set_: float) -> str:
 
 
 def _expected_row(sp) -> list[str]:
-    row = [sp.sat_id, sp.signal_id, f"{sp.carrier_hz / 1e6:.4f}",
-           _view(sp.passes[0].rise_unix_s, sp.passes[0].set_unix_s),
-           f"{max(p.max_elevation_deg for p in sp.passes):.1f}"]
     q = sp.search
-    if q is None:
-        return row + ["no search scheduled in the window"]
-    return row + ["F" if q.state == "first" else "A", _hms(q.start_unix_s),
-                  str(round(q.low_hz)), str(round(q.high_hz)), f"{q.bin_width_hz:.2f}", str(q.bins),
-                  str(round(float(q.bin_centres_hz[0]))), str(round(float(q.bin_centres_hz[-1]))),
-                  f"{q.code_window_chips:.1f}", f"{q.cn0_dbhz:.1f}", f"{q.pd:.3f}",
-                  f"{q.expected_search_s:.1f}", str(q.channel)]
+    acq = "—" if q.acquired_unix_s is None else _hms(q.acquired_unix_s)
+    return [str(q.channel), sp.sat_id, sp.signal_id,
+            _view(sp.passes[0].rise_unix_s, sp.passes[0].set_unix_s),
+            "first" if q.state == "first" else "narrowed", _hms(q.start_unix_s),
+            str(_half_up(q.low_hz)), str(_half_up(q.high_hz)), str(q.bins),
+            f"{q.code_window_chips:.1f}", f"{q.cn0_dbhz:.1f}", f"{q.pd:.3f}",
+            f"{q.expected_search_s:.1f}", acq]
+
+
+def _half_up(v: float) -> int:
+    return math.floor(v + 0.5)
 
 
 @pytest.mark.parametrize("name", ["demo", "real"])
@@ -277,12 +299,23 @@ def test_satellite_table_prints_the_plans_values(rendered, plans, name):
         for t, x, y in items:
             by_y.setdefault(round(y, 1), []).append((x, t))
         rows += [[t for _, t in sorted(v)] for v in by_y.values()]
-    printed = {r[0]: r for r in rows if re.fullmatch(r"[GECRJSI]\d\d", r[0])}
+    printed = [r for r in rows if len(r) > 1 and re.fullmatch(r"\d+", r[0])
+               and re.fullmatch(r"[GECRJSI]\d\d", r[1])]
     in_view = [sp for s, sp in enumerate(plan.satellites) if plan.visible[s].any()]
-    assert sorted(printed) == sorted(sp.sat_id for sp in in_view)
-    for sp in in_view:
-        assert printed[sp.sat_id] == _expected_row(sp), sp.sat_id
-    assert sum(sp.search is not None for sp in in_view) >= 4
+    searched = sorted((sp for sp in in_view if sp.search is not None),
+                      key=lambda sp: (sp.search.channel, sp.search.start_unix_s))
+    # the order the crew works in: by channel, then search start
+    assert [r[1] for r in printed] == [sp.sat_id for sp in searched]
+    for r, sp in zip(printed, searched):
+        assert r == _expected_row(sp), sp.sat_id
+    assert len(searched) >= 4
+    # the satellites never searched: one folded line naming each
+    idle = [sp.sat_id for sp in in_view if sp.search is None]
+    text = " ".join(_page_text(items) for items in table)
+    assert f"{sheets.NOT_SEARCHED_TEXT} ({len(idle)}):" in text
+    for sid in idle:
+        assert sid in text
+    assert "no search scheduled in the window" not in text
 
 
 def _search_window(plan, seg):
@@ -318,7 +351,9 @@ def test_channel_cards_list_every_search_with_its_window(rendered, plans, name):
         else:
             lo, hi, n, width = _search_window(plan, seg)
         first.setdefault(seg.sat_id, seg)
-        line = f"window {round(lo)} … {round(hi)} Hz · {n} bins × {width:.2f} Hz"
+        centre = _half_up(0.5 * (lo + hi))
+        line = (f"Doppler centre {'+' if centre > 0 else ''}{centre} Hz, span {_half_up(hi - lo)} Hz · "
+                f"{n} bins × {width:.2f} Hz")
         assert _normal(line) in text, (seg.sat_id, line)
         assert _hms(seg.start_unix_s)[-8:] in text
 
@@ -341,7 +376,9 @@ def test_doppler_pages_show_every_search_in_time_order(rendered, plans):
 def test_summary_page_states_data_assumptions_and_cautions(rendered, plans):
     doc = rendered("demo")
     plan = plans["demo"]
-    text = _page_text(doc["items"][0])
+    text = " ".join(_page_text(items) for items, p in zip(doc["items"], doc["pages"])
+                    if p.section.startswith("Summary"))
+    assert "Field record" not in text and "SAFETY" in _page_text(doc["items"][0])
     sc = plan.scenario
     assert _normal(sc.name) in text
     assert "49.6183° N, 10.1327° E, 318 m" in text
@@ -498,3 +535,120 @@ def test_repeated_rendering_keeps_none_alive(plans, qapp, tmp_path):
         sheets.write_sheet_pdf(plans["demo"], tmp_path / f"r{i}.pdf")
     gc.collect()
     assert sys.getrefcount(None) >= before - 50
+
+
+# --------------------------------------------------------------------------- read in a vehicle
+
+def _relative_luminance(rgb) -> float:
+    """[pub: WCAG 2.1, definition of relative luminance] from sRGB components 0..1."""
+    def lin(c):
+        c = float(c)
+        return c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4
+    r, g, b = (lin(c) for c in rgb)
+    return 0.2126 * r + 0.7152 * g + 0.0722 * b
+
+
+def _text_fills(reader, page) -> list[tuple[float, float, float]]:
+    """The non-stroking (fill) colour in force at every text-showing operator of the page's
+    content stream (q/Q save and restore it)."""
+    from pypdf.generic import ContentStream
+
+    fill, stack, out = (0.0, 0.0, 0.0), [], []
+    for operands, op in ContentStream(page.get_contents(), reader).operations:
+        if op == b"q":
+            stack.append(fill)
+        elif op == b"Q":
+            fill = stack.pop() if stack else fill
+        elif op in (b"scn", b"sc", b"rg") and len(operands) == 3:
+            fill = tuple(float(v) for v in operands)
+        elif op == b"g":
+            fill = (float(operands[0]),) * 3
+        elif op in (b"Tj", b"TJ", b"'", b'"'):
+            out.append(fill)
+    return out
+
+
+@pytest.mark.parametrize("paper", ["a4", "letter"])
+def test_every_page_is_readable_in_a_vehicle(rendered, paper):
+    doc = rendered("demo", paper, parse=False)
+    geo = Geometry.for_paper(paper)
+    page_h_pt = PAPER_PT[paper][1]
+    # the footer band, in PDF points from the bottom of the page
+    footer_top_pt = page_h_pt - geo.to_mm(geo.footer[1]) / 25.4 * 72
+    for n, page in enumerate(doc["reader"].pages, start=1):
+        sizes = []
+
+        def visit(text, cm, tm, font, size, sizes=sizes):
+            if not text.strip():
+                return
+            y = tm[4] * cm[1] + tm[5] * cm[3] + cm[5]
+            # the rendered height: font size times the vertical scale of text and user space
+            eff = size * math.hypot(tm[2], tm[3]) * math.hypot(cm[2], cm[3])
+            if y > footer_top_pt + 1.0:
+                sizes.append((eff, text.strip()))
+        page.extract_text(visitor_text=visit)
+        assert sizes, n
+        smallest = min(sizes)
+        assert smallest[0] >= 9.0 - 0.05, (n, smallest)
+        # every text fill dark: contrast at least 4.5:1 on white paper [pub: WCAG 2.1 SC
+        # 1.4.3], i.e. relative luminance <= 0.183; holds in greyscale print as well
+        fills = _text_fills(doc["reader"], page)
+        assert fills
+        light = {f for f in fills if (1.05 / (_relative_luminance(f) + 0.05)) < 4.5}
+        assert not light, (n, light)
+
+
+@pytest.mark.parametrize("paper", ["a4", "letter"])
+def test_every_paper_keeps_the_test_record_and_incident_log(rendered, paper):
+    doc = rendered("demo", paper)
+    record = [items for items, p in zip(doc["items"], doc["pages"]) if p.section == "Field record"]
+    assert len(record) == 1
+    text = _page_text(record[0])
+    for left, right in sheets.RECORD_FIELDS:
+        assert left in text and right in text
+    assert "Incident log" in text and "Time (UTC)" in text and "What happened" in text
+    assert "GPS " in text and "Test start" in text
+
+
+def test_cards_say_when_to_give_up_and_what_then(rendered, plans):
+    """Every search on the cards names its give-up time, and its spare where it has one;
+    the give-up time is the 95th percentile of the serial search, checked here against a
+    numpy simulation of the same search [calc]."""
+    from core.files.plan_export import search_entries
+    from core.search import detection
+
+    doc = rendered("demo")
+    plan = plans["demo"]
+    text = " ".join(_page_text(items) for items, p in zip(doc["items"], doc["pages"])
+                    if p.section.startswith("Channel cards"))
+    entries = search_entries(plan)
+    with_spare = 0
+    for e in entries:
+        assert _hms(e.start_unix_s) in text
+        if math.isfinite(e.give_up_s) and e.start_unix_s + e.give_up_s < plan.times.end_unix_s:
+            assert f"Give up at {_hms(e.start_unix_s + e.give_up_s)}" in text, e.sat_id
+        if e.spare:
+            with_spare += 1
+            assert f"re-task channel {e.channel} to {e.spare} (spare)" in text, e.sat_id
+            assert e.spare != e.sat_id
+    assert with_spare >= 4
+    assert text.count("not acquired") >= len(entries) and "C/N0" in text and "Doppler" in text
+    # the give-up time against a simulation: position j uniform in 0..q-1, visits geometric
+    rng = np.random.default_rng(7)
+    for q, pd, td in ((40, 0.9, 0.02), (300, 0.55, 0.004), (1, 0.3, 0.1)):
+        j = rng.integers(0, q, 200_000)
+        v = rng.geometric(pd, 200_000)
+        t = (j + (v - 1) * (q - 1) + v) * td
+        ref = float(np.quantile(t, 0.95, method="inverted_cdf"))   # smallest t with F(t) >= 0.95
+        got = detection.serial_search_quantile_s(q, td, pd, 0.0, 0.0, 0.95)
+        assert got == pytest.approx(ref, rel=0.01, abs=2 * td), (q, pd)
+    # [calc] Pd = 1: the signal position is uniform, so 95 % by ceil(0.95 q) dwells
+    assert detection.serial_search_quantile_s(100, 0.01, 1.0, 0.0, 0.0, 0.95) == pytest.approx(0.95)
+
+
+def test_cut_searches_are_not_called_setting(rendered, plans):
+    plan = plans["demo"]
+    doc = rendered("demo")
+    text = " ".join(_page_text(items) for items in doc["items"])
+    end = datetime.fromtimestamp(plan.times.end_unix_s, UTC).strftime("%H:%M:%S")
+    assert f"sets at {end}" not in text and f"it sets at {end}" not in text

@@ -39,7 +39,7 @@ import io
 import json
 import math
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -49,6 +49,7 @@ from ..ground.errors import InputError
 from ..plan.pipeline import Plan, plan_to_json
 from ..plan.spec import Scenario
 from ..search import bins as binlib
+from ..search import detection
 from .atomic import write_text_atomic, write_texts_atomic
 from .scenario import load_scenario, scenario_to_toml
 
@@ -108,10 +109,70 @@ class SearchEntry:
     azimuth_deg: float = math.nan
     track_end_unix_s: float | None = None
     track_end_reason: str = ""
+    # what the receiver is set to, and what to do if the search fails
+    coherent_ms: float = math.nan
+    noncoherent: int = 0
+    threshold_db: float = math.nan   # detection threshold above the mean noise of the sum
+    give_up_s: float = math.nan      # after the start: the search has found the signal
+                                     # with GIVE_UP_QUANTILE probability by then
+    spare: str | None = None         # satellite to re-task the channel to after give-up
 
     @property
     def bins(self) -> int:
         return int(self.bin_centres_hz.size)
+
+
+GIVE_UP_QUANTILE = 0.95        # a search that has not succeeded by its 95th percentile gives up
+SPARE_MIN_VIEW_S = 600.0       # a spare stays above the mask this long after the give-up
+
+
+def _receiver_settings(plan: Plan, signal_id: str, bins: int, code_cells: int, pd: float
+                       ) -> tuple[float, int, float, float]:
+    """(coherent_ms, noncoherent, threshold dB above mean noise, give-up s after start)."""
+    sc = plan.scenario
+    coh_ms, n_nc = sc.search.integration_for(signal_id)
+    pfa = sc.search.false_alarm_per_cell
+    thr = float(detection.threshold_for_pfa(pfa, n_nc))
+    thr_db = 10.0 * math.log10(thr / n_nc)          # the sum of n_nc noise powers has mean n_nc
+    if not (math.isfinite(pd) and pd > 0.0) or bins < 1 or code_cells < 1:
+        return coh_ms, n_nc, thr_db, math.nan
+    pos = detection.search_positions(code_cells, bins, sc.receiver.correlators_per_channel,
+                                     sc.receiver.parallel_code_search, pfa)
+    give_up = float(detection.serial_search_quantile_s(
+        pos.positions, coh_ms / 1000.0 * n_nc, min(pd, 1.0), pos.pfa_position,
+        sc.search.false_alarm_penalty_s, GIVE_UP_QUANTILE))
+    return coh_ms, n_nc, thr_db, give_up
+
+
+def _assign_spares(plan: Plan, entries: list[SearchEntry]) -> None:
+    """Name a spare per search: at the give-up time the highest satellite above the mask
+    that no channel is working on, stays up SPARE_MIN_VIEW_S longer and is not already
+    the spare of another search then."""
+    t = plan.times.unix_s
+    segs = plan.timeline.segments
+    reserved: list[tuple[str, float]] = []
+    for i, e in enumerate(entries):
+        if not math.isfinite(e.give_up_s):
+            continue
+        t_give = e.start_unix_s + e.give_up_s
+        if t_give >= t[-1]:
+            continue
+        k = plan.index_at(t_give)
+        k_end = plan.index_at(min(t_give + SPARE_MIN_VIEW_S, float(t[-1])))
+        busy = {g.sat_id for g in segs if g.start_unix_s <= t_give < g.end_unix_s}
+        taken = {sid for sid, tr in reserved if abs(tr - t_give) < SPARE_MIN_VIEW_S}
+        best, best_el = None, -math.inf
+        for s, sid in enumerate(plan.ids):
+            if sid == e.sat_id or sid in busy or sid in taken:
+                continue
+            if not plan.visible[s, k:k_end + 1].all():
+                continue
+            el = float(plan.prediction.elevation_deg[s, k])
+            if el > best_el:
+                best, best_el = sid, el
+        if best is not None:
+            entries[i] = replace(e, spare=best)
+            reserved.append((best, t_give))
 
 
 def search_entries(plan: Plan) -> list[SearchEntry]:
@@ -150,7 +211,10 @@ def search_entries(plan: Plan) -> list[SearchEntry]:
         track = next((g for g in segs if g.kind == "track" and g.channel == seg.channel
                       and g.sat_id == seg.sat_id and abs(g.start_unix_s - seg.end_unix_s) < 1e-6),
                      None)
+        coh_ms, n_nc, thr_db, give_up = _receiver_settings(plan, sp.signal_id, int(centres.size),
+                                                           int(cells), float(pd))
         out.append(SearchEntry(
+            coherent_ms=coh_ms, noncoherent=n_nc, threshold_db=thr_db, give_up_s=give_up,
             channel=seg.channel, sat_id=seg.sat_id, signal_id=sp.signal_id, system=sp.system,
             glonass_k=sp.glonass_k, state=seg.search_state or "first",
             start_unix_s=seg.start_unix_s, end_unix_s=seg.end_unix_s, acquired=seg.acquired,
@@ -161,6 +225,7 @@ def search_entries(plan: Plan) -> list[SearchEntry]:
             azimuth_deg=float(plan.prediction.azimuth_deg[s, k]),
             track_end_unix_s=None if track is None else track.end_unix_s,
             track_end_reason="" if track is None else track.end_reason))
+    _assign_spares(plan, out)
     return out
 
 

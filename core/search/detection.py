@@ -416,6 +416,43 @@ def search_cost(freq_bins: ArrayLike, code_cells: ArrayLike, correlators_per_cha
                       _out(np.asarray(pd, dtype=float)), t)
 
 
+def serial_search_quantile_s(q_cells: ArrayLike, dwell_s: ArrayLike, pd: ArrayLike,
+                             pfa: ArrayLike, penalty_s: ArrayLike,
+                             quantile: float = 0.95) -> np.ndarray | float:
+    """Time (s) by which the serial search of :func:`mean_search_time_s` has found the
+    signal with probability ``quantile`` (a give-up time: past it, the signal is most
+    likely not where the window says, or not there at all).
+
+    Same model as :func:`simulate_serial_search`: signal position ``j`` uniform in
+    ``0..q-1``, ``V`` visits geometric in ``Pd``, so the search passes
+    ``j + (V - 1)(q - 1)`` signal-free positions plus ``V`` signal visits; each signal-free
+    position costs ``dwell (1 + K Pfa)`` on average (``K = penalty / dwell``), which turns
+    the false alarms into their mean cost. With ``P(V <= v) = 1 - (1 - Pd)^v`` the
+    quantile falls in visit ``v = floor(log(1 - p) / log(1 - Pd)) + 1`` at the fraction
+    ``f = (p - P(V <= v - 1)) / P(V = v)`` of that pass, ``j = ceil(f q) - 1``. Limits:
+    ``Pd = 1, Pfa = 0`` -> ``ceil(p q)`` dwells. Exact for ``Pfa = 0``.
+    """
+    q = _count(q_cells, "q_cells").astype(float)
+    td = _float_array(dwell_s, "dwell_s", lo=0.0, lo_open=True)
+    p_d = _probability(pd, "pd", one_ok=True)
+    p_fa = _probability(pfa, "pfa", zero_ok=True, one_ok=True)
+    pen = _float_array(penalty_s, "penalty_s", lo=0.0)
+    p = float(quantile)
+    if not 0.0 < p < 1.0:
+        raise InputError(f"quantile {quantile!r} must be between 0 and 1", field="quantile")
+    q, td, p_d, p_fa, pen = np.broadcast_arrays(q, td, p_d, p_fa, pen)
+    miss = 1.0 - p_d
+    with np.errstate(divide="ignore", invalid="ignore"):
+        v = np.where(miss > 0.0, np.floor(np.log1p(-p) / np.log(np.where(miss > 0.0, miss, 0.5))) + 1.0, 1.0)
+    v = np.maximum(v, 1.0)
+    before = 1.0 - miss ** (v - 1.0)                 # P(V <= v - 1)
+    this = p_d * miss ** (v - 1.0)                   # P(V = v)
+    frac = np.clip((p - before) / this, 0.0, 1.0)
+    j = np.maximum(np.ceil(frac * q - 1e-9) - 1.0, 0.0)
+    empty = j + (v - 1.0) * (q - 1.0)
+    return _out(empty * td * (1.0 + (pen / td) * p_fa) + v * td)
+
+
 def simulate_serial_search(q: ArrayLike, pd: ArrayLike, pfa: ArrayLike, dwell_s: ArrayLike,
                            penalty_s: ArrayLike, n_runs: int,
                            rng: np.random.Generator | int | None = None) -> np.ndarray:
