@@ -152,6 +152,21 @@ def test_record_choice_nearest_healthy_unexpired():
         # [pub: IS-GPS-200 20.3.3.4.3.1] fit 4 h -> within 2 h; nearest toe wins.
         assert abs(t - toe[k]) == min(abs(t - toe[j]) for j in valid)
     assert (idx == -1).any() and (idx >= 0).mean() > 0.8
+    # Every satellite of a mixed file and of a 32-satellite day file, every 5 min: the
+    # same choice as the brute force over all records written here.
+    for name in ("gnsslibpy_BRDM00DLR_S_20230730000_01D_MN.rnx", "rtklib_brdc1820.10n"):
+        for ent in load_orbits(NAV / name).entries:
+            rr = ent.broadcast
+            pool = [j for j, r in enumerate(rr) if r.healthy] or list(range(len(rr)))
+            tt = np.arange(rr[0].toe_gps_s - 7200.0, rr[-1].toe_gps_s + 7200.0, 300.0)
+            got = select_records(rr, tt)
+            for t, k in zip(tt, got):
+                valid = [j for j in pool if abs(t - rr[j].toe_gps_s) <= rr[j].fit_interval_h * 1800.0]
+                if not valid:
+                    assert k == -1, ent.sat_id
+                else:
+                    assert k in valid and abs(t - rr[k].toe_gps_s) == min(
+                        abs(t - rr[j].toe_gps_s) for j in valid), ent.sat_id
     # Data age follows the record in force: never more than 2 h (GPS fit interval).
     age = orbit_data_age_s(OrbitSet([e]), gps_to_unix_s(gps))[0]
     assert np.all(np.abs(age[idx >= 0]) <= 7200.0)

@@ -32,29 +32,42 @@ def _pool(records: Sequence) -> list:
     return healthy or list(records)
 
 
+# Records looked at on each side of an instant (by toe): the nearest valid record is among
+# them unless more than this many records with shorter fit intervals lie nearer.
+_NEIGHBOURS = 4
+
+
 def select_records(records: Sequence, gps_s: np.ndarray) -> np.ndarray:
-    """Index into ``records`` of the record in force at each time (T,), -1 where none is."""
+    """Index into ``records`` of the record in force at each time (T,), -1 where none is.
+
+    Memory is (2 x _NEIGHBOURS, T) whatever the number of records: each instant looks at
+    the records nearest in toe on either side."""
     t = np.atleast_1d(np.asarray(gps_s, dtype=float))
     out = np.full(t.shape, -1, dtype=int)
     pool = _pool(records)
     if not pool:
         return out
     index = {id(r): k for k, r in enumerate(records)}
-    toe = np.array([r.toe_gps_s for r in pool])
-    half = np.array([r.fit_interval_h for r in pool]) * 1800.0
-    age = np.abs(t[None, :] - toe[:, None])                        # (R, T)
-    age = np.where(age <= half[:, None], age, np.inf)
+    order = sorted(range(len(pool)), key=lambda k: pool[k].toe_gps_s)
+    toe = np.array([pool[k].toe_gps_s for k in order])
+    half = np.array([pool[k].fit_interval_h for k in order]) * 1800.0
+    ids = np.array([index[id(pool[k])] for k in order])
+    at = np.searchsorted(toe, t)
+    cand = np.clip(at[None, :] + np.arange(-_NEIGHBOURS, _NEIGHBOURS)[:, None], 0, toe.size - 1)
+    age = np.abs(t[None, :] - toe[cand])                            # (2N, T)
+    age = np.where(age <= half[cand], age, np.inf)
     best = np.argmin(age, axis=0)
-    ok = np.isfinite(age[best, np.arange(t.size)])
-    ids = np.array([index[id(r)] for r in pool])
-    out[ok] = ids[best[ok]]
+    cols = np.arange(t.size)
+    ok = np.isfinite(age[best, cols])
+    out[ok] = ids[cand[best, cols][ok]]
     return out
 
 
 def _nearest_toe(records: Sequence, gps_s: np.ndarray) -> np.ndarray:
-    toe = np.array([r.toe_gps_s for r in _pool(records)])
-    k = np.argmin(np.abs(gps_s[None, :] - toe[:, None]), axis=0)
-    return toe[k]
+    toe = np.sort(np.array([r.toe_gps_s for r in _pool(records)]))
+    at = np.clip(np.searchsorted(toe, gps_s), 1, max(toe.size - 1, 1))
+    lo, hi = toe[at - 1], toe[np.minimum(at, toe.size - 1)]
+    return np.where(np.abs(gps_s - lo) <= np.abs(gps_s - hi), lo, hi)
 
 
 def coverage_warning(entry: OrbitEntry, n_missing: int, first_unix_s: float, n_t: int) -> str:
