@@ -45,6 +45,9 @@ _PUBLIC: dict[str, str] = {
     "load_orbits": "core.orbits.readers",
     "load_orbit_files": "core.orbits.readers",
     "load_mapping": "core.orbits.readers",
+    "RecordUse": "core.orbits.broadcast",
+    "records_in_use": "core.orbits.broadcast",
+    "orbit_data_age_s": "core.orbits.broadcast",
     # sky: what the receiver sees
     "Prediction": "core.sky.predict",
     "Pass": "core.sky.predict",
@@ -166,6 +169,7 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     from core.ground.geodesy import Site  # noqa: F401
     from core.ground.signals import SIGNALS, get_signal  # noqa: F401
     from core.ground.timeutil import TimeGrid, iso_z, parse_iso_utc, time_grid  # noqa: F401
+    from core.orbits.broadcast import RecordUse, orbit_data_age_s, records_in_use  # noqa: F401
     from core.orbits.orbit_set import OrbitSet  # noqa: F401
     from core.orbits.readers import load_mapping, load_orbit_files, load_orbits  # noqa: F401
     from core.plan.pipeline import (  # noqa: F401

@@ -389,7 +389,7 @@ def parse_rinex_nav(text: str, source: str, systems: tuple[str, ...] = ALL_SYSTE
         raise OrbitFormatError(f"RINEX {version:.2f} navigation files are not supported "
                                "(RINEX 2 and 3 are)", file=name, line=1)
     glonass_file = version < 3.0 and ftype == "G"
-    if ftype not in ("N", "G") or (ftype == "G" and version >= 3.0):
+    if ftype not in ("N", "G"):
         what = "an SBAS" if ftype == "H" else f"a type '{ftype}'"
         raise OrbitFormatError(f"this is {what} file, not a GPS/GNSS or GLONASS navigation "
                                "file", file=name, line=1)
