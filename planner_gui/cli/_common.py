@@ -163,7 +163,10 @@ def emit(text: str, out_path: str | None) -> None:
             sys.stdout.write("\n")
 
 
-def format_rows(rows: list[dict], fmt: str, columns: list[str] | None = None) -> str:
+def format_rows(rows: list[dict], fmt: str, columns: list[str] | None = None,
+                heads: Mapping[str, str] | None = None) -> str:
+    """CSV (full values) or an aligned table; ``heads`` gives shorter table headings. The
+    table pads no column beyond its longest cell and leaves no trailing blanks."""
     columns = columns or (list(rows[0]) if rows else [])
     if fmt == "csv":
         buf = io.StringIO()
@@ -172,20 +175,21 @@ def format_rows(rows: list[dict], fmt: str, columns: list[str] | None = None) ->
         w.writerows(rows)
         return buf.getvalue()
     # Table: aligned columns, numbers right-aligned.
+    titles = [(heads or {}).get(c, c) for c in columns]
     cells = [[_cell(r.get(c)) for c in columns] for r in rows]
-    widths = [max([len(c)] + [len(row[i]) for row in cells]) for i, c in enumerate(columns)]
-    lines = ["  ".join(c.ljust(w) for c, w in zip(columns, widths))]
+    widths = [max([len(t)] + [len(row[i]) for row in cells]) for i, t in enumerate(titles)]
+    lines = ["  ".join(t.ljust(w) for t, w in zip(titles, widths))]
     lines.append("  ".join("-" * w for w in widths))
     for row in cells:
         lines.append("  ".join(v.rjust(w) if _numeric(v) else v.ljust(w) for v, w in zip(row, widths)))
-    return "\n".join(lines) + "\n"
+    return "\n".join(line.rstrip() for line in lines) + "\n"
 
 
 def _cell(v) -> str:
     if v is None:
         return ""
     if isinstance(v, float):
-        return f"{v:.3f}"
+        return format(v, ".6g")           # as many digits as the value has, up to six
     return str(v)
 
 
@@ -203,5 +207,8 @@ def print_warnings(warnings: list[str]) -> None:
 
 
 def output_options(sp) -> None:
-    sp.add_argument("--format", choices=("table", "csv", "json"), default="table")
-    sp.add_argument("-o", "--output", metavar="FILE", help="write to FILE (atomically) instead of stdout")
+    sp.add_argument("--format", choices=("table", "csv", "json"), default="table",
+                    help="output layout: aligned columns for reading, CSV or JSON for programs "
+                         "(default: table)")
+    sp.add_argument("-o", "--output", metavar="FILE",
+                    help="write to FILE (atomically) instead of stdout (default: stdout)")

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import textwrap
 
 from ._common import EXIT_OK, emit, format_rows, output_options, parse_pair, rule_option, user_names
 
@@ -30,8 +31,14 @@ def cmd_bins(args) -> int:
         emit(json.dumps(out, indent=1), args.output)
     else:
         rows = [{"key": k, "value": v if not isinstance(v, list | dict) else json.dumps(v)}
-                for k, v in out.items() if k != "curve"]
+                for k, v in out.items() if k not in ("curve", "bins")]
+        if "bins" in out and args.format == "csv":
+            rows.append({"key": "bins", "value": json.dumps(out["bins"])})
         text = format_rows(rows, args.format, ["key", "value"])
+        if "bins" in out and args.format == "table":
+            # the centres as lines of a readable width, not one cell of hundreds of columns
+            text += f"\n{len(out['bins'])} bin centres (Hz):\n" + textwrap.fill(
+                "  ".join(f"{c:g}" for c in out["bins"]), width=78) + "\n"
         if args.curve:
             pts = [{"offset_hz": o, "loss_db": v} for o, v in
                    zip(out["curve"]["offset_hz"], out["curve"]["loss_db"])]
@@ -46,7 +53,10 @@ def register(sub) -> None:
                 help="coherent integration time")
     rule_option(sp, "--max-loss-db", "search.max_frequency_loss_db", required=True,
                 help="largest accepted frequency-error loss at a bin edge (positive dB)")
-    sp.add_argument("--span-hz", metavar="LOW,HIGH", help="window to tile with bins (lists centres)")
-    sp.add_argument("--curve", action="store_true", help="include the loss curve")
+    sp.add_argument("--span-hz", metavar="LOW,HIGH",
+                    help="Doppler window in Hz to tile with bins: lists the bin centres "
+                         "(default: no window, the bin design only)")
+    sp.add_argument("--curve", action="store_true",
+                    help="include the loss curve, loss against offset (default: left out)")
     output_options(sp)
     sp.set_defaults(func=cmd_bins)

@@ -148,9 +148,11 @@ def register(sub) -> None:
     sp.add_argument("files", nargs="*", metavar="SCENARIO.toml RECORD",
                     help="scenario file and record (RINEX 2.10/2.11/3.0x observation file, plain, "
                          ".gz, .Z or Hatanaka-compressed; or NMEA 0183 log)")
-    sp.add_argument("--record", metavar="RECORD", help="the record, when no scenario is given")
+    sp.add_argument("--record", metavar="RECORD",
+                    help="the record, when no scenario is given (default: the positional RECORD)")
     sp.add_argument("--orbits", action="append", metavar="NAV",
                     help="orbit file (RINEX navigation, almanac or TLE) for a plan made from the "
-                         "record's header position and first/last epoch (repeat to mix)")
+                         "record's header position and first/last epoch (repeat to mix; default: "
+                         "none, the scenario's orbit files)")
     output_options(sp)
     sp.set_defaults(func=cmd_compare)

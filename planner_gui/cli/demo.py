@@ -17,7 +17,9 @@ def cmd_demo(args) -> int:
 
 def register(sub) -> None:
     sp = sub.add_parser("demo", help="write the invented demo scenario and its orbit files into DIR")
-    sp.add_argument("directory", metavar="DIR")
+    sp.add_argument("directory", metavar="DIR",
+                    help="folder to write demo_scenario.toml and its orbit files into "
+                         "(made if missing; required)")
     sp.add_argument("--force", action="store_true",
                     help="overwrite demo files in DIR that were edited (default: refuse, write nothing)")
     sp.set_defaults(func=cmd_demo)

@@ -105,7 +105,8 @@ def _geometry_options(sp, step_required: bool) -> None:
                     help="YUMA, SEM, TLE or RINEX navigation file, plain, .gz or .Z "
                          "(repeat to mix constellations)")
     sp.add_argument("--mapping", metavar="FILE",
-                    help="optional catalogue-number -> ID (and GLONASS k) mapping file")
+                    help="catalogue-number -> ID (and GLONASS k) mapping file "
+                         "(default: none; TLE names and built-in tables identify satellites)")
     sp.add_argument("--skip-bad-records", action="store_true",
                     help="skip TLE records with a bad checksum or field (with a warning) "
                          "instead of stopping")

@@ -7,6 +7,30 @@ import sys
 
 from ._common import EXIT_OK, emit, format_rows, output_options, print_warnings
 
+# Short headings for the table on screen (the CSV keeps the full column names).
+TABLE_HEADS = {"max_el_deg": "max_el", "search_start": "start", "bin_width_hz": "bin_hz",
+               "code_window_chips": "code_chips", "cn0_dbhz": "cn0", "expected_search_s": "exp_s",
+               "channel": "ch", "after_low_hz": "narr_low", "after_high_hz": "narr_high",
+               "after_bins": "narr_bins", "in_view": "in_view"}
+
+
+def _for_reading(rows: list[dict]) -> list[dict]:
+    """Rows for the table on screen: clock times (HH:MM:SS) and the state in words; the
+    CSV and JSON keep full ISO times and the stored values."""
+    from core.api import state_word
+
+    out = []
+    for r in rows:
+        r = dict(r)
+        for key in ("search_start", "acquired", "start", "end"):
+            v = r.get(key)
+            if isinstance(v, str) and v.endswith("Z") and "T" in v:
+                r[key] = v[11:19]
+        if r.get("state"):
+            r["state"] = state_word(r["state"])
+        out.append(r)
+    return out
+
 
 def cmd_plan(args) -> int:
     from core.api import (
@@ -35,9 +59,10 @@ def cmd_plan(args) -> int:
         emit(format_rows(plan_rows(plan), "csv", SUMMARY_COLUMNS), args.output)
     else:
         parts = [note[:1].upper() + note[1:]] if note else []
-        parts += ["Searches (one row per satellite in view; 'after' = once the oscillator is known)",
-                  format_rows(plan_rows(plan), "table", SUMMARY_COLUMNS),
-                  "Channel timeline", format_rows(timeline_rows(plan), "table"),
+        parts += ["Searches (one row per satellite in view; times UTC; in_view: fraction of the\n"
+                  "window above the mask; narrowed (narr_*) = after the first acquisition)",
+                  format_rows(_for_reading(plan_rows(plan)), "table", SUMMARY_COLUMNS, TABLE_HEADS),
+                  "Channel timeline", format_rows(_for_reading(timeline_rows(plan)), "table"),
                   plan.summary_text()]
         if plan.warnings:
             parts.append("Warnings:\n" + "\n".join(f"  - {w}" for w in plan.warnings))
@@ -47,10 +72,11 @@ def cmd_plan(args) -> int:
 
 def register(sub) -> None:
     sp = sub.add_parser("plan", help="the full search plan of a scenario file")
-    sp.add_argument("scenario", metavar="SCENARIO.toml")
+    sp.add_argument("scenario", metavar="SCENARIO.toml", help="scenario file to plan (TOML)")
     output_options(sp)
     sp.add_argument("--export-dir", metavar="DIR",
                     help="also write STEM.json (the plan), STEM_windows.csv (windows per "
-                         "satellite per step) and STEM_search.csv (search per satellite) into DIR")
+                         "satellite per step) and STEM_search.csv (search per satellite) into DIR "
+                         "(default: no files)")
     sp.add_argument("--stem", default="plan", help="file name stem for --export-dir (default: plan)")
     sp.set_defaults(func=cmd_plan)

@@ -167,7 +167,7 @@ def register(sub) -> None:
         description="Plan SCENARIO.toml for every departure time x every combination of the "
                     "varied keys (their product) and rank the settings by their worst "
                     "95th-percentile time to first fix. Runs on every core by default.")
-    sp.add_argument("scenario", metavar="SCENARIO.toml")
+    sp.add_argument("scenario", metavar="SCENARIO.toml", help="scenario file to sweep (TOML)")
     sp.add_argument("--departures", metavar="START,END,STEP_S",
                     help="departure times: ISO 8601 UTC start and end (inclusive) and a step in s "
                          "(1 to 604800); each departure keeps the scenario's window length "
@@ -175,15 +175,18 @@ def register(sub) -> None:
     sp.add_argument("--vary", action="append", metavar="KEY=V1,V2,...",
                     help="values of one [search], [receiver] or [signal] key (e.g. coherent_ms=4,8,12, "
                          "noncoherent=5,10, max_frequency_loss_db=0.5,1, code_step_chips=0.5, "
-                         "channels=8,12); repeat for more keys; checked against the key's range")
+                         "channels=8,12); repeat for more keys; checked against the key's range "
+                         "(default: the scenario's own values)")
     output_options(sp)
     sp.add_argument("--write-best", metavar="FILE",
-                    help="write the scenario with the best setting and its best departure to FILE")
+                    help="write the scenario with the best setting and its best departure to FILE "
+                         "(default: not written)")
     sp.add_argument("--workers", type=int, metavar="N",
                     help="local worker processes (1 to 1024; default: every core; 1 = in this process)")
     sp.add_argument("--scheduler", metavar="ADDRESS",
                     help="run on a Dask distributed cluster (e.g. tcp://10.0.0.5:8786); needs "
-                         "pip install 'acqplan[cluster]'; the orbit files are shipped to every worker once")
+                         "pip install 'acqplan[cluster]'; the orbit files are shipped to every worker once "
+                         "(default: local processes, see --workers)")
     sp.set_defaults(func=cmd_sweep)
 
 
