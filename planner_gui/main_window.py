@@ -520,6 +520,9 @@ class PlannerWindow(QMainWindow):
             self.fit_splitters()
 
     def fit_splitters(self) -> None:
+        # the set-up form: wide enough for its labels, a fifth of a large screen
+        self.resizeDocks([self.setup_dock], [min(420, max(320, int(0.2 * self.width())))],
+                         Qt.Orientation.Horizontal)
         """Default proportions: timeline 29 %, Doppler windows 33 %, table and sky 38 %;
         the sky about square and never more than a third of the width."""
         total_h = max(self.main_split.height(), 300)
