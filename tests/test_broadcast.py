@@ -354,6 +354,20 @@ def test_beidou_geo_is_geostationary_with_its_own_rotation():
 
 
 @realdata
+def test_galileo_record_without_accuracy_prediction_is_not_used():
+    from dataclasses import replace as dc_replace
+
+    e01 = next(e for e in load_orbits(BRDM).entries if e.sat_id == "E01")
+    rec = e01.broadcast[0]
+    assert rec.healthy and rec.sv_accuracy_m == pytest.approx(3.12)    # file line 133
+    # SISA "NAPA" (no accuracy prediction) is written as -1 [mem: RINEX 3.04 sec. A8].
+    napa = dc_replace(rec, sv_accuracy_m=-1.0)
+    assert not napa.healthy
+    assert select_records([napa], np.array([rec.toe_gps_s]))[0] == 0   # alone: shown, not healthy
+    assert select_records([napa, rec], np.array([rec.toe_gps_s]))[0] == 1
+
+
+@realdata
 def test_qzss_health_bit_masked_and_plan_ready():
     # Data README oddity: RINEX 2.12 QZSS 'J 1' with health 1 (the L1C/A-only bit), masked.
     q = load_orbits(NAV / "rtklib_brdc3050.12q")

@@ -129,6 +129,10 @@ class GpsEphemerisRecord:
 
     @property
     def healthy(self) -> bool:
+        """Health 0; a Galileo record without an accuracy prediction (SISA "NAPA", written
+        as a negative value [mem: RINEX 3.04 sec. A8, Galileo SISA]) is not used either."""
+        if self.system == "E" and self.sv_accuracy_m < 0.0:
+            return False
         return self.health == 0
 
     @property
