@@ -107,6 +107,8 @@ _PUBLIC: dict[str, str] = {
     "Comparison": "core.records.compare",
     "compare_record": "core.records.compare",
     "record_scenario": "core.records.compare",
+    "DrivePlan": "core.plan.events",
+    "plan_drive": "core.plan.events",
     # files: text in and out
     "load_scenario": "core.files.scenario",
     "load_scenario_for_editing": "core.files.scenario",
@@ -172,6 +174,7 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     from core.orbits.broadcast import RecordUse, orbit_data_age_s, records_in_use  # noqa: F401
     from core.orbits.orbit_set import OrbitSet  # noqa: F401
     from core.orbits.readers import load_mapping, load_orbit_files, load_orbits  # noqa: F401
+    from core.plan.events import DrivePlan, plan_drive  # noqa: F401
     from core.plan.pipeline import (  # noqa: F401
         SUMMARY_COLUMNS,
         Plan,

@@ -62,6 +62,7 @@ from .views import (
     DopplerView,
     LossCurveView,
     MessagesView,
+    RouteView,
     SatelliteTableView,
     SearchGridView,
     SkyView,
@@ -325,6 +326,11 @@ class PlannerWindow(QMainWindow):
         for caution in SAFETY_CAUTIONS:
             self.messages.add_message("note", "Safety: " + caution)
 
+    def _drive_changed(self, drive) -> None:
+        """The drive tab says how many test events the scenario's route holds."""
+        n = 0 if drive is None else len(drive.events)
+        self.tabs.setTabText(self.tabs.indexOf(self.route), f"Drive ({n} events)" if n else "Drive")
+
     # ------------------------------------------------------------------ construction
     def _build_views(self) -> None:
         self.panel = ScenarioPanel(self, folders=self.settings)
@@ -360,6 +366,9 @@ class PlannerWindow(QMainWindow):
         self.tabs.addTab(self.doppler, "Doppler windows")
         self.tabs.addTab(self.search_grid, "Bins at cursor")
         self.tabs.addTab(self.loss, "Bin design")
+        self.route = RouteView(self.model)
+        self.tabs.addTab(self.route, "Drive")
+        self.model.driveChanged.connect(self._drive_changed)
         self.side_tabs = QTabWidget()
         self.side_tabs.setObjectName("sideTabs")
         self.side_tabs.setDocumentMode(True)
@@ -1127,4 +1136,4 @@ class PlannerWindow(QMainWindow):
         """The views by file name (screenshots)."""
         return {"sky": self.sky, "doppler": self.doppler, "search_grid": self.search_grid,
                 "channels": self.channels, "loss_curve": self.loss, "satellites": self.table,
-                "messages": self.messages, "scenario": self.panel}
+                "messages": self.messages, "scenario": self.panel, "route": self.route}

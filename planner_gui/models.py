@@ -14,7 +14,7 @@ sort proxy sit on top of it.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -50,6 +50,7 @@ class PlanModel(QObject):
     ttffChanged = Signal(object)          # PlanResult: same plan, Monte Carlo TTFF added
     cursorChanged = Signal(int)           # grid index
     selectionChanged = Signal(object)     # sat id (str) or None
+    driveChanged = Signal(object)         # DrivePlan or None: the route and its events
 
     def __init__(self, parent: QObject | None = None):
         super().__init__(parent)
@@ -59,6 +60,8 @@ class PlanModel(QObject):
         self._generation = 0
         self._rows_key: tuple[int, int] | None = None
         self._rows: list[dict[str, Any]] = []
+        self._base: PlanResult | None = None      # the window's own plan (with its drive)
+        self._event_id: str | None = None          # the event whose plan is shown, or None
 
     # -- read
     @property
@@ -68,6 +71,16 @@ class PlanModel(QObject):
     @property
     def plan(self) -> Plan | None:
         return None if self._result is None else self._result.plan
+
+    @property
+    def drive(self):
+        """The drive plan (route, events) of the current scenario, or None."""
+        return None if self._base is None else getattr(self._base, "drive", None)
+
+    @property
+    def event_id(self) -> str | None:
+        """The test event whose own plan every view shows (None: the window's plan)."""
+        return self._event_id
 
     @property
     def ttff_final(self) -> bool:
@@ -99,7 +112,40 @@ class PlanModel(QObject):
 
     # -- write
     def set_result(self, result: PlanResult) -> None:
-        """Show a new plan; the cursor keeps its UTC instant, the selection its satellite."""
+        """Show a new plan; the cursor keeps its UTC instant, the selection its satellite.
+        With a drive, the event shown before stays shown (its new plan) if it still exists."""
+        old_drive = self.drive
+        if (getattr(result, "drive", None) is None and not result.final
+                and old_drive is not None):
+            # The quick stage of a re-plan has no drive yet (it follows with the final
+            # stage): keep the drive and the event shown until then.
+            result = replace(result, drive=old_drive)
+        self._base = result
+        if self.drive is not old_drive:
+            self.driveChanged.emit(self.drive)
+        event = self._find_event(self._event_id)
+        if event is None:
+            self._event_id = None
+        else:
+            result = replace(result, plan=event.plan)
+        self._show(result)
+
+    def show_event(self, event_id: str | None) -> None:
+        """Show one test event's own plan in every view (None: the window's plan)."""
+        if self._base is None or event_id == self._event_id:
+            return
+        event = self._find_event(event_id)
+        self._event_id = None if event is None else event_id
+        shown = self._base if event is None else replace(self._base, plan=event.plan, final=True)
+        self._show(shown)
+
+    def _find_event(self, event_id: str | None):
+        drive = self.drive
+        if drive is None or event_id is None:
+            return None
+        return next((e for e in drive.events if e.event.id == event_id), None)
+
+    def _show(self, result: PlanResult) -> None:
         old = self._result
         if (old is not None and old.serial == result.serial
                 and result.plan.timeline is old.plan.timeline

@@ -68,7 +68,7 @@ def write_screenshots(window, directory: Path, size: tuple[int, int] | None = No
     target = directory / WINDOW_FILE
     write_bytes_atomic(target, png_bytes(grab(window)))
     written.append(target)
-    stacks = [window.tabs, window.lower_tabs]
+    stacks = [window.tabs, window.lower_tabs, window.side_tabs]
     current = [t.currentIndex() for t in stacks]
     for name, widget in window.view_widgets().items():
         for tabs in stacks:

@@ -25,7 +25,7 @@ from dataclasses import dataclass, field, replace
 
 from PySide6.QtCore import QThread, Signal
 
-from core.api import Scenario, loss_curve
+from core.api import Scenario, loss_curve, plan_drive
 from core.plan.pipeline import (
     Plan,
     PlanCancelled,
@@ -60,6 +60,7 @@ class PlanResult:
     final: bool
     loss_curves: dict[str, dict] = field(default_factory=dict)   # signal id -> loss_curve()
     elapsed_s: float = 0.0
+    drive: object = None                    # core.plan.events.DrivePlan (final stage), or None
 
 
 @dataclass
@@ -104,13 +105,24 @@ def compute(request: PlanRequest, progress: Callable[[float, str], None] | None 
         if progress is not None:
             progress(0.85, "Monte Carlo of the time to first fix")
         full = add_monte_carlo(plan, sc, cancel=cancel)
+        drive = _drive(sc, progress, cancel)
         yield PlanResult(request.serial, sc, full, True, _loss_curves(full),
-                         time.perf_counter() - t0)
+                         time.perf_counter() - t0, drive)
         return
     plan = make_plan(sc, prepared=prepared if reusable else None, progress=progress,
                      cancel=cancel)
+    drive = _drive(sc, progress, cancel)
     yield PlanResult(request.serial, sc, plan, True, _loss_curves(plan),
-                     time.perf_counter() - t0)
+                     time.perf_counter() - t0, drive)
+
+
+def _drive(sc: Scenario, progress, cancel):
+    """Every test event's own plan when the scenario has a route or events, else None."""
+    if sc.route is None and not sc.events:
+        return None
+    if progress is not None:
+        progress(0.9, "planning the test events along the route")
+    return plan_drive(sc, cancel=cancel)
 
 
 class PlanWorker(QThread):
