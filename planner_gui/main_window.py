@@ -1002,7 +1002,7 @@ class PlannerWindow(QMainWindow):
         try:
             from .sheets import show_print_preview
 
-            show_print_preview(self.model.plan, self)
+            show_print_preview(self.model.window_plan, self, drive=self.model.drive)
         except Exception as err:  # the sheet module is another part; report, keep running
             self.show_problem(f"Print preview failed: {error_text(err)}", kind="error")
 
@@ -1024,7 +1024,7 @@ class PlannerWindow(QMainWindow):
         """Render the sheets to ``path`` in a background thread (painting a PDF takes
         0.2-0.5 s); ``exportFinished`` reports the outcome. QPainter on a QPdfWriter is
         allowed outside the GUI thread."""
-        plan = self.model.plan
+        plan, drive = self.model.window_plan, self.model.drive   # the whole drive, not one event
         if plan is None:
             return None
 
@@ -1032,7 +1032,7 @@ class PlannerWindow(QMainWindow):
             try:
                 from .sheets import write_sheet_pdf
 
-                write_sheet_pdf(plan, path, paper)
+                write_sheet_pdf(plan, path, paper, drive=drive)
             except Exception as err:  # report in the window, keep running
                 self.exportFinished.emit(str(path), f"PDF export failed ({path}): {error_text(err)}")
                 return

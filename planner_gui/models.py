@@ -78,6 +78,11 @@ class PlanModel(QObject):
         return None if self._base is None else getattr(self._base, "drive", None)
 
     @property
+    def window_plan(self) -> Plan | None:
+        """The plan of the whole window (what the sheets print), whichever event is shown."""
+        return None if self._base is None else self._base.plan
+
+    @property
     def event_id(self) -> str | None:
         """The test event whose own plan every view shows (None: the window's plan)."""
         return self._event_id

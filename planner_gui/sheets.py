@@ -1174,12 +1174,18 @@ def _chart_pages(ctx: Context) -> list[Page]:
 
 # --------------------------------------------------------------------------- document
 
-def build_pages(plan: Plan, device, geo: Geometry, generated_unix_s: float | None = None
-                ) -> list[Page]:
-    """Lay out every page (no painting)."""
+def build_pages(plan: Plan, device, geo: Geometry, generated_unix_s: float | None = None,
+                drive=None) -> list[Page]:
+    """Lay out every page (no painting). With a ``drive`` (core.plan.events.DrivePlan) the
+    route page and one page per test event follow the summary."""
     ctx = _context(plan, device, geo, generated_unix_s)
-    pages = (_summary_pages(ctx) + _table_pages(ctx) + _chart_pages(ctx) + _card_pages(ctx)
-             + _field_record_pages(ctx))
+    pages = _summary_pages(ctx)
+    if drive is not None:
+        from planner_gui.sheet_drive import drive_pages
+
+        pages += drive_pages(drive, device, geo, generated_unix_s, ctx)
+    pages += (_table_pages(ctx) + _chart_pages(ctx) + _card_pages(ctx)
+              + _field_record_pages(ctx))
     for i, page in enumerate(pages, start=1):
         _header(ctx, page)
         _footer(ctx, page, i, len(pages))
@@ -1269,7 +1275,8 @@ def _paint_page(painter, page: Page, ts: Typesetter) -> None:
                     painter.drawText(QPointF(bx, by), ln)
 
 
-def paint_sheets(plan: Plan, device, *, generated_unix_s: float | None = None) -> list[Page]:
+def paint_sheets(plan: Plan, device, *, generated_unix_s: float | None = None,
+                 drive=None) -> list[Page]:
     """Paint every sheet onto ``device`` (QPdfWriter, QPrinter or any QPagedPaintDevice).
 
     The layout follows the device's page size and keeps at least MIN_MARGIN_MM from the
@@ -1280,7 +1287,7 @@ def paint_sheets(plan: Plan, device, *, generated_unix_s: float | None = None) -
 
     ensure_gui_application()
     geo = _device_geometry(device)
-    pages = build_pages(plan, device, geo, generated_unix_s)
+    pages = build_pages(plan, device, geo, generated_unix_s, drive)
     first, last = 1, len(pages)
     from_page = getattr(device, "fromPage", None)
     if callable(from_page) and device.fromPage() > 0:
@@ -1334,7 +1341,7 @@ def _pdf_writer(target, paper: str):
 
 def write_sheet_pdf(plan: Plan, path: str | os.PathLike[str], paper: str = "a4", *,
                     generated_unix_s: float | None = None,
-                    on_pages: Callable[[list[Page]], None] | None = None) -> int:
+                    on_pages: Callable[[list[Page]], None] | None = None, drive=None) -> int:
     """Write the sheets as PDF (``paper`` "a4" or "letter", portrait); returns the page count.
 
     Rendered in memory and written with core.files.atomic.write_bytes_atomic (temporary file
@@ -1357,7 +1364,7 @@ def write_sheet_pdf(plan: Plan, path: str | os.PathLike[str], paper: str = "a4",
     buf = QBuffer()
     buf.open(QIODevice.OpenModeFlag.WriteOnly)
     writer = _pdf_writer(buf, paper)
-    pages = paint_sheets(plan, writer, generated_unix_s=generated_unix_s)
+    pages = paint_sheets(plan, writer, generated_unix_s=generated_unix_s, drive=drive)
     del writer                # flushes the PDF into the buffer
     data = bytes(buf.data())
     buf.close()
@@ -1370,7 +1377,8 @@ def write_sheet_pdf(plan: Plan, path: str | os.PathLike[str], paper: str = "a4",
 
 
 def write_sheet_pngs(plan: Plan, folder: str | os.PathLike[str], paper: str = "a4",
-                     dpi: float = 80.0, *, generated_unix_s: float | None = None) -> list[Path]:
+                     dpi: float = 80.0, *, generated_unix_s: float | None = None,
+                     drive=None) -> list[Path]:
     """Each sheet page as ``page-N-<paper>.png`` at ``dpi`` (for looking at the pages and
     for the README pictures), laid out exactly as the PDF: the pages are built for the
     PDF device and painted on an image that reports the PDF resolution, scaled down."""
@@ -1389,7 +1397,7 @@ def write_sheet_pngs(plan: Plan, folder: str | os.PathLike[str], paper: str = "a
     buf.open(QIODevice.OpenModeFlag.WriteOnly)
     writer = _pdf_writer(buf, paper)
     geo = _device_geometry(writer)
-    pages = build_pages(plan, writer, geo, generated_unix_s)
+    pages = build_pages(plan, writer, geo, generated_unix_s, drive)
     w_mm, h_mm = PAPER_MM[paper]
     scale = dpi / PDF_DPI
     written = []
@@ -1418,7 +1426,7 @@ def write_sheet_pngs(plan: Plan, folder: str | os.PathLike[str], paper: str = "a
 
 # --------------------------------------------------------------------------- window
 
-def show_print_preview(plan: Plan, parent=None) -> None:
+def show_print_preview(plan: Plan, parent=None, drive=None) -> None:
     """Print preview (with its print button) of the sheets."""
     from PySide6.QtPrintSupport import QPrinter, QPrintPreviewDialog
 
@@ -1426,11 +1434,11 @@ def show_print_preview(plan: Plan, parent=None) -> None:
     printer.setDocName(DOCUMENT_TITLE)
     dialog = QPrintPreviewDialog(printer, parent)
     dialog.setWindowTitle(f"{DOCUMENT_TITLE}: print preview")
-    dialog.paintRequested.connect(lambda pr: _paint_guarded(plan, pr, parent))
+    dialog.paintRequested.connect(lambda pr: _paint_guarded(plan, pr, parent, drive))
     dialog.exec()
 
 
-def show_print_dialog(plan: Plan, parent=None) -> bool:
+def show_print_dialog(plan: Plan, parent=None, drive=None) -> bool:
     """The system print dialog; prints the sheets when accepted. Returns True if printed."""
     from PySide6.QtPrintSupport import QPrintDialog, QPrinter
 
@@ -1439,12 +1447,12 @@ def show_print_dialog(plan: Plan, parent=None) -> bool:
     dialog = QPrintDialog(printer, parent)
     if dialog.exec() != QPrintDialog.DialogCode.Accepted:
         return False
-    return _paint_guarded(plan, printer, parent)
+    return _paint_guarded(plan, printer, parent, drive)
 
 
-def _paint_guarded(plan: Plan, printer, parent) -> bool:
+def _paint_guarded(plan: Plan, printer, parent, drive=None) -> bool:
     try:
-        paint_sheets(plan, printer)
+        paint_sheets(plan, printer, drive=drive)
         return True
     except Exception as err:  # shown to the user, never a traceback
         from PySide6.QtWidgets import QMessageBox
@@ -1455,19 +1463,24 @@ def _paint_guarded(plan: Plan, printer, parent) -> bool:
 
 # --------------------------------------------------------------------------- command
 
-def _write_outputs(plan: Plan, args) -> int:
-    """The PDF, and the page images when asked (while the plan's files still exist)."""
-    pages = write_sheet_pdf(plan, args.output, args.paper)
+def _write_outputs(scenario, args) -> int:
+    """Plan the scenario (and its drive, when it has a route or events) and write the PDF,
+    and the page images when asked (while the plan's files still exist)."""
+    from core.api import make_plan, plan_drive
+
+    plan = make_plan(scenario)
+    drive = plan_drive(scenario) if (scenario.route is not None or scenario.events) else None
+    pages = write_sheet_pdf(plan, args.output, args.paper, drive=drive)
     png_dir = getattr(args, "png", None)
     if png_dir:
-        for path in write_sheet_pngs(plan, png_dir, args.paper):
+        for path in write_sheet_pngs(plan, png_dir, args.paper, drive=drive):
             print(f"wrote {path}")
     return pages
 
 
 def run_sheet_command(args) -> int:
     """``acqplan sheet SCENARIO.toml -o plan.pdf [--paper a4|letter] [--demo]``."""
-    from core.api import load_scenario, make_plan
+    from core.api import load_scenario
 
     prog = "acqplan sheet"
     try:
@@ -1477,9 +1490,9 @@ def run_sheet_command(args) -> int:
             from core.api import write_demo
 
             with tempfile.TemporaryDirectory(prefix="acqplan-demo-") as tmp:
-                pages = _write_outputs(make_plan(load_scenario(write_demo(tmp))), args)
+                pages = _write_outputs(load_scenario(write_demo(tmp)), args)
         else:
-            pages = _write_outputs(make_plan(load_scenario(args.scenario)), args)
+            pages = _write_outputs(load_scenario(args.scenario), args)
     except InputError as err:
         # One line, also for a scenario with several problems (listed "; "-separated).
         lines = [ln.strip().lstrip("- ") for ln in str(err).splitlines() if ln.strip()]
