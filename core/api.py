@@ -48,6 +48,9 @@ _PUBLIC: dict[str, str] = {
     "RecordUse": "core.orbits.broadcast",
     "records_in_use": "core.orbits.broadcast",
     "orbit_data_age_s": "core.orbits.broadcast",
+    "check_data_age": "core.orbits.data_age",
+    "check_elements": "core.orbits.plausibility",
+    "guard_prediction": "core.sky.result_guard",
     # sky: what the receiver sees
     "Prediction": "core.sky.predict",
     "Pass": "core.sky.predict",
@@ -172,7 +175,9 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     from core.ground.signals import SIGNALS, get_signal  # noqa: F401
     from core.ground.timeutil import TimeGrid, iso_z, parse_iso_utc, time_grid  # noqa: F401
     from core.orbits.broadcast import RecordUse, orbit_data_age_s, records_in_use  # noqa: F401
+    from core.orbits.data_age import check_data_age  # noqa: F401
     from core.orbits.orbit_set import OrbitSet  # noqa: F401
+    from core.orbits.plausibility import check_elements  # noqa: F401
     from core.orbits.readers import load_mapping, load_orbit_files, load_orbits  # noqa: F401
     from core.plan.events import DrivePlan, plan_drive  # noqa: F401
     from core.plan.pipeline import (  # noqa: F401
@@ -211,4 +216,5 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     from core.search.motion import MotionUncertainty, RouteMotion, route_motion  # noqa: F401
     from core.search.windows import Uncertainty, doppler_windows  # noqa: F401
     from core.sky.predict import Pass, Prediction, passes, predict  # noqa: F401
+    from core.sky.result_guard import guard_prediction  # noqa: F401
     from core.sky.route import Route, RouteFile, read_route_file, route_file_summary, time_route  # noqa: F401

@@ -73,6 +73,8 @@ FIELDS: dict[str, tuple[str, int, float]] = {
     "format_version": ("Scenario file layout", 0, 1),
     "orbits.files": ("Orbit files (YUMA, SEM, TLE, RINEX nav)", 0, 1),
     "orbits.mapping": ("GLONASS slot/channel file", 0, 1),
+    "orbits.skip_bad_records": ("Drop bad records (y/n)", 0, 1),
+    "orbits.allow_old_data": ("Allow data > 120 d old (y/n)", 0, 1),
     "site.lat_deg": ("Latitude (°, north +)", 6, 0.01),
     "site.lon_deg": ("Longitude (°, east +)", 6, 0.01),
     "site.height_m": ("Ellipsoid height (m)", 1, 10),

@@ -190,7 +190,10 @@ def load_pairs(data: Path, step_s: float = 900.0, short_step_s: float = 300.0,
                  "YUMA week 866 vs broadcast G14 2016-03-06", "not in README")):
             if not want(key):
                 continue
-            alm = load_orbits(data / "yuma" / fname, reference_time=float(gps_to_unix_s(toe)))
+            # Week 866 (TOA 2016-04-02) is placed from its publication date, 2016-03-31: the
+            # broadcast toe lies more than the 14-day lead before its TOA.
+            ref = 1_459_382_400.0 if "866" in fname else float(gps_to_unix_s(toe))
+            alm = load_orbits(data / "yuma" / fname, reference_time=ref)
             pair = Pair(key, "almanac", title, readme, ordered(alm, ["G14"]), ["G14"],
                         gps_to_unix_s(gps), pos, vel, clk)
             if key == "alm866_prn14":
@@ -206,7 +209,9 @@ def load_pairs(data: Path, step_s: float = 900.0, short_step_s: float = 300.0,
     if any(want(k) for k in ("alm862_at_toa866", "alm866_at_toa862", "tle3gps_at_toa866",
                              "alm866_at_tle3gps")):
         a862 = load_orbits(y862, reference_time=ref16)
-        a866 = load_orbits(y866, reference_time=ref16)
+        # Week 866 (TOA 2016-04-02) was published on 2016-03-31: its era is resolved from
+        # that date (2016-03-15 lies more than the 14-day lead before its TOA).
+        a866 = load_orbits(y866, reference_time=1_459_382_400.0)
         ids, left = _comparable(a862, a866)
         note = f"left out: {', '.join(left)} (unhealthy, or manoeuvred: sqrt(A) jump > 0.1)"
         toa862 = a862.entries[0].info.epoch_unix_s
@@ -241,14 +246,17 @@ def load_pairs(data: Path, step_s: float = 900.0, short_step_s: float = 300.0,
                                           "6.6 km / 6.6 Hz near its epoch"))
 
     # --- extrapolation checks: almanacs 73 and 239 days apart (not fitted).
-    for key, fa, fb, ref in (
-            ("alm377_at_sem387", "yuma/gpstk_yuma377.txt", "sem/gpstk_sem387.txt", 1_166_600_000.0),
+    # Each file is placed in its era from a date near its own TOA (a reference more than
+    # 14 days before a TOA would put the file in the era before).
+    for key, fa, fb, ref, ref_b in (
+            ("alm377_at_sem387", "yuma/gpstk_yuma377.txt", "sem/gpstk_sem387.txt", 1_166_600_000.0,
+             1_169_856_000.0),
             ("alm_w0_at_w34", "yuma/perylune_almanac.yuma.week0000.061440.txt",
-             "yuma/perylune_yuma_2019-11-29_week34.txt", 1_563_000_000.0)):
+             "yuma/perylune_yuma_2019-11-29_week34.txt", 1_563_000_000.0, 1_575_158_400.0)):
         if not want(key):
             continue
         a = load_orbits(data / fa, reference_time=ref)
-        b = load_orbits(data / fb, reference_time=ref)
+        b = load_orbits(data / fb, reference_time=ref_b)
         ids, left = _comparable(a, b)
         age = (b.entries[0].info.epoch_unix_s - a.entries[0].info.epoch_unix_s) / SECONDS_PER_DAY
         pairs.append(_proxy_pair(key, "almanac", f"{Path(fa).stem} vs {Path(fb).stem} at its TOA",

@@ -68,20 +68,37 @@ def test_week_rollover_resolved_with_reference_near_real_date(rel, ref, week_ful
     assert not any("no reference time" in w for w in s.warnings)
 
 
-@pytest.mark.parametrize("rel, wrong_week", [
-    # Placed in the era of a 2026 plan, these land in 2026-2034 [pub: README "Oddities"]:
-    # 377 + 2048 = 2425 (2026-07), 387 + 2048 = 2435 (2026-09), 819 + 2048 = 2867 (2034-12) [calc].
-    ("yuma/gpstk_yuma377.txt", 2425),
-    ("sem/gpstk_sem387.txt", 2435),
-    ("yuma/gpstk_gps_almanac_week819.txt", 2867),
-])
-def test_wrong_reference_lands_in_the_wrong_era(rel, wrong_week):
-    s = load_orbits(ORBIT_DATA / rel, reference_time=datetime(2026, 3, 14, tzinfo=UTC))
-    assert s.files[0].week_full == wrong_week
+# (file, true full week [pub: README "Files"], week in the latest era before 2026-03-14,
+# README date of TOA). In the latest era these land in 2026-2035 [pub: README "Oddities";
+# 862 + 2048 = 2910, 2035-10 [calc]], i.e. after a 2026-03-14 plan.
+OLD_ALMANACS = [
+    ("yuma/gpstk_yuma377.txt", 1401, 2425, datetime(2006, 11, 15, 16, 44, 48, tzinfo=UTC)),
+    ("sem/gpstk_sem387.txt", 1411, 2435, datetime(2007, 1, 27, 19, 50, 24, tzinfo=UTC)),
+    ("yuma/gpstk_gps_almanac_week819.txt", 1843, 2867, datetime(2015, 5, 6, 16, 44, 48, tzinfo=UTC)),
+    ("yuma/orekit_yuma_week862.txt", 1886, 2910, datetime(2016, 3, 2, 16, 44, 48, tzinfo=UTC)),
+]
+
+
+@pytest.mark.parametrize("rel, true_week, latest_week, toa_gpst", OLD_ALMANACS,
+                         ids=[c[0].split("/")[1] for c in OLD_ALMANACS])
+def test_old_almanac_is_never_placed_after_the_plan(rel, true_week, latest_week, toa_gpst):
+    ref = datetime(2026, 3, 14, tzinfo=UTC)
+    # The latest era would put the data after the plan, by far more than the 14-day lead
+    # [calc: GPS week arithmetic] ...
+    assert GPS0 + timedelta(weeks=latest_week) > ref + timedelta(days=14)
+    s = load_orbits(ORBIT_DATA / rel, reference_time=ref)
+    info = s.files[0]
+    # ... so the data is placed in its true era, before the plan ...
+    assert info.week_full == true_week
+    # ... with its real age: the README date to the plan, in days (GPS - UTC <= 18 s) [calc].
+    want_days = (ref - toa_gpst).total_seconds() / 86400.0
+    assert info.age_s / 86400.0 == pytest.approx(want_days, abs=18.0 / 86400.0 + 1e-6)
+    assert info.age_s > 0
     # The reference, not the computer clock, decides: a reference up to ~9 years off still
-    # finds the right era (half an era is 512 weeks = 9.8 years) [calc].
+    # finds the right era [calc: 1024 weeks = 19.6 years].
     right = load_orbits(ORBIT_DATA / rel, reference_time=datetime(2012, 1, 1, tzinfo=UTC))
-    assert right.files[0].week_full == wrong_week - 1024
+    assert right.files[0].week_full in (true_week, true_week - 1024)
+    assert right.files[0].week_full == (true_week if toa_gpst.year < 2012 else true_week - 1024)
 
 
 def test_no_reference_takes_week_as_written_and_warns(orbit_data):

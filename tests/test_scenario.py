@@ -91,6 +91,7 @@ BAD = [
     ("orbits.files", "a.tle", "list"), ("orbits.files", ["a.tle", 3], "entry 2"),
     ("orbits.files", ["a.tle", "a.tle"], "twice"),
     ("orbits.mapping", 5, "file name"), ("orbits.mapping", "", "empty"),
+    ("orbits.skip_bad_records", 1, "true or false"), ("orbits.allow_old_data", "yes", "true or false"),
     ("site.lat_deg", 90.5, "-90 to 90 deg"), ("site.lat_deg", -91, "-90 to 90 deg"),
     ("site.lat_deg", "47.2", "without quotes"), ("site.lat_deg", True, "boolean"),
     ("site.lat_deg", float("nan"), "finite"),

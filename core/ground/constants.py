@@ -38,6 +38,17 @@ SECONDS_PER_DAY = 86_400.0
 SECONDS_PER_WEEK = 604_800.0
 HALF_WEEK_S = 302_400.0
 WEEKS_PER_ROLLOVER = 1024
+
+# Orbit data age. An almanac's time of applicability lies a few days after its upload (about
+# 70 h for GPS [mem: IS-GPS-200 20.3.4.5]) and files are published ahead of it, so data may
+# be used up to ALMANAC_LEAD_DAYS before its epoch [trade]; a 10-bit week is placed in the
+# era that puts its epoch no later than the planned start plus this lead.
+ALMANAC_LEAD_DAYS = 14.0
+# Data older than this (or further ahead than the lead) is refused unless the user asks for
+# it (--allow-old-data, orbits.allow_old_data): about four times the largest age the default
+# orbit margin was fitted on (31.6 days, docs/orbit-margin.md); beyond it the margin is a
+# guess [calc].
+MAX_DATA_AGE_DAYS = 120.0
 UNIX_JD = 2_440_587.5                # Julian date of 1970-01-01T00:00 UTC
 GPS_EPOCH_UNIX_S = 315_964_800.0     # 1980-01-06T00:00:00 UTC as POSIX seconds
 

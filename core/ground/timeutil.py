@@ -17,6 +17,7 @@ from functools import lru_cache
 import numpy as np
 
 from .constants import (
+    ALMANAC_LEAD_DAYS,
     GPS_EPOCH_UNIX_S,
     GPS_UTC_LEAP_TABLE,
     SECONDS_PER_DAY,
@@ -98,17 +99,22 @@ def gps_week_tow_to_unix_s(week: int, tow_s: float) -> float:
     return float(gps_to_unix_s(week * SECONDS_PER_WEEK + tow_s))
 
 
-def resolve_week(week_mod1024: int, tow_s: float, reference_unix_s: float) -> int:
-    """Full GPS week for a 10-bit week number: the era that puts week+tow nearest the reference.
+def resolve_week(week_mod1024: int, tow_s: float, reference_unix_s: float,
+                 lead_s: float = ALMANAC_LEAD_DAYS * SECONDS_PER_DAY) -> int:
+    """Full GPS week for a 10-bit week number: the latest era whose week+tow is not after
+    the reference by more than ``lead_s`` (an almanac is used before its time of
+    applicability, never years ahead of it; see ALMANAC_LEAD_DAYS).
 
-    The reference is the planned start (never "today") [pub: gps.gov rollover notes].
+    The reference is the planned start (never "today") [pub: gps.gov rollover notes]. The
+    resulting age (reference - epoch) lies between -lead and 1024 weeks - lead; how old
+    data may be is decided by the caller (core.orbits.data_age).
     """
     if not 0 <= week_mod1024 < WEEKS_PER_ROLLOVER:
         # Some files already hold the full week; keep it.
         return int(week_mod1024)
     ref_gps_s = float(unix_to_gps_s(reference_unix_s))
-    ref_week = ref_gps_s / SECONDS_PER_WEEK
-    era = np.round((ref_week - week_mod1024 - tow_s / SECONDS_PER_WEEK) / WEEKS_PER_ROLLOVER)
+    latest_week = (ref_gps_s + lead_s) / SECONDS_PER_WEEK
+    era = np.floor((latest_week - week_mod1024 - tow_s / SECONDS_PER_WEEK) / WEEKS_PER_ROLLOVER)
     return int(week_mod1024 + max(era, 0) * WEEKS_PER_ROLLOVER)
 
 

@@ -133,8 +133,11 @@ def _select_satellites(orbits: OrbitSet, signals: tuple[str, ...]) -> tuple[Orbi
 
 def load_satellites(sc: Scenario, progress: ProgressFn | None = None
                     ) -> tuple[OrbitSet, dict[str, str], list[str]]:
-    """Stage 0a: the scenario's orbit files read, and the satellites of the chosen signals
-    (the acquisition signal per system) with the warnings of that choice."""
+    """Stage 0a: the scenario's orbit files read (bad or implausible records stop the plan
+    unless orbits.skip_bad_records; data too old is refused unless orbits.allow_old_data),
+    and the satellites of the chosen signals (the acquisition signal per system) with the
+    warnings of that choice and of the data's age."""
+    from ..orbits.data_age import check_data_age
     from ..orbits.readers import load_orbit_files
 
     missing = sc.missing_orbit_files()
@@ -144,12 +147,17 @@ def load_satellites(sc: Scenario, progress: ProgressFn | None = None
         raise InputError("the scenario names no orbit file", field="orbits.files")
     _report(progress, 0.02, "reading orbit files")
     orbits = load_orbit_files(sc.resolved_orbit_files(), reference_time=sc.time.start_unix_s,
-                              mapping=sc.resolved_mapping())
-    return _select_satellites(orbits, tuple(sc.receiver.signals))
+                              mapping=sc.resolved_mapping(),
+                              strict=not sc.orbits.skip_bad_records)
+    age_warnings = check_data_age(orbits, sc.time.start_unix_s, allow_old=sc.orbits.allow_old_data)
+    orbits, by_system, warnings = _select_satellites(orbits, tuple(sc.receiver.signals))
+    return orbits, by_system, age_warnings + warnings
 
 
 def prepare_geometry(sc: Scenario, progress: ProgressFn | None = None,
                      cancel: CancelFn | None = None) -> PreparedGeometry:
+    from ..sky.result_guard import guard_prediction
+
     t0 = _time.perf_counter()
     orbits, by_system, warnings = load_satellites(sc, progress)
     site = Site(sc.site.lat_deg, sc.site.lon_deg, sc.site.height_m)
@@ -159,6 +167,7 @@ def prepare_geometry(sc: Scenario, progress: ProgressFn | None = None,
     _check_cancel(cancel)
     _report(progress, 0.1, f"propagating {len(orbits)} satellites over {len(grid)} times")
     pred = predict(orbits, site, grid, signals=by_system)
+    orbits, pred, _ = guard_prediction(orbits, pred)      # impossible geometry: dropped, warned
     _check_cancel(cancel)
     shifted = None
     if sc.time.uncertainty_s > 0:
@@ -388,8 +397,8 @@ def orbit_margins(search: SearchSpec, g: PreparedGeometry) -> OrbitMargins:
                   if bool(np.any(margin_extrapolated(k, a)))})
     if old and search.orbit_margin_hz is None:
         warnings.append(
-            f"orbit data older than the ages the default margin was derived for "
-            f"(docs/orbit-margin.md) for {len(old)} satellite(s) ({', '.join(old[:6])}"
+            f"orbit data further from the planned time than the ages the default margin was "
+            f"derived for (docs/orbit-margin.md) for {len(old)} satellite(s) ({', '.join(old[:6])}"
             f"{', ...' if len(old) > 6 else ''}): windows may be too narrow; use fresher "
             "data or set [search] orbit_margin_hz")
     return OrbitMargins(margin_t, range_margin, age, kinds, warnings)

@@ -87,6 +87,10 @@ KEY_RULES: tuple[KeyRule, ...] = (
        doc="version of this file layout; written by acqplan"),
     _r("orbits", "files", "paths", (), doc="almanac, TLE or RINEX navigation files (plain, .gz, .Z), relative to the scenario file"),
     _r("orbits", "mapping", "path", None, doc="GLONASS mapping file (catalogue number, ID, channel k)"),
+    _r("orbits", "skip_bad_records", "bool", False,
+       doc="true: drop bad or implausible orbit records with a warning instead of stopping"),
+    _r("orbits", "allow_old_data", "bool", False,
+       doc="true: plan with orbit data older than 120 days (or over 14 days ahead) anyway"),
     _r("site", "lat_deg", "number", REQUIRED, *SITE_LAT_RANGE_DEG, "deg", doc="geodetic latitude, WGS-84"),
     _r("site", "lon_deg", "number", REQUIRED, *SITE_LON_RANGE_DEG, "deg", doc="longitude, east positive"),
     _r("site", "height_m", "number", 0.0, *SITE_HEIGHT_RANGE_M, "m", doc="height above the WGS-84 ellipsoid"),
@@ -161,6 +165,8 @@ _PER_SIGNAL_RULES = {k: RULES_BY_DOTTED[f"search.{k}"] for k in PER_SIGNAL_KEYS}
 class OrbitSpec:
     files: tuple[str, ...] = ()
     mapping: str | None = None
+    skip_bad_records: bool = False
+    allow_old_data: bool = False
 
 
 @dataclass(frozen=True)

@@ -212,3 +212,15 @@ def output_options(sp) -> None:
                          "(default: table)")
     sp.add_argument("-o", "--output", metavar="FILE",
                     help="write to FILE (atomically) instead of stdout (default: stdout)")
+
+
+def skip_and_age_options(sp) -> None:
+    """--skip-bad-records and --allow-old-data, shared by plan, passes and doppler."""
+    sp.add_argument("--skip-bad-records", action="store_true",
+                    help="drop orbit records with a bad checksum or field, or with values no "
+                         "satellite of their system can have, with a warning, instead of "
+                         "stopping (scenario: orbits.skip_bad_records)")
+    sp.add_argument("--allow-old-data", action="store_true",
+                    help="use orbit data more than 120 days older than the start (or more "
+                         "than 14 days ahead of it), with a warning, instead of refusing it "
+                         "(scenario: orbits.allow_old_data)")

@@ -14,11 +14,12 @@ from ._common import (
     parse_site,
     print_warnings,
     rule_option,
+    skip_and_age_options,
 )
 
 
 def _load(args):
-    from core.api import load_orbit_files, parse_iso_utc
+    from core.api import check_data_age, load_orbit_files, parse_iso_utc
 
     start = parse_iso_utc(args.start, "--start")
     end = parse_iso_utc(args.end, "--end")
@@ -26,19 +27,33 @@ def _load(args):
         raise InputError(f"end {args.end} is not after start {args.start}", field="--end")
     orbits = load_orbit_files(args.orbits, reference_time=start, mapping=args.mapping,
                               strict=not args.skip_bad_records)
+    # The same age lines as a plan: refused when too old unless --allow-old-data.
+    orbits.warnings.extend(check_data_age(orbits, start.timestamp(),
+                                          allow_old=args.allow_old_data))
     return orbits, parse_site(args.site), start, end
 
 
+def _files_json(orbits, start) -> list[dict]:
+    from core.api import iso_z
+
+    return [{"path": f.path, "format": f.format, "epoch": iso_z(f.epoch_unix_s, 0),
+             "age_days": round((start.timestamp() - f.epoch_unix_s) / 86400.0, 2)}
+            for f in orbits.files]
+
+
 def cmd_passes(args) -> int:
-    from core.api import passes
+    from core.api import guard_prediction, passes, predict, time_grid
 
     orbits, site, start, end = _load(args)
-    found = passes(orbits, site, start, end, mask_deg=args.mask, step_s=args.step)
+    grid = time_grid(start, end, args.step)
+    orbits, pred, _ = guard_prediction(orbits, predict(orbits, site, grid))
+    found = passes(orbits, site, start, end, mask_deg=args.mask, step_s=args.step,
+                   prediction=pred)
     rows = [p.to_dict() for p in found]
     if args.format == "json":
         emit(json.dumps({"site": [site.lat_deg, site.lon_deg, site.height_m],
-                          "mask_deg": args.mask, "passes": rows,
-                          "warnings": orbits.warnings}, indent=2), args.output)
+                          "mask_deg": args.mask, "orbit_files": _files_json(orbits, start),
+                          "passes": rows, "warnings": orbits.warnings}, indent=2), args.output)
     else:
         print_warnings(orbits.warnings)
         # A rise (set) equal to the window start (end) means the satellite was already up
@@ -52,7 +67,7 @@ def cmd_passes(args) -> int:
 def cmd_doppler(args) -> int:
     import numpy as np
 
-    from core.api import get_signal, iso_z, predict, time_grid
+    from core.api import get_signal, guard_prediction, iso_z, predict, time_grid
 
     orbits, site, start, end = _load(args)
     if args.signal:
@@ -63,7 +78,7 @@ def cmd_doppler(args) -> int:
                              field="--signal")
         orbits = orbits.select(keep)
     grid = time_grid(start, end, args.step)
-    pred = predict(orbits, site, grid, signals=args.signal)
+    orbits, pred, _ = guard_prediction(orbits, predict(orbits, site, grid, signals=args.signal))
     iso = grid.iso()
     sats = []
     for k, sid in enumerate(pred.ids):
@@ -89,6 +104,7 @@ def cmd_doppler(args) -> int:
                           "start": iso_z(grid.start_unix_s), "end": iso_z(grid.end_unix_s),
                           "step_s": args.step,
                           "mask_deg": None if args.all_elevations else args.mask,
+                          "orbit_files": _files_json(orbits, start),
                           "satellites": sats, "warnings": warnings}, indent=1), args.output)
     else:
         print_warnings(warnings)
@@ -107,9 +123,7 @@ def _geometry_options(sp, step_required: bool) -> None:
     sp.add_argument("--mapping", metavar="FILE",
                     help="catalogue-number -> ID (and GLONASS k) mapping file "
                          "(default: none; TLE names and built-in tables identify satellites)")
-    sp.add_argument("--skip-bad-records", action="store_true",
-                    help="skip TLE records with a bad checksum or field (with a warning) "
-                         "instead of stopping")
+    skip_and_age_options(sp)
     sp.add_argument("--site", required=True, metavar="LAT,LON,HEIGHT_M",
                     help="receiver site, degrees and metres above the WGS-84 ellipsoid "
                          "(negative values work as typed: --site -33.92,-70.65,520)")

@@ -5,7 +5,14 @@ from __future__ import annotations
 import json
 import sys
 
-from ._common import EXIT_OK, emit, format_rows, output_options, print_warnings
+from ._common import (
+    EXIT_OK,
+    emit,
+    format_rows,
+    output_options,
+    print_warnings,
+    skip_and_age_options,
+)
 
 # Short headings for the table on screen (the CSV keeps the full column names).
 TABLE_HEADS = {"max_el_deg": "max_el", "search_start": "start", "bin_width_hz": "bin_hz",
@@ -43,6 +50,9 @@ def cmd_plan(args) -> int:
     )
 
     scenario = load_scenario(args.scenario)
+    changes = {k: True for k in ("skip_bad_records", "allow_old_data") if getattr(args, k)}
+    if changes:
+        scenario = scenario.with_changes(orbits=changes)
     plan = make_plan(scenario)
     # A file cut short can still be valid TOML: say which sections came from defaults.
     note = (f"{scenario.defaults_note} (the file has no such section; is it complete?)"
@@ -74,6 +84,7 @@ def register(sub) -> None:
     sp = sub.add_parser("plan", help="the full search plan of a scenario file")
     sp.add_argument("scenario", metavar="SCENARIO.toml", help="scenario file to plan (TOML)")
     output_options(sp)
+    skip_and_age_options(sp)
     sp.add_argument("--export-dir", metavar="DIR",
                     help="also write STEM.json (the plan), STEM_windows.csv (windows per "
                          "satellite per step) and STEM_search.csv (search per satellite) into DIR "

@@ -117,10 +117,12 @@ class RawAlmanac:
 
 def _check_raw(r: RawAlmanac, source: str) -> None:
     def bad(msg: str, field: str) -> OrbitFormatError:
-        return OrbitFormatError(msg, file=source, line=r.line, field=field)
+        return OrbitFormatError(f"record for PRN-{r.prn:02d}: {msg}", file=source,
+                                line=r.field_lines.get(field, r.line), field=field)
 
     if not 0 <= r.week_raw <= _WEEK_MAX:
-        raise bad(f"week {r.week_raw} is outside 0..{_WEEK_MAX}", "week")
+        raise bad(f"week {r.week_raw} is outside 0..{_WEEK_MAX}, the range of any GPS week "
+                  "field", "week")
     if not 0.0 <= r.toa_s < SECONDS_PER_WEEK:
         raise bad(f"time of applicability {r.toa_s} s is outside one week", "toa")
     if not 0 <= r.health <= _HEALTH_MAX:
@@ -299,7 +301,8 @@ def _record(header_line: int, header_week: int, header_prn: int, fields: dict[st
                       omega_dot_rad_s=num("omega_dot"), sqrt_a_m05=num("sqrt_a"),
                       omega0_rad=num("omega0"), arg_perigee_rad=num("argp"),
                       mean_anomaly_rad=num("m0"), af0_s=num("af0"), af1_s_s=num("af1"),
-                      field_lines={q: fields[k][1] for q, k in _QUANTITY_KEYS.items()})
+                      field_lines={**{q: fields[k][1] for q, k in _QUANTITY_KEYS.items()},
+                                   **({"week": fields["week"][1]} if "week" in fields else {})})
 
 
 def _same_week(a: int, b: int) -> bool:
