@@ -73,8 +73,8 @@ FIELDS: dict[str, tuple[str, int, float]] = {
     "format_version": ("Scenario file layout", 0, 1),
     "orbits.files": ("Orbit files (YUMA, SEM, TLE, RINEX nav)", 0, 1),
     "orbits.mapping": ("GLONASS slot/channel file", 0, 1),
-    "orbits.skip_bad_records": ("Drop bad records (y/n)", 0, 1),
-    "orbits.allow_old_data": ("Allow data > 120 d old (y/n)", 0, 1),
+    "orbits.skip_bad_records": ("Bad orbit records", 0, 1),
+    "orbits.allow_old_data": ("Old orbit data", 0, 1),
     "site.lat_deg": ("Latitude (°, north +)", 6, 0.01),
     "site.lon_deg": ("Longitude (°, east +)", 6, 0.01),
     "site.height_m": ("Ellipsoid height (m)", 1, 10),
@@ -113,10 +113,13 @@ FIELDS: dict[str, tuple[str, int, float]] = {
 }
 
 # What a tick box means, in the trade's words.
-BOOL_TEXT = {"receiver.parallel_code_search": "whole code per dwell"}
+BOOL_TEXT = {"receiver.parallel_code_search": "whole code per dwell",
+             "orbits.skip_bad_records": "drop them with a warning",
+             "orbits.allow_old_data": "use data over 120 days old"}
 
 # Analyst settings: in a collapsed "Advanced" group at the end of the form.
-ADVANCED = ("format_version", "search.monte_carlo_runs", "search.seed")
+ADVANCED = ("format_version", "search.monte_carlo_runs", "search.seed",
+            "orbits.skip_bad_records", "orbits.allow_old_data")
 
 PRIORITY_TEXT = {"elevation": "highest elevation first", "rising": "rising satellites first"}
 ORBIT_FILE_FILTER = ("Orbit files (*.txt *.alm *.al3 *.yuma *.sem *.tle *.3le *.agl *.nav "

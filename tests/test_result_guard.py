@@ -55,7 +55,9 @@ def test_swapped_rate_gives_megahertz_and_is_dropped():
 def test_radius_outside_the_shell_is_dropped():
     o = _corrupt(_orbits(), 0, sqrt_a_m05=1e15)      # the 1e30-class: a ~ 1e30 m
     kept, _, warnings = guard_prediction(o, predict(o, SITE, GRID))
-    assert kept.ids == ["G07"] and "distance from the Earth's centre" in warnings[0]
+    assert kept.ids == ["G07"] and "its range reaches" in warnings[0]
+    pred = predict(o, SITE, GRID, keep_states=True)
+    assert "distance from the Earth's centre" in guard_prediction(o, pred)[2][0]
 
 
 @pytest.mark.filterwarnings("ignore::RuntimeWarning")   # overflow on purpose
@@ -104,6 +106,8 @@ def test_plan_and_doppler_drop_the_satellite(monkeypatch, tmp_path, capsys):
     # G, R, E, C (GEO, IGSO, MEO), J and SBAS on one day [pub: orbit-data README].
     ("tle/rtklib_TLE_GNSS_20121101.txt", datetime(2012, 11, 1, tzinfo=UTC)),
     ("tle/perylune_galileo_2020-04-01.txt", datetime(2020, 4, 1, tzinfo=UTC)),
+    # Broadcast G, R, E, C, J, I, S records of one morning [pub: orbit-data README].
+    ("rinex-nav/gnsslibpy_BRDM00DLR_S_20230730000_01D_MN.rnx", datetime(2023, 3, 14, tzinfo=UTC)),
 ])
 def test_real_data_passes_the_guard(orbit_data, rel, when):
     o = load_orbits(orbit_data / rel, reference_time=when)

@@ -6,12 +6,14 @@ satellite, over its valid samples:
 
 * it has a finite position at some time, and every position, velocity, range rate,
   Doppler, Doppler rate and elevation value is finite;
-* its distance from the Earth's centre lies inside the shell of its system (perigee of
-  the lowest to apogee of the highest orbit allowed, 1 % slack);
+* its distance from the Earth's centre (when the prediction kept the states; otherwise
+  its range from the site, widened by the site's distance from the centre) lies inside
+  the shell of its system (perigee of the lowest to apogee of the highest orbit allowed,
+  1 % slack);
 * the range rate seen by a receiver at rest (and so the Doppler) is at most what an orbit
-  of the shell allows at that distance, and so is its Earth-fixed speed (vis-viva for the
-  largest semi-major axis plus omega_E r, 1 % slack; see ``_range_rate_bound_m_s``)
-  [calc]. For GPS the Doppler bound is about 11 kHz at L1: loose against the 4.9 kHz of a
+  of the shell allows, and so is its Earth-fixed speed (vis-viva for the largest
+  semi-major axis plus omega_E r, 1 % slack; see ``_range_rate_bound_m_s``) [calc]; a
+  moving receiver adds its largest speed. For GPS the Doppler bound is about 11 kHz at L1: loose against the 4.9 kHz of a
   circular orbit (domain-notes 4), but a value of megahertz (two almanac values swapped)
   is far outside it.
 
@@ -27,12 +29,16 @@ import numpy as np
 
 from ..ground.constants import EARTH_ROTATION_RAD_S, GPS_MU_M3_S2, WGS84_A_M
 from ..ground.errors import InputError
+from ..ground.geodesy import Site
 from ..orbits.orbit_set import OrbitSet
 from ..orbits.plausibility import shell_of
 from .predict import Prediction
 
 _SLACK = 1.01
 _SITE_HEIGHT_MAX_M = 100_000.0      # the highest receiver any command accepts, with room
+# A moving receiver adds its own speed to the range rate: the scenario allows 1000 m/s
+# horizontal and 500 m/s vertical (core.plan.spec), 1118 m/s together [calc].
+_RECEIVER_SPEED_MAX_M_S = 1200.0
 
 
 def _speed_bound_m_s(shell, r: np.ndarray) -> np.ndarray:
@@ -59,32 +65,41 @@ def _reason(pred: Prediction, s: int, system: str) -> str | None:
     ok = pred.valid[s]
     if not ok.any():
         return "propagation gives no finite position at any time of the window"
-    pos = pred.sat_pos_ecef_m[s][ok]
-    vel = pred.sat_vel_ecef_m_s[s][ok]
-    rr = pred.range_rate_m_s[s][ok]
+    rng = pred.range_m[s][ok]
     dop = pred.doppler_hz[s][ok]
-    if not all(np.isfinite(x).all() for x in (pos, vel, rr, dop, pred.doppler_rate_hz_s[s][ok],
+    speed = pred.sat_speed_m_s[s][ok]
+    if not all(np.isfinite(x).all() for x in (rng, dop, speed, pred.doppler_rate_hz_s[s][ok],
                                               pred.elevation_deg[s][ok])):
         return "propagation gives values that are not finite numbers"
     shell = shell_of(system)
-    r = np.linalg.norm(pos, axis=-1)
-    lo, hi = shell.radius_min_m / _SLACK, shell.radius_max_m * _SLACK
+    site_max = WGS84_A_M + _SITE_HEIGHT_MAX_M
+    if pred.sat_pos_ecef_m is not None:                  # states kept: judge the radius itself
+        r = np.linalg.norm(pred.sat_pos_ecef_m[s][ok], axis=-1)
+        lo, hi, what = shell.radius_min_m / _SLACK, shell.radius_max_m * _SLACK, \
+            "distance from the Earth's centre"
+    else:                                                # the range from the site bounds it
+        r = rng
+        lo = max(shell.radius_min_m / _SLACK - site_max, 0.0)
+        hi = shell.radius_max_m * _SLACK + site_max
+        what = "range"
     k = int(np.argmax((r < lo) | (r > hi)))
     if r[k] < lo or r[k] > hi:
-        return (f"its distance from the Earth's centre reaches {r[k] / 1e3:.6g} km, outside the "
-                f"{lo / 1e3:.0f}-{hi / 1e3:.0f} km any {shell.name} orbit allows")
-    v_max = _speed_bound_m_s(shell, r) * _SLACK
-    rr_max = _range_rate_bound_m_s(shell, r, v_max)
-    worst = int(np.argmax(np.abs(rr) / rr_max))
-    if abs(rr[worst]) > rr_max[worst]:
-        lam = float(pred.wavelength_m[s])
-        return (f"its Doppler reaches {dop[worst]:.6g} Hz, beyond the +-{rr_max[worst] / lam:.0f} Hz "
-                f"any {shell.name} orbit allows for a receiver at rest")
-    v = np.linalg.norm(vel, axis=-1)
-    k = int(np.argmax(v / v_max))
-    if v[k] > v_max[k]:
-        return (f"its Earth-fixed speed reaches {v[k]:.6g} m/s, beyond the {v_max[k]:.0f} m/s "
-                f"any {shell.name} orbit allows at that distance")
+        return (f"its {what} reaches {r[k] / 1e3:.6g} km, outside the {lo / 1e3:.0f}-"
+                f"{hi / 1e3:.0f} km any {shell.name} orbit allows")
+    r_min = np.array([shell.radius_min_m])
+    v_max = float(_speed_bound_m_s(shell, r_min)[0]) * _SLACK
+    rr_max = float(_range_rate_bound_m_s(shell, r_min, np.array([v_max]))[0])
+    if not isinstance(pred.site, Site):                  # a moving receiver: add its speed
+        rr_max += _RECEIVER_SPEED_MAX_M_S
+    lam = float(pred.wavelength_m[s])
+    worst = int(np.argmax(np.abs(dop)))
+    if abs(dop[worst]) * lam > rr_max:
+        return (f"its Doppler reaches {dop[worst]:.6g} Hz, beyond the +-{rr_max / lam:.0f} Hz "
+                f"any {shell.name} orbit allows")
+    k = int(np.argmax(speed))
+    if speed[k] > v_max:
+        return (f"its Earth-fixed speed reaches {speed[k]:.6g} m/s, beyond the {v_max:.0f} m/s "
+                f"any {shell.name} orbit allows")
     return None
 
 
