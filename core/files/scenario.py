@@ -15,6 +15,7 @@ from pathlib import Path
 
 import tomli_w
 
+from ..ground.bounded_read import TEXT_FILE_LIMIT_BYTES, read_bytes_bounded
 from ..ground.errors import ScenarioError
 from ..plan.spec import Scenario, ScenarioValidationError, _build, _Locator, salvage_scenario
 from .atomic import write_text_atomic
@@ -28,10 +29,8 @@ def load_scenario(path: str | os.PathLike[str], *, check_files: bool = True) -> 
     """
     p = Path(path)
     file = str(p)
-    try:
-        raw = p.read_bytes()
-    except OSError as exc:
-        raise ScenarioError(f"cannot read the scenario file: {exc.strerror or exc}", file=file) from None
+    raw = read_bytes_bounded(path, limit_bytes=TEXT_FILE_LIMIT_BYTES, what="scenario file",
+                             error_type=ScenarioError)
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
@@ -42,6 +41,11 @@ def load_scenario(path: str | os.PathLike[str], *, check_files: bool = True) -> 
         m = re.search(r"line (\d+)", str(exc))
         raise ScenarioError(f"not valid TOML: {exc}", file=file,
                             line=int(m.group(1)) if m else None) from None
+    except RecursionError:
+        # tomllib parses nested arrays and tables recursively: thousands of '[' or '{'
+        # exhaust the interpreter's stack. No scenario nests more than two levels.
+        raise ScenarioError("not valid TOML: arrays or tables nested too deeply (a scenario "
+                            "nests at most two levels)", file=file) from None
     sc = _build(d, base_dir=p.resolve().parent, path=p, text=text)
     if check_files:
         loc = _Locator(text)

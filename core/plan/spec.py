@@ -646,6 +646,10 @@ class _Checker:
         if not v.strip():
             self.add(dotted, "is empty; give a file name")
             return _BAD
+        if "\x00" in v:
+            shown = _show(v.replace("\x00", "\\0"))
+            self.add(dotted, f"{shown} contains a NUL byte (\\0); no file can have that name")
+            return _BAD
         return v.strip()
 
     def paths(self, rule: KeyRule, dotted: str, v: Any) -> Any:
@@ -659,6 +663,11 @@ class _Checker:
             if not isinstance(item, str) or not item.strip():
                 what = "empty" if isinstance(item, str) else _type_name(item)
                 self.add(dotted, f"entry {i} ({_show(item)}) is {what}; a file name in quotes is needed")
+                ok = False
+            elif "\x00" in item:
+                shown = _show(item.replace("\x00", "\\0"))
+                self.add(dotted, f"entry {i} ({shown}) contains a NUL byte (\\0); no file can "
+                                 "have that name")
                 ok = False
             elif item.strip() in out:
                 self.add(dotted, f"entry {i} ({_show(item)}) is listed twice")

@@ -24,6 +24,7 @@ from collections.abc import Iterable, Mapping
 from datetime import datetime
 from pathlib import Path
 
+from ...ground.bounded_read import MB, ORBIT_FILE_LIMIT_BYTES, read_bytes_bounded
 from ...ground.errors import InputError, OrbitFormatError
 from ..orbit_set import OrbitSet
 from .broadcast_set import parse_broadcast
@@ -54,21 +55,17 @@ def detect_format(text: str) -> str | None:
 
 def read_text(path: str | Path) -> str:
     """The file's text; every problem reading it is an OrbitFormatError naming the file."""
-    p = Path(path)
-    src = str(p)
-    try:
-        data = p.read_bytes()
-    except FileNotFoundError:
-        raise OrbitFormatError("file not found", file=src) from None
-    except IsADirectoryError:
-        raise OrbitFormatError("is a folder, not an orbit file", file=src) from None
-    except PermissionError:
-        raise OrbitFormatError("no permission to read the file", file=src) from None
-    except OSError as exc:
-        raise OrbitFormatError(f"cannot read the file ({exc.strerror or exc})", file=src) from None
+    src = str(path)
+    # Size and time bounded: /dev/zero, a 50 MB file or a pipe without writer give one
+    # line within seconds (core.ground.bounded_read).
+    data = read_bytes_bounded(path, limit_bytes=ORBIT_FILE_LIMIT_BYTES, what="orbit file",
+                              error_type=OrbitFormatError)
     if not data.strip():
         raise OrbitFormatError("the file is empty", file=src)
     data = expand(data, src)
+    if len(data) > ORBIT_FILE_LIMIT_BYTES:
+        raise OrbitFormatError(f"the file expands to {len(data) / MB:.1f} MB, larger than any "
+                               f"orbit file (limit {ORBIT_FILE_LIMIT_BYTES / MB:.1f} MB)", file=src)
     if b"\x00" in data:
         raise OrbitFormatError("binary data, not a text orbit file", file=src)
     try:

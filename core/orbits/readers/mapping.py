@@ -23,6 +23,7 @@ import re
 from collections.abc import Mapping as MappingABC
 from pathlib import Path
 
+from ...ground.bounded_read import TEXT_FILE_LIMIT_BYTES, read_bytes_bounded
 from ...ground.errors import OrbitFormatError
 from .identity import parse_sat_id
 
@@ -104,15 +105,8 @@ def parse_mapping(text: str, source: str = "<mapping>") -> SatMapping:
 def load_mapping(path: str | Path) -> SatMapping:
     """Read a mapping file: {catalogue number: (sat_id, glonass_k or None)}."""
     p = Path(path)
-    try:
-        data = p.read_bytes()
-    except FileNotFoundError:
-        raise OrbitFormatError("mapping file not found", file=str(p)) from None
-    except IsADirectoryError:
-        raise OrbitFormatError("is a folder, not a mapping file", file=str(p)) from None
-    except OSError as exc:
-        raise OrbitFormatError(f"cannot read the mapping file ({exc.strerror or exc})",
-                               file=str(p)) from None
+    data = read_bytes_bounded(path, limit_bytes=TEXT_FILE_LIMIT_BYTES, what="mapping file",
+                              error_type=OrbitFormatError)
     if b"\x00" in data:
         raise OrbitFormatError("binary data, not a text mapping file", file=str(p))
     try:
