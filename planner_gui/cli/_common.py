@@ -219,8 +219,8 @@ def skip_and_age_options(sp) -> None:
     sp.add_argument("--skip-bad-records", action="store_true",
                     help="drop orbit records with a bad checksum or field, or with values no "
                          "satellite of their system can have, with a warning, instead of "
-                         "stopping (scenario: orbits.skip_bad_records)")
+                         "stopping (scenario: orbits.skip_bad_records; default: stop)")
     sp.add_argument("--allow-old-data", action="store_true",
                     help="use orbit data more than 120 days older than the start (or more "
                          "than 14 days ahead of it), with a warning, instead of refusing it "
-                         "(scenario: orbits.allow_old_data)")
+                         "(scenario: orbits.allow_old_data; default: refuse)")
