@@ -68,7 +68,7 @@ def main() -> int:
         from distributed import Client, LocalCluster
 
         cluster = LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                               dashboard_address=None, silence_logs=50)
+                               dashboard_address=":0", silence_logs=50)
         client = Client(cluster)
         contenders["Dask LocalCluster, 2 workers"] = (2, lambda s: run_sweep(sc, s, client=client))
 

@@ -197,6 +197,44 @@ def test_event_hook_single_site(scenario):
     assert ev[0].p95_s == plan.ttff.p95_s
 
 
+# --- a drive: the worst event of every plan ------------------------------------------------
+
+@pytest.fixture(scope="module")
+def drive():
+    """The demo drive without its cold start (whose 10 min horizon has no 95th percentile),
+    with fewer Monte Carlo runs per event."""
+    from dataclasses import replace
+
+    sc = load_scenario(REPO / "sample_almanacs" / "demo_drive_scenario.toml")
+    sc = replace(sc, events=sc.events[1:], route=replace(sc.route, event_monte_carlo_runs=60))
+    return sc.validated()
+
+
+def test_drive_rows_are_the_worst_event_of_each_plan(drive):
+    from dataclasses import replace
+    from datetime import timedelta
+
+    from core.plan.events import plan_drive
+
+    later = drive.time.start_unix_s + 1800.0
+    spec = sw.sweep_spec(drive, {"coherent_ms": [4, 8]}, (later,))
+    res = sw.run_sweep(drive, spec, workers=1)
+    # the same drive 30 min later, built by hand: window and the event given as a time
+    moved = tuple(replace(e, at=e.at + timedelta(minutes=30)) if hasattr(e.at, "tzinfo") else e
+                  for e in drive.events)
+    assert moved != drive.events
+    for row in res.rows:
+        sc = replace(drive, events=moved).with_changes(
+            time={"start": iso_z(later), "end": iso_z(later + drive.time.duration_s)},
+            search={"coherent_ms": spec.settings[row.setting][0]})
+        dp = plan_drive(sc)
+        p95 = {e.event.id: e.ttff_p95_s for e in dp.events}
+        assert row.worst_event == dp.worst.event.id
+        assert row.ttff_p95_s == max(p95.values()) == dp.worst.ttff_p95_s
+        assert math.isfinite(row.ttff_p95_s)
+        assert row.ttff_median_s == dp.worst.ttff_median_s
+
+
 # --- the same rows on a process pool and on Dask --------------------------------------------
 
 def test_pool_equals_here_and_dask_equals_pool(scenario):
@@ -210,7 +248,7 @@ def test_pool_equals_here_and_dask_equals_pool(scenario):
     assert pool.where == "pool" and pool.rows == here.rows
     assert seen[-1] == (12, 12) and [d for d, _ in seen] == sorted(d for d, _ in seen)
     with LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
-                      dashboard_address=None) as cluster, Client(cluster) as client:
+                      dashboard_address=":0") as cluster, Client(cluster) as client:
         on_dask = sw.run_sweep(scenario, spec, client=client)
         # the orbit files went to every worker once, byte for byte
         listed = client.run(_shipped_files)
@@ -229,6 +267,22 @@ def _shipped_files(dask_worker):
         if name.startswith("acqplan-orbits-"):
             out += [Path(plugin.directory, rel).read_bytes() for rel, _ in plugin.files]
     return out
+
+
+def test_drive_on_dask_ships_the_route_too(drive):
+    pytest.importorskip("distributed")
+    from distributed import Client, LocalCluster
+
+    from core.plan.sweep_cluster import shipped_form
+
+    shipped, files, _ = shipped_form(drive)
+    assert shipped.route.file == "route/" + Path(drive.route.file).name
+    assert any(rel == shipped.route.file for rel, _ in files)
+    spec = sw.sweep_spec(drive, {"channels": [8]})
+    here = sw.run_sweep(drive, spec, workers=1)
+    with LocalCluster(n_workers=1, threads_per_worker=1, processes=False,
+                      dashboard_address=":0") as cluster, Client(cluster) as client:
+        assert sw.run_sweep(drive, spec, client=client).rows == here.rows
 
 
 def test_shipped_units_name_no_local_file(scenario):

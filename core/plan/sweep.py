@@ -26,8 +26,9 @@ How the work is shared out:
   cancel check; nothing is returned then (:class:`~core.ground.errors.Cancelled`).
 
 Ranking: settings are ordered by their worst 95th-percentile TTFF over the departures
-(a run without a fix counts as beyond the window), then by the mean of the 95th
-percentiles, then by the worst median.
+(a run without a fix counts as beyond the window), then by the smallest share of runs
+with a fix (higher first: it separates settings whose worst case has no 95th percentile),
+then by the mean of the 95th percentiles, then by the worst median.
 """
 
 from __future__ import annotations
@@ -39,7 +40,8 @@ import signal
 import threading
 from collections.abc import Callable, Iterable, Mapping, Sequence
 from contextlib import contextmanager
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
+from datetime import datetime, timedelta
 from typing import Any
 
 import numpy as np
@@ -243,9 +245,18 @@ def _as_sections(values: Mapping[str, Any]) -> dict[str, dict[str, Any]]:
 
 
 def departure_scenario(scenario: Scenario, spec: SweepSpec, departure_unix_s: float) -> Scenario:
-    """The scenario with its planning window moved to start at the departure (same length)."""
+    """The scenario with its planning window moved to start at the departure (same length).
+
+    A drive moves with it: test events given as a time are moved by the same offset
+    (events at a waypoint or a distance follow the route's own timing)."""
     start = iso_z(departure_unix_s)
     end = iso_z(departure_unix_s + spec.window_s)
+    offset = departure_unix_s - scenario.time.start_unix_s
+    events = getattr(scenario, "events", ())
+    if events and offset:
+        moved = tuple(replace(ev, at=ev.at + timedelta(seconds=offset)) if isinstance(ev.at, datetime)
+                      else ev for ev in events)
+        scenario = replace(scenario, events=moved)
     try:
         return scenario.with_changes(time={"start": start, "end": end})
     except ScenarioError as err:
@@ -294,11 +305,12 @@ class SettingRank:
     worst_p95_s: float
     mean_p95_s: float
     worst_median_s: float
-    best_departure_unix_s: float      # lowest p95 (earliest on ties)
-    worst_departure_unix_s: float     # highest p95 (earliest on ties)
+    best_departure_unix_s: float      # lowest p95, then most runs with a fix (earliest on ties)
+    worst_departure_unix_s: float     # highest p95, then fewest runs with a fix (earliest on ties)
     sensitivity_dbhz: float           # the weakest signal's, worst over the departures
     largest_search_s: float           # over the departures
     max_bins: int                     # over the departures
+    worst_fix_fraction: float = 1.0   # the smallest share of runs with a fix
 
 
 @dataclass
@@ -333,13 +345,18 @@ def rank_settings(spec: SweepSpec, rows: Sequence[SweepRow]) -> list[SettingRank
         med = np.array([r.ttff_median_s for r in mine])
         finite = p95[np.isfinite(p95)]
         mean = float(finite.mean()) if finite.size == p95.size else math.inf
+        order = sorted(mine, key=lambda r: (r.ttff_p95_s, -r.fix_fraction, r.ttff_median_s,
+                                            r.departure_unix_s))
+        worst = max(mine, key=lambda r: (r.ttff_p95_s, -r.fix_fraction, r.ttff_median_s,
+                                         -r.departure_unix_s))
         out.append(SettingRank(s, float(p95.max()), mean, float(med.max()),
-                               mine[int(np.argmin(p95))].departure_unix_s,
-                               mine[int(np.argmax(p95))].departure_unix_s,
+                               order[0].departure_unix_s, worst.departure_unix_s,
                                _nanmax([r.sensitivity_dbhz for r in mine]),
                                _nanmax([r.largest_search_s for r in mine]),
-                               max(r.max_bins for r in mine)))
-    return sorted(out, key=lambda r: (r.worst_p95_s, r.mean_p95_s, r.worst_median_s, r.setting))
+                               max(r.max_bins for r in mine),
+                               min(r.fix_fraction for r in mine)))
+    return sorted(out, key=lambda r: (r.worst_p95_s, -r.worst_fix_fraction, r.mean_p95_s,
+                                      r.worst_median_s, r.setting))
 
 
 def _nanmax(values: Sequence[float]) -> float:
@@ -359,9 +376,9 @@ def best_scenario(scenario: Scenario, result: SweepResult) -> Scenario:
 SWEEP_ROW_COLUMNS = ["departure", "setting", "rank", "ttff_median_s", "ttff_p95_s", "ttff_expected_s",
                "fix_fraction", "worst_event", "sensitivity_dbhz", "largest_search_s",
                "largest_search_id", "largest_search_bins", "max_bins", "satellites_searched"]
-SWEEP_RANK_COLUMNS = ["rank", "setting", "worst_p95_s", "mean_p95_s", "worst_median_s",
-                "best_departure", "worst_departure", "sensitivity_dbhz", "largest_search_s",
-                "max_bins"]
+SWEEP_RANK_COLUMNS = ["rank", "setting", "worst_p95_s", "worst_fix_fraction", "mean_p95_s",
+                      "worst_median_s", "best_departure", "worst_departure", "sensitivity_dbhz",
+                      "largest_search_s", "max_bins"]
 
 
 def _fin(x: float, nd: int = 3) -> float | None:
@@ -397,7 +414,9 @@ def ranking_rows(result: SweepResult) -> list[dict]:
     for i, r in enumerate(result.ranking):
         d: dict[str, Any] = {"rank": i + 1, "setting": result.spec.setting_text(r.setting)}
         d.update({short_key(k): v for k, v in result.spec.setting_dict(r.setting).items()})
-        d.update({"worst_p95_s": _fin(r.worst_p95_s, 2), "mean_p95_s": _fin(r.mean_p95_s, 2),
+        d.update({"worst_p95_s": _fin(r.worst_p95_s, 2),
+                  "worst_fix_fraction": round(r.worst_fix_fraction, 4),
+                  "mean_p95_s": _fin(r.mean_p95_s, 2),
                   "worst_median_s": _fin(r.worst_median_s, 2),
                   "best_departure": iso_z(r.best_departure_unix_s),
                   "worst_departure": iso_z(r.worst_departure_unix_s),
@@ -444,21 +463,39 @@ class EventOutcome:
     fix_fraction: float
 
 
-def event_outcomes(plan) -> list[EventOutcome]:
-    """The TTFF figures of every acquisition event of a plan.
+def is_drive(scenario: Scenario) -> bool:
+    """A scenario with a route or test events: every event gets its own plan."""
+    return getattr(scenario, "route", None) is not None or bool(getattr(scenario, "events", ()))
 
-    HOOK for routes and test events: a plan of a single site has one event, the start of
-    its window. When the scenario's events get their own plans (core.plan.events), this
-    is the one place that lists them; the sweep takes the worst."""
+
+def event_outcomes(plan) -> list[EventOutcome]:
+    """The TTFF figures of every acquisition event: of a single-site plan (one event, the
+    start of its window) or of a drive plan (core.plan.events.DrivePlan, one per event)."""
+    events = getattr(plan, "events", None)
+    if events is not None:                              # a DrivePlan
+        return [_outcome(e.event.id, e.plan) for e in events]
+    return [_outcome("start", plan)]
+
+
+def _outcome(event_id: str, plan) -> EventOutcome:
     ttff = plan.ttff
     expected = plan.timeline.ttff_s
-    return [EventOutcome("start", ttff.median_s, ttff.p95_s,
-                         math.inf if expected is None else float(expected), ttff.fix_fraction)]
+    return EventOutcome(event_id, ttff.median_s, ttff.p95_s,
+                        math.inf if expected is None else float(expected), ttff.fix_fraction)
 
 
 def _row(plan, departure_unix_s: float, setting: int) -> SweepRow:
+    """The row of a plan; for a drive, its worst event (longest p95, a no-fix counting
+    longest; then the fewest runs with a fix) and that event's plan."""
     events = event_outcomes(plan)
-    worst = max(events, key=lambda e: (e.p95_s, e.median_s, e.expected_s))
+    worst = max(events, key=lambda e: (e.p95_s, -e.fix_fraction, e.median_s, e.expected_s))
+    drive_events = getattr(plan, "events", None)
+    warnings = list(getattr(plan, "warnings", []))
+    if drive_events is not None:
+        plan = next(e.plan for e in drive_events if e.event.id == worst.event_id)
+        warnings += [f"{worst.event_id}: {w}" for w in plan.warnings]
+    else:
+        warnings = list(plan.warnings)
     searches = [(sp.search.expected_search_s, sp.sat_id, sp.search.bins)
                 for sp in plan.satellites if sp.search is not None]
     if searches:
@@ -469,7 +506,7 @@ def _row(plan, departure_unix_s: float, setting: int) -> SweepRow:
     return SweepRow(departure_unix_s, setting, float(worst.median_s), float(worst.p95_s),
                     float(worst.expected_s), float(worst.fix_fraction), worst.event_id,
                     float(max(plan.sensitivity_dbhz.values())), float(big[0]), big[1],
-                    int(big[2]), int(max_bins), len(searches), tuple(plan.warnings),
+                    int(big[2]), int(max_bins), len(searches), tuple(dict.fromkeys(warnings)),
                     tuple(sorted((k, float(v)) for k, v in plan.sensitivity_dbhz.items())))
 
 
@@ -490,6 +527,8 @@ def run_unit(unit: _Unit, cancel: CancelFn | None = None) -> list[SweepRow]:
         base = use_shipped_files(base, unit.shipped)
     t = unit.spec.departures_unix_s[unit.departure]
     sc_dep = departure_scenario(base, unit.spec, t)
+    if is_drive(sc_dep):
+        return _run_drive_unit(sc_dep, unit, t, cancel)
     try:
         geometry = prepare_geometry(sc_dep, cancel=cancel)
     except ComputationError as err:      # e.g. nothing above the mask: no fix from here
@@ -498,6 +537,28 @@ def run_unit(unit: _Unit, cancel: CancelFn | None = None) -> list[SweepRow]:
     for s in unit.settings:
         plan = make_plan(setting_scenario(sc_dep, unit.spec, s), prepared=geometry, cancel=cancel)
         rows.append(_row(plan, t, s))
+    return rows
+
+
+def _run_drive_unit(sc_dep: Scenario, unit: _Unit, t: float, cancel: CancelFn) -> list[SweepRow]:
+    """A drive: every event planned by core.plan.events.plan_drive, the worst kept.
+
+    plan_drive prepares each event's geometry itself (along the route, through the
+    surroundings) and takes no prepared geometry, so here the geometry is computed again
+    for every setting."""
+    from .events import plan_drive
+
+    rows = []
+    for s in unit.settings:
+        try:
+            drive = plan_drive(setting_scenario(sc_dep, unit.spec, s), cancel=cancel)
+        except ComputationError as err:
+            rows.append(_no_plan_row(t, s, f"departure {iso_z(t)}: {err}"))
+            continue
+        if not drive.events:
+            rows.append(_no_plan_row(t, s, f"departure {iso_z(t)}: the drive has no event"))
+            continue
+        rows.append(_row(drive, t, s))
     return rows
 
 
@@ -662,6 +723,6 @@ def _show(v: Any) -> str:
 __all__ = ["MAX_COMBINATIONS", "MAX_DEPARTURES", "SWEEP_KEYS", "SWEEP_RANK_COLUMNS",
            "SWEEP_ROW_COLUMNS", "EventOutcome", "SettingRank", "SweepResult", "SweepRow",
            "SweepSpec", "best_scenario", "departure_scenario", "departure_times",
-           "event_outcomes", "parse_value", "rank_settings", "ranking_rows", "resolve_key",
+           "event_outcomes", "is_drive", "parse_value", "rank_settings", "ranking_rows", "resolve_key",
            "run_sweep", "run_unit", "setting_scenario", "short_key", "sweep_cell_scenario",
            "sweep_rows", "sweep_spec", "sweep_to_json"]

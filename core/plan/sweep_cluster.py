@@ -46,25 +46,37 @@ class OrbitFilesPlugin(WorkerPlugin):
 
 
 def shipped_form(scenario: Scenario) -> tuple[Scenario, list[tuple[str, bytes]], str]:
-    """The scenario naming only shipped copies of its files, the files, and a key that
-    changes with their content (a new sweep with other files ships them again)."""
+    """The scenario naming only shipped copies of its files (orbit files, mapping and, for
+    a drive, the route and horizon files), the files, and a key that changes with their
+    content (a new sweep with other files ships them again)."""
     files: list[tuple[str, bytes]] = []
-    names: list[str] = []
-    for i, p in enumerate(scenario.resolved_orbit_files()):
-        rel = f"{i}/{p.name}"          # the file's own name, in case a reader looks at it
-        files.append((rel, p.read_bytes()))
-        names.append(rel)
+
+    def ship(folder: str, path: Path) -> str:
+        rel = f"{folder}/{path.name}"      # the file's own name, in case a reader looks at it
+        files.append((rel, path.read_bytes()))
+        return rel
+
+    names = [ship(str(i), p) for i, p in enumerate(scenario.resolved_orbit_files())]
     mapping = scenario.resolved_mapping()
-    m_rel = None
-    if mapping is not None:
-        m_rel = f"mapping/{mapping.name}"
-        files.append((m_rel, mapping.read_bytes()))
+    m_rel = None if mapping is None else ship("mapping", mapping)
+    shipped = replace(scenario, orbits=OrbitSpec(tuple(names), m_rel), base_dir=_NOWHERE, path=None)
+    route = getattr(scenario, "route", None)
+    if route is not None:
+        def local(name: str | None, folder: str) -> str | None:
+            if name is None:
+                return None
+            p = Path(name).expanduser()
+            return ship(folder, p if p.is_absolute() else Path(scenario.base_dir) / p)
+
+        stretches = tuple(replace(st, horizon_file=local(st.horizon_file, f"horizon{i}"))
+                          for i, st in enumerate(route.stretches))
+        shipped = replace(shipped, route=replace(route, file=local(route.file, "route"),
+                                                 horizon_file=local(route.horizon_file, "horizon"),
+                                                 stretches=stretches))
     digest = hashlib.sha256()
     for rel, content in files:
         digest.update(rel.encode() + b"\0" + hashlib.sha256(content).digest())
-    key = SHIPPED_PREFIX + digest.hexdigest()[:16]
-    shipped = replace(scenario, orbits=OrbitSpec(tuple(names), m_rel), base_dir=_NOWHERE, path=None)
-    return shipped, files, key
+    return shipped, files, SHIPPED_PREFIX + digest.hexdigest()[:16]
 
 
 def use_shipped_files(scenario: Scenario, key: str) -> Scenario:
