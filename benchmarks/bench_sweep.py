@@ -5,7 +5,8 @@ The sweep: departures every 5 min over 24 h from the demo's start (each keeps th
 2 h window), x coherent_ms {4, 8, 12} x noncoherent {5, 10} x channels {8, 12}. Every
 contender first runs the same warm-up sweep (2 departures x 12 settings: imports loaded,
 the pool's process server or the cluster's workers started), then the contenders run the
-timed sweep in turn, interleaved, the same number of repeats each. Reported: the best
+timed sweep in turn, interleaved, the same number of repeats each. Every process runs one
+BLAS thread. Reported: the best
 time of each, the speed-up over one core, and the speed-up per core (speed-up / workers).
 The rows of every contender are compared: they must be equal (same seeds).
 
@@ -24,6 +25,11 @@ import sys
 import tempfile
 import time
 from pathlib import Path
+
+# One BLAS thread in this process too, so that "1 core" is one core (the pool's workers
+# get one each from core.plan.sweep); set before numpy is imported.
+for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_var, "1")
 
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))
@@ -84,12 +90,14 @@ def main() -> int:
     rows: dict[str, list] = {}
     for r in range(args.repeats):
         for name, (_, fn) in contenders.items():
+            load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
             t0 = time.perf_counter()
             res = fn(spec)
             dt = time.perf_counter() - t0
             best[name] = min(best[name], dt)
             rows[name] = res.rows
-            print(f"  repeat {r + 1} {name}: {dt:.1f} s", flush=True)
+            print(f"  repeat {r + 1} {name}: {dt:.1f} s (load average before: {load:.1f} "
+                  f"on {cores} cores)", flush=True)
     if client is not None:
         client.close()
         cluster.close()

@@ -409,9 +409,10 @@ class SweepDialog(QDialog):
             return None
         self.heat.mark_applied(departure, setting)
         row = self.result.row(departure, setting)
+        event = "" if row.worst_event == "start" else f" at the worst event {row.worst_event}"
         self.status.setText(f"Applied {spec.setting_text(setting)}, departure "
                             f"{utc_text(t, False)} UTC (p95 {_seconds(row.ttff_p95_s)}, median "
-                            f"{_seconds(row.ttff_median_s)}); the plan is being recomputed.")
+                            f"{_seconds(row.ttff_median_s)}{event}); the plan is being recomputed.")
         self.apply_requested.emit(sc)
         return sc
 

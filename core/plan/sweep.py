@@ -651,6 +651,27 @@ def _pool_context():
     return mp.get_context("spawn")
 
 
+_THREAD_VARIABLES = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+@contextmanager
+def _one_thread_per_worker():
+    """Worker processes start with one BLAS/OpenMP thread each (N workers on N cores, not
+    N x N threads). The variables are set only while the workers (and the process server
+    they are forked from) start, then restored; a value the user set is kept."""
+    saved = {k: os.environ.get(k) for k in _THREAD_VARIABLES}
+    for k in _THREAD_VARIABLES:
+        os.environ.setdefault(k, "1")
+    try:
+        yield
+    finally:
+        for k, v in saved.items():
+            if v is None:
+                os.environ.pop(k, None)
+            else:
+                os.environ[k] = v
+
+
 @contextmanager
 def _sigint_as_flag():
     """Ctrl+C while workers start or run becomes a flag polled by the caller, so that no
@@ -679,7 +700,8 @@ def _run_pool(scenario, spec, n, progress, cancel) -> list[SweepRow]:
                                    initargs=(stop,))
         finished = False
         try:
-            pending = {pool.submit(run_unit, u) for u in units(scenario, spec, n)}
+            with _one_thread_per_worker():
+                pending = {pool.submit(run_unit, u) for u in units(scenario, spec, n)}
             while pending:
                 if interrupted():
                     raise KeyboardInterrupt
