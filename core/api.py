@@ -81,6 +81,10 @@ _PUBLIC: dict[str, str] = {
     "make_plan": "core.plan.pipeline",
     "add_monte_carlo": "core.plan.pipeline",
     "plan_to_json": "core.plan.pipeline",
+    "plan_drive": "core.plan.events",
+    "load_drive": "core.plan.events",
+    "DrivePlan": "core.plan.events",
+    "EventPlan": "core.plan.events",
     "plan_rows": "core.plan.pipeline",
     "timeline_rows": "core.plan.pipeline",
     "SUMMARY_COLUMNS": "core.plan.pipeline",
@@ -110,8 +114,6 @@ _PUBLIC: dict[str, str] = {
     "Comparison": "core.records.compare",
     "compare_record": "core.records.compare",
     "record_scenario": "core.records.compare",
-    "DrivePlan": "core.plan.events",
-    "plan_drive": "core.plan.events",
     # files: text in and out
     "load_scenario": "core.files.scenario",
     "load_scenario_for_editing": "core.files.scenario",
@@ -179,7 +181,7 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     from core.orbits.orbit_set import OrbitSet  # noqa: F401
     from core.orbits.plausibility import check_elements  # noqa: F401
     from core.orbits.readers import load_mapping, load_orbit_files, load_orbits  # noqa: F401
-    from core.plan.events import DrivePlan, plan_drive  # noqa: F401
+    from core.plan.events import DrivePlan, EventPlan, load_drive, plan_drive  # noqa: F401
     from core.plan.pipeline import (  # noqa: F401
         SUMMARY_COLUMNS,
         Plan,

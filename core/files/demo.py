@@ -656,7 +656,7 @@ speed_kmh = 60                     # planned speed where no stretch sets one
 slip_min = 3                       # up to 3 minutes early or late on the timetable
 speed_uncertainty_kmh = 10
 heading_uncertainty_deg = 15
-event_horizon_min = 10             # each event planned over 10 minutes from its time
+event_horizon_min = 20             # each event planned over 20 minutes from its time
 outage_drift_ppb_per_s = 0.2
 
 [route.dwell_s]

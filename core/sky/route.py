@@ -561,7 +561,7 @@ def route_file_summary(rf: RouteFile, speed_m_s: float | None = None) -> dict:
         duration = length / speed_m_s
     elif problem is None and rf.n_points:
         duration = float(rf.time_unix_s[-1] - rf.time_unix_s[0])
-    if problem is not None and rf.n_points:
+    if problem is not None and rf.n_points and speed_m_s is None:
         problems.append(f"recorded times unusable: {problem}" if np.isfinite(rf.time_unix_s).any()
                         else "no times in the file: give a planned speed to time it")
     return {"file": rf.path, "kind": rf.kind, "length_m": round(length, 1),

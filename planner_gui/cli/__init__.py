@@ -16,7 +16,7 @@ from collections.abc import Sequence
 from core.api import AcqplanError, InputError
 from planner_gui import version
 
-from . import bins, compare, demo, geometry, plan, sweep, window
+from . import bins, compare, demo, geometry, plan, route, sweep, window
 from ._common import (
     EXIT_BAD_INPUT,
     EXIT_FAILURE,
@@ -29,7 +29,7 @@ from ._common import (
     parse_site,
 )
 
-COMMANDS = (geometry, bins, plan, sweep, compare, demo, window)
+COMMANDS = (geometry, bins, plan, route, sweep, compare, demo, window)
 
 __all__ = ["EXIT_BAD_INPUT", "EXIT_FAILURE", "EXIT_OK", "build_parser", "format_rows", "main",
            "one_line", "parse_pair", "parse_site"]

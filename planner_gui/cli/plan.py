@@ -54,6 +54,11 @@ def cmd_plan(args) -> int:
     if changes:
         scenario = scenario.with_changes(orbits=changes)
     plan = make_plan(scenario)
+    drive = None
+    if scenario.route is not None or scenario.events:
+        from core.api import plan_drive
+
+        drive = plan_drive(scenario)
     # A file cut short can still be valid TOML: say which sections came from defaults.
     note = (f"{scenario.defaults_note} (the file has no such section; is it complete?)"
             if scenario.defaults_used else "")
@@ -63,9 +68,15 @@ def cmd_plan(args) -> int:
         for path in export_all(plan, args.export_dir, args.stem):
             print(f"wrote {path}", file=sys.stderr)
     if args.format == "json":
-        emit(json.dumps(plan_to_json(plan), indent=1), args.output)
+        out = plan_to_json(plan)
+        if drive is not None:
+            out.update(drive.to_json())
+        emit(json.dumps(out, indent=1), args.output)
     elif args.format == "csv":
-        print_warnings(([note] if note else []) + plan.warnings)
+        print_warnings(([note] if note else []) + plan.warnings + ([] if drive is None else drive.warnings))
+        if drive is not None:       # one row per drive event
+            emit(format_rows(drive.summary_rows(), "csv", DRIVE_COLUMNS), args.output)
+            return EXIT_OK
         emit(format_rows(plan_rows(plan), "csv", SUMMARY_COLUMNS), args.output)
     else:
         parts = [note[:1].upper() + note[1:]] if note else []
@@ -74,14 +85,36 @@ def cmd_plan(args) -> int:
                   format_rows(_for_reading(plan_rows(plan)), "table", SUMMARY_COLUMNS, TABLE_HEADS),
                   "Channel timeline", format_rows(_for_reading(timeline_rows(plan)), "table"),
                   plan.summary_text()]
+        if drive is not None:
+            parts += _drive_parts(drive)
         if plan.warnings:
             parts.append("Warnings:\n" + "\n".join(f"  - {w}" for w in plan.warnings))
         emit("\n".join(parts), args.output)
     return EXIT_OK
 
 
+DRIVE_COLUMNS = ["id", "kind", "name", "time", "distance_km", "lat_deg", "lon_deg", "stretch", "visible",
+                 "blocked", "ttff_median_s", "ttff_p95_s", "first_fix", "worst"]
+
+
+def _drive_parts(drive) -> list[str]:
+    """The drive's part of the table output: the route, then one row per event."""
+    parts = []
+    r = drive.route_json()
+    if r is not None:
+        parts.append(f"Route {r['file']}: {r['length_m'] / 1000:.1f} km, {r['duration_s'] / 60:.0f} min "
+                     f"({r['timing']}); stretches: " + (", ".join(
+                         f"{s['name'] or s['kind']} {s['from_m'] / 1000:.1f}-{s['to_m'] / 1000:.1f} km"
+                         for s in r["stretches"]) or "none"))
+    parts += ["Drive events (each planned from its own time and place; worst = longest 95th percentile)",
+              format_rows(drive.summary_rows(), "table", DRIVE_COLUMNS)]
+    if drive.warnings:
+        parts.append("Drive warnings:\n" + "\n".join(f"  - {w}" for w in drive.warnings))
+    return parts
+
+
 def register(sub) -> None:
-    sp = sub.add_parser("plan", help="the full search plan of a scenario file")
+    sp = sub.add_parser("plan", help="the full search plan of a scenario file (and of every drive event)")
     sp.add_argument("scenario", metavar="SCENARIO.toml", help="scenario file to plan (TOML)")
     output_options(sp)
     skip_and_age_options(sp)
