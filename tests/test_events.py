@@ -129,11 +129,11 @@ def test_route_window_narrower_than_the_single_site_cover(drive):
     ev = next(e for e in dp.events if e.event.kind == "warm")
     g = ev.plan.prepared
     t0, t1 = ev.plan.times.start_unix_s, ev.plan.times.end_unix_s
-    site, radius_m, vmax = single_site_equivalent(dp.drive.route, t0 - 180.0, t1 + 180.0, 10 / 3.6)
+    site, radius_m, vmax, climb = single_site_equivalent(dp.drive.route, t0 - 180.0, t1 + 180.0, 10 / 3.6, 1.0)
     pred = predict(g.orbits, site, ev.plan.times)
     k = ev.event.knowledge
     unc = Uncertainty(k.horizontal_uncertainty_km * 1000 + radius_m, k.vertical_uncertainty_m, k.time_uncertainty_s,
-                      vmax, 1.0, 0.0, k.oscillator_uncertainty_ppb)
+                      vmax, climb, 0.0, k.oscillator_uncertainty_ppb)
     w_site = doppler_windows(pred, unc)
     vis = ev.plan.visible
     ratio = (ev.plan.windows_first.width_hz[vis] / w_site.width_hz[vis])

@@ -526,11 +526,11 @@ def plan_drive(sc: Scenario, progress: ProgressFn | None = None, cancel: Callabl
     return DrivePlan(drive, samples, out, warnings, _time.perf_counter() - t_start)
 
 
-def single_site_equivalent(route: Route, t0: float, t1: float, speed_uncertainty_m_s: float
-                           ) -> tuple[Site, float, float]:
+def single_site_equivalent(route: Route, t0: float, t1: float, speed_uncertainty_m_s: float,
+                           climb_uncertainty_m_s: float = 0.0) -> tuple[Site, float, float, float]:
     """The single site that covers the drive between t0 and t1: the mid-point of the
-    positions driven, the largest distance from it to any of them (m), and the fastest
-    speed in any direction (m/s) — what a plan without a route would need."""
+    positions driven, the largest distance from it to any of them (m), the fastest speed
+    in any direction and the fastest climb (m/s): what a plan without a route would need."""
     u = np.linspace(t0, t1, 201)
     st = route.state_at(np.concatenate((u, route.time_unix_s[(route.time_unix_s > t0) & (route.time_unix_s < t1)])))
     from geographiclib.geodesic import Geodesic
@@ -538,7 +538,9 @@ def single_site_equivalent(route: Route, t0: float, t1: float, speed_uncertainty
     lat_c, lon_c = float(np.mean(st.lat_deg)), float(np.mean(st.lon_deg))
     r = max(Geodesic.WGS84.Inverse(lat_c, lon_c, a, b, Geodesic.DISTANCE)["s12"]
             for a, b in zip(st.lat_deg, st.lon_deg))
-    return Site(lat_c, lon_c, float(np.mean(st.height_m))), float(r), float(np.max(st.speed_m_s)) + speed_uncertainty_m_s
+    return (Site(lat_c, lon_c, float(np.mean(st.height_m))), float(r),
+            float(np.max(st.speed_m_s)) + speed_uncertainty_m_s,
+            float(np.max(np.abs(st.vertical_m_s))) + climb_uncertainty_m_s)
 
 
 __all__ = ["Drive", "DriveEvent", "DrivePlan", "EventKnowledge", "EventPlan", "RouteSamples", "kind_knowledge",

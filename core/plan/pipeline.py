@@ -487,7 +487,7 @@ def integration(sc: Scenario, signal_ids: list[str]) -> Integration:
         if not chk.ok:
             raise InputError("; ".join(chk.errors), field="search.coherent_ms")
         warnings.extend(f"{sid}: {w}" for w in chk.warnings)
-        design[sid] = binlib.design_bins(coh_ms / 1000.0, sc.search.max_frequency_loss_db)
+        design[sid] = _design_bins(coh_ms / 1000.0, sc.search.max_frequency_loss_db)
         code_loss[sid] = codephase.code_step_loss(step, codephase.correlation_shape_for(sig))
         rows = [i for i, x in enumerate(signal_ids) if x == sid]
         tc_s[rows] = coh_ms / 1000.0
@@ -826,6 +826,13 @@ def add_monte_carlo(plan: Plan, scenario: Scenario | None = None,
     out.prepared = plan.prepared  # type: ignore[attr-defined]
     out.timeline_inputs = inputs  # type: ignore[attr-defined]
     return out
+
+
+@lru_cache(maxsize=64)
+def _design_bins(coherent_s: float, max_loss_db: float) -> binlib.BinDesign:
+    """The bin design (a pure function of its two numbers; cached: every event of a drive
+    and every re-plan asks for the same few)."""
+    return binlib.design_bins(coherent_s, max_loss_db)
 
 
 @lru_cache(maxsize=256)

@@ -175,12 +175,16 @@ def route_motion(route: Route, unix_s: np.ndarray, unc: MotionUncertainty = Moti
                        s_lo, s_hi, h_lo, h_hi, c - unc.vertical_m_s, c + unc.vertical_m_s, lok)
 
 
-def _cos_range(x_lo_deg: np.ndarray, x_hi_deg: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Least and greatest cos(x) over [x_lo, x_hi] (deg)."""
-    c1, c2 = np.cos(np.radians(x_lo_deg)), np.cos(np.radians(x_hi_deg))
-    cmax = np.where(np.ceil(x_lo_deg / 360.0) <= np.floor(x_hi_deg / 360.0), 1.0, np.maximum(c1, c2))
-    cmin = np.where(np.ceil((x_lo_deg - 180.0) / 360.0) <= np.floor((x_hi_deg - 180.0) / 360.0),
-                    -1.0, np.minimum(c1, c2))
+def _cos_range(az_deg: np.ndarray, heading_lo_deg: np.ndarray, heading_hi_deg: np.ndarray
+               ) -> tuple[np.ndarray, np.ndarray]:
+    """Least and greatest cos(az - h) over headings h in [lo, hi] (deg, hi - lo <= 360):
+    with x the angle from the interval's middle to az (0..180) and w its half-width, the
+    angle to az runs over [x - w, x + w], where cos falls monotonically on 0..180."""
+    mid = 0.5 * (heading_lo_deg + heading_hi_deg)
+    half = 0.5 * (heading_hi_deg - heading_lo_deg)
+    x = np.abs((az_deg - mid + 180.0) % 360.0 - 180.0)
+    cmax = np.cos(np.radians(np.maximum(x - half, 0.0)))
+    cmin = np.cos(np.radians(np.minimum(x + half, 180.0)))
     return cmin, cmax
 
 
@@ -211,7 +215,7 @@ def motion_terms_hz(motion: RouteMotion, azimuth_deg: np.ndarray, elevation_deg:
         az = azimuth_deg[:, a:b, None]
         el = np.radians(elevation_deg[:, a:b, None])
         ce = np.cos(el)
-        cmin, cmax = _cos_range(az - motion.leg_heading_hi_deg[None, a:b], az - motion.leg_heading_lo_deg[None, a:b])
+        cmin, cmax = _cos_range(az, motion.leg_heading_lo_deg[None, a:b], motion.leg_heading_hi_deg[None, a:b])
         s_lo, s_hi = motion.leg_speed_lo_m_s[None, a:b], motion.leg_speed_hi_m_s[None, a:b]
         c_lo, c_hi = motion.leg_climb_lo_m_s[None, a:b], motion.leg_climb_hi_m_s[None, a:b]
         spread = np.broadcast_to(np.asarray(elevation_spread_rad, dtype=float), azimuth_deg.shape)[:, a:b, None]

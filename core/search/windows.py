@@ -269,6 +269,11 @@ def _oscillator_terms(d, f_c, unc: Uncertainty, others_hz):
             apparent_doppler_hz(d, f_c, e0 - de) - nominal + cross)
 
 
+# Satellites that stay below this elevation over a whole grid are never searched; their
+# route windows take the any-direction motion bound instead of the exact route terms.
+BELOW_HORIZON_DEG = -10.0
+
+
 def _route_windows(pred: Prediction, unc: Uncertainty, orbit_margin_hz, shifted: ShiftSummary | None,
                    motion: RouteMotion) -> DopplerWindows:
     """The windows on a route (see :func:`doppler_windows` and core.search.motion).
@@ -308,9 +313,23 @@ def _route_windows(pred: Prediction, unc: Uncertainty, orbit_margin_hz, shifted:
     # Elevation seen from any admissible position and time, as for a site (_velocity_term).
     spread = ((reach + r_h) / WGS84_A_M + (reach + r_h + r_v) / pred.range_m
               + np.radians(np.abs(pred.elevation_rate_deg_s)) * dt * 1.05)
-    s_lo, s_hi, v_lo, v_hi, j_lo, j_hi = motion_terms_hz(
-        motion, pred.azimuth_deg, pred.elevation_deg, position_gradient_ecef(pred), pred.wavelength_m,
-        spread)
+    # Exact route terms for satellites that come near the horizon in the grid; the others
+    # (never searched) get the any-direction bound, which costs nothing.
+    rows = np.nonzero(np.any(pred.elevation_deg > BELOW_HORIZON_DEG, axis=1))[0]
+    grad = position_gradient_ecef(pred)
+    reach_hz = np.linalg.norm(grad, axis=-1) * reach
+    v_any = (motion.max_horizontal_speed_m_s[None, :] + np.max(
+        np.where(motion.leg_ok, np.maximum(np.abs(motion.leg_climb_lo_m_s), np.abs(motion.leg_climb_hi_m_s)), 0.0),
+        axis=1)[None, :]) / lam
+    s_lo, s_hi = -reach_hz, reach_hz + 0.0
+    v_lo = np.broadcast_to(-v_any, d.shape).copy()
+    v_hi = np.broadcast_to(v_any, d.shape).copy()
+    j_lo, j_hi = s_lo + v_lo, s_hi + v_hi
+    if rows.size:
+        part = motion_terms_hz(motion, pred.azimuth_deg[rows], pred.elevation_deg[rows], grad[rows],
+                               pred.wavelength_m[rows], np.broadcast_to(spread, d.shape)[rows])
+        for full, sub in zip((s_lo, s_hi, v_lo, v_hi, j_lo, j_hi), part):
+            full[rows] = sub
     speed = pred.sat_speed_m_s
     second = (1.5 * speed / pred.range_m**2 * ((reach + r_h) ** 2 + r_v**2) / lam
               + gu_t * (reach + r_h) ** 2 / (2 * WGS84_A_M)

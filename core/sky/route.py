@@ -188,7 +188,11 @@ def _read_gpx(path: str, text: str) -> RouteFile:
     return rf
 
 
-def _read_csv(path: str, text: str) -> RouteFile:
+def csv_records(text: str, file: str, required: tuple[str, ...], what: str
+                ) -> list[tuple[int, dict[str, str]]]:
+    """The rows of a CSV text as (line number, {column: cell}): a header naming the
+    ``required`` columns (any order, any case, more allowed), ``#`` comment lines and
+    blank lines skipped, short rows padded with empty cells."""
     rows = []
     header = None
     for n, raw in enumerate(io.StringIO(text), 1):
@@ -198,16 +202,20 @@ def _read_csv(path: str, text: str) -> RouteFile:
         cells = [c.strip() for c in next(csv.reader([s]))]
         if header is None:
             header = [c.lower() for c in cells]
-            missing = [c for c in CSV_COLUMNS if c not in header]
+            missing = [c for c in required if c not in header]
             if missing:
-                raise InputError(f"the header must name {', '.join(CSV_COLUMNS)} (missing "
-                                 f"{', '.join(missing)})", file=path, line=n, field="header")
+                raise InputError(f"the header must name {', '.join(required)} (missing "
+                                 f"{', '.join(missing)})", file=file, line=n, field="header")
             continue
-        if len(cells) < len(header):
-            cells += [""] * (len(header) - len(cells))
+        cells += [""] * (len(header) - len(cells))
         rows.append((n, dict(zip(header, cells))))
     if header is None:
-        raise InputError("empty route file (no header)", file=path)
+        raise InputError(f"empty {what} (no header)", file=file)
+    return rows
+
+
+def _read_csv(path: str, text: str) -> RouteFile:
+    rows = csv_records(text, path, CSV_COLUMNS, "route file")
     lat, lon, h, t, elements, names = [], [], [], [], [], []
     for n, row in rows:
         vals = {}

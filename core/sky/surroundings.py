@@ -19,8 +19,6 @@ which satellites are blocked, the extra attenuation, and the outage flag per tim
 
 from __future__ import annotations
 
-import csv
-import io
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -28,6 +26,7 @@ from pathlib import Path
 import numpy as np
 
 from ..ground.errors import InputError
+from .route import csv_records
 
 STRETCH_KINDS = ("open", "trees", "canyon", "outage")
 
@@ -76,20 +75,8 @@ def read_horizon_csv(path: str | Path) -> HorizonProfile:
         raise InputError(f"cannot read the horizon profile ({exc.strerror})", file=p) from None
     except UnicodeDecodeError:
         raise InputError("not a text file", file=p) from None
-    header = None
     az, el = [], []
-    for n, raw in enumerate(io.StringIO(text), 1):
-        s = raw.strip()
-        if not s or s.startswith("#"):
-            continue
-        cells = [c.strip() for c in next(csv.reader([s]))]
-        if header is None:
-            header = [c.lower() for c in cells]
-            if "azimuth_deg" not in header or "elevation_deg" not in header:
-                raise InputError("the header must name azimuth_deg, elevation_deg", file=p, line=n,
-                                 field="header")
-            continue
-        row = dict(zip(header, cells))
+    for n, row in csv_records(text, p, ("azimuth_deg", "elevation_deg"), "horizon profile"):
         vals = {}
         for col, lo, hi in (("azimuth_deg", -360.0, 720.0), ("elevation_deg", -10.0, 90.0)):
             try:
@@ -101,7 +88,7 @@ def read_horizon_csv(path: str | Path) -> HorizonProfile:
             vals[col] = v
         az.append(vals["azimuth_deg"])
         el.append(vals["elevation_deg"])
-    if header is None or not az:
+    if not az:
         raise InputError("the horizon profile holds no points", file=p)
     try:
         return horizon_profile(az, el, p)
