@@ -206,3 +206,16 @@ def test_drive_keys_round_trip_and_are_checked(demo_dir):
     plain = load_scenario(demo_dir / "demo_scenario.toml")
     assert plain.route is None and plain.events == ()
     assert "route" not in plain.to_dict() and "event" not in plain.to_dict()
+
+
+def test_saved_elsewhere_the_drive_still_finds_its_route(demo_dir, tmp_path):
+    from core.files.scenario import save_scenario
+
+    sc = load_scenario(demo_dir / "demo_drive_scenario.toml")
+    other = tmp_path / "elsewhere" / "drive.toml"
+    other.parent.mkdir()
+    saved = save_scenario(sc, other)
+    again = load_scenario(other)
+    assert again.route.file != sc.route.file
+    assert (again.base_dir / again.route.file).resolve() == (demo_dir / "demo_drive_route.csv").resolve()
+    assert again.events == sc.events and saved.route == again.route

@@ -114,7 +114,14 @@ def save_scenario(scenario: Scenario, path: str | os.PathLike[str]) -> Scenario:
                      files=tuple(_rebase(f, scenario.base_dir, folder) for f in scenario.orbits.files),
                      mapping=(None if scenario.orbits.mapping is None
                               else _rebase(scenario.orbits.mapping, scenario.base_dir, folder)))
-    saved = replace(scenario, orbits=orbits, path=p, base_dir=folder)
+    route = scenario.route
+    if route is not None:             # the drive's files, likewise
+        def moved(name):
+            return None if name is None else _rebase(name, scenario.base_dir, folder)
+        route = replace(route, file=moved(route.file), horizon_file=moved(route.horizon_file),
+                        stretches=tuple(replace(st, horizon_file=moved(st.horizon_file))
+                                        for st in route.stretches))
+    saved = replace(scenario, orbits=orbits, route=route, path=p, base_dir=folder)
     write_text_atomic(p, scenario_to_toml(saved), ScenarioError, "save the scenario")
     return saved
 
