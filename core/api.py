@@ -71,6 +71,7 @@ _PUBLIC: dict[str, str] = {
     "bin_centres": "core.search.bins",
     "bin_count": "core.search.bins",
     "loss_curve": "core.search.bins",
+    "cn0_at_elevation_dbhz": "core.search.detection",
     # plan: acquisitions over time
     "Scenario": "core.plan.spec",
     "ScenarioValidationError": "core.plan.spec",
@@ -215,6 +216,7 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     from core.records.measure import Measurements, measure  # noqa: F401
     from core.records.record import Record, load_record, parse_record, record_bands  # noqa: F401
     from core.search.bins import bin_centres, bin_count, design_bins, loss_curve  # noqa: F401
+    from core.search.detection import cn0_at_elevation_dbhz  # noqa: F401
     from core.search.motion import MotionUncertainty, RouteMotion, route_motion  # noqa: F401
     from core.search.windows import Uncertainty, doppler_windows  # noqa: F401
     from core.sky.predict import Pass, Prediction, passes, predict  # noqa: F401

@@ -67,6 +67,7 @@ from .views import (
     SearchGridView,
     SkyView,
 )
+from .views.record_overlay import RecordView
 from .worker import PlanFailure, PlanResult, PlanWorker
 
 SCENARIO_FILTER = "acqplan scenarios (*.toml);;All files (*)"
@@ -369,6 +370,9 @@ class PlannerWindow(QMainWindow):
         self.route = RouteView(self.model)
         self.tabs.addTab(self.route, "Drive")
         self.model.driveChanged.connect(self._drive_changed)
+        self.record_view = RecordView(self.model)
+        self.record_view.message.connect(self.messages.add_message)
+        self.tabs.addTab(self.record_view, "Receiver record")
         self.side_tabs = QTabWidget()
         self.side_tabs.setObjectName("sideTabs")
         self.side_tabs.setDocumentMode(True)
@@ -467,6 +471,8 @@ class PlannerWindow(QMainWindow):
         m.addAction(self.act_save_as)
         m.addSeparator()
         m.addAction(self.act_add_orbits)
+        m.addAction(self._action("Load receiver &record…", self.load_record_dialog, None,
+                                 "Hold the plan against a receiver record (RINEX observation file or NMEA log)"))
         m.addSeparator()
         m.addAction(self.act_preview)
         m.addAction(self.act_pdf)
@@ -950,6 +956,14 @@ class PlannerWindow(QMainWindow):
         self.problemShown.emit(text)
 
     # ------------------------------------------------------------------ status
+    def load_record_dialog(self) -> None:
+        path, _ = QFileDialog.getOpenFileName(self, "Load receiver record", "",
+                                              "Receiver records (*.??o *.??d *.obs *.rnx *.crx *.gz *.Z "
+                                              "*.nmea *.txt *.log);;All files (*)")
+        if path:
+            self.record_view.load(path)
+            self.tabs.setCurrentWidget(self.record_view)
+
     def show_messages(self) -> None:
         self.lower_tabs.setCurrentWidget(self.messages)
 
