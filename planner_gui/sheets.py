@@ -14,6 +14,9 @@ Pages, in order:
 4. Doppler search windows: every search of the timeline, bins drawn to scale.
 5. Channel cards: one card per channel (a further card for every SEARCHES_PER_CARD
    searches) with tick boxes, for use in the vehicle.
+6. Field record: the times to compare with the receiver log, and the incident log.
+7. Only with a receiver record loaded onto the plan: the record against the plan
+   (planner_gui.sheet_record).
 
 Every page carries "page x of y", the scenario file name with the short content hash
 (:func:`core.files.plan_export.content_hash`: first 10 hex digits of the SHA-256 of the scenario
@@ -1186,6 +1189,11 @@ def build_pages(plan: Plan, device, geo: Geometry, generated_unix_s: float | Non
         pages += drive_pages(drive, device, geo, generated_unix_s, ctx)
     pages += (_table_pages(ctx) + _chart_pages(ctx) + _card_pages(ctx)
               + _field_record_pages(ctx))
+    comparison = getattr(plan, "record_comparison", None)   # a record loaded onto the plan
+    if comparison is not None:
+        from planner_gui.sheet_record import record_pages
+
+        pages += record_pages(ctx, comparison)
     for i, page in enumerate(pages, start=1):
         _header(ctx, page)
         _footer(ctx, page, i, len(pages))

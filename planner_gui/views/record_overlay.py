@@ -94,6 +94,7 @@ class RecordView(ViewFrame):
         row.addWidget(self.cn0_plot, 2)
         self.outer.addLayout(row, 1)
         model.planChanged.connect(lambda _r: self._recompare())
+        model.ttffChanged.connect(lambda _r: self._recompare())   # the final stage is a new plan
 
     # -- loading and comparing ------------------------------------------------------------
     def load(self, path: str) -> None:
@@ -104,6 +105,8 @@ class RecordView(ViewFrame):
         self._recompare()
 
     def clear(self) -> None:
+        if self.model.plan is not None and hasattr(self.model.plan, "record_comparison"):
+            del self.model.plan.record_comparison
         self.path, self._record, self.comparison = None, None, None
         self.clear_button.setEnabled(False)
         self.info.setText("no record loaded")
@@ -140,6 +143,7 @@ class RecordView(ViewFrame):
     def _on_done(self, comparison, plan) -> None:
         if plan is not self.model.plan:
             return                                # a newer plan is on its way
+        plan.record_comparison = comparison       # the sheets print it (planner_gui.sheet_record)
         self.show_comparison(comparison)
         self.message.emit("note", f"record {self.path}: {comparison.verdict}")
         for text in outside_messages(comparison):
