@@ -32,14 +32,14 @@ from planner_gui.style import style_for
 
 # (key, heading, width share, alignment)
 COLUMNS = (
-    ("id", "Sat.", 0.6, "left"), ("signal", "Signal", 0.95, "left"),
-    ("source", "Doppler from", 0.85, "left"), ("window", "Window searched (Hz)", 1.35, "right"),
-    ("measured", "Measured (Hz)", 1.25, "right"), ("inside", "Inside", 0.85, "center"),
-    ("residual", "Resid. med / max (Hz)", 1.2, "right"), ("cn0", "C/N0 meas. / plan", 1.05, "right"),
-    ("first", "First seen", 0.75, "right"), ("planned", "Planned acq.", 0.8, "right"),
+    ("id", "Sat.", 0.7, "left"), ("signal", "Signal", 1.0, "left"),
+    ("source", "Doppler", 0.75, "left"), ("window", "Window searched (Hz)", 1.5, "right"),
+    ("measured", "Measured (Hz)", 1.5, "right"), ("inside", "Inside", 0.95, "center"),
+    ("residual", "Resid. med / max (Hz)", 1.15, "right"), ("cn0", "C/N0 meas. / plan", 1.0, "right"),
+    ("first", "First seen", 0.8, "right"), ("planned", "Planned acq.", 0.8, "right"),
 )
-SUMMARY_MM = 34.0
-LEGEND_MM = 12.0
+SUMMARY_MM = 33.0
+LEGEND_MM = 16.0
 
 
 def _span(lo, hi) -> str:
@@ -56,7 +56,7 @@ def rows(comparison) -> list[dict]:
         elif s.outside_samples == 0:
             inside = "yes"
         else:
-            inside = f"NO ({s.outside_samples}/{s.doppler_samples})"
+            inside = f"NO ({100 * s.inside_window_fraction:.0f} %)"
         res = ("—" if s.residual_hz_median is None
                else f"{s.residual_hz_median:.3f} / {s.residual_hz_max:.3f}")
         cn0 = ("—" if s.cn0_dbhz_median is None
@@ -75,19 +75,20 @@ def rows(comparison) -> list[dict]:
 def _summary_lines(ctx: Context, c) -> list[tuple[str, str]]:
     sc = ctx.plan.scenario
     osc = ("no Doppler in the record" if c.oscillator_offset_ppb is None else
-           f"{c.oscillator_offset_ppb:+.1f} ppb median "
-           f"({'inside' if c.offset_inside_fraction == 1.0 else 'OUTSIDE'} the planned "
-           f"{sc.receiver.oscillator_offset_ppb:g} ± {sc.receiver.oscillator_uncertainty_ppb:g} ppb)")
-    if c.common_offset:
-        hz = [o.hz for o in c.common_offset]
-        osc += f"; common offset {min(hz):+.2f} … {max(hz):+.2f} Hz at 1575.42 MHz"
+           f"{c.oscillator_offset_ppb:+.1f} ppb median: "
+           f"{'inside' if c.offset_inside_fraction == 1.0 else 'OUTSIDE'} the planned "
+           f"{sc.receiver.oscillator_offset_ppb:g} ± {sc.receiver.oscillator_uncertainty_ppb:g} ppb")
+    hz = [o.hz for o in c.common_offset]
+    common = "—" if not hz else f"{min(hz):+.2f} … {max(hz):+.2f} Hz at 1575.42 MHz"
     fit = ("not enough C/N0 samples" if c.cn0_fit is None else
-           f"cn0_zenith_dbhz = {c.cn0_fit.zenith_dbhz:.1f}, cn0_at_mask_dbhz = "
-           f"{c.cn0_fit.mask_dbhz:.1f} (planned {sc.signal.cn0_zenith_dbhz:g} / "
-           f"{sc.signal.cn0_at_mask_dbhz:g}; rms {c.cn0_fit.rms_db:.1f} dB)")
+           f"zenith {c.cn0_fit.zenith_dbhz:.1f}, mask {c.cn0_fit.mask_dbhz:.1f} dB-Hz "
+           f"(planned {sc.signal.cn0_zenith_dbhz:g} / {sc.signal.cn0_at_mask_dbhz:g}; "
+           f"rms {c.cn0_fit.rms_db:.1f} dB)")
+    n_out, n = len(c.outside()), sum(1 for s in c.satellites if s.doppler_samples)
     return [("Record", f"{Path(c.record_source).name} ({c.record_format})"),
-            ("Verdict", c.verdict.split(":", 1)[0]),
+            ("Verdict", c.verdict.split(":", 1)[0] + f": {n_out} of {n} satellites left their window"),
             ("Receiver oscillator", osc),
+            ("Common offset", common),
             ("C/N0 fit to put back", fit)]
 
 
@@ -116,14 +117,12 @@ def record_pages(ctx: Context, comparison) -> list[Page]:
         y = by
         if n == 0:
             y = _section_title(ctx, page, bx, y, bw, "What the receiver recorded")
-            label_w = m(34)
+            label_w = m(44)
             for label, value in _summary_lines(ctx, comparison):
-                page.text((bx, y, label_w, m(4.2)), label, F_BODY_BOLD, valign="top", role="record-label")
-                page.text((bx + label_w, y, bw - label_w, m(4.2)), value, F_BODY, valign="top",
+                page.text((bx, y, label_w, m(4.6)), label, F_BODY_BOLD, valign="top", role="record-label")
+                page.text((bx + label_w, y, bw - label_w, m(4.6)), value, F_BODY, valign="top",
                           min_pt=9.0, role="record-value")
-                y += m(4.6)
-            page.text((bx, y, bw, m(9)), comparison.verdict, F_SMALL, wrap=True, valign="top",
-                      colour=INK_SOFT, role="record-verdict")
+                y += m(5.0)
             y = by + m(SUMMARY_MM)
         page.rect((bx, y, bw, hh), fill=PANEL_DARK)
         for (_key, head, _w, align), x0, w in zip(COLUMNS, xs, widths):

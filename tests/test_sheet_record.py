@@ -18,6 +18,7 @@ import pytest
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 pypdf = pytest.importorskip("pypdf")
+pytest.importorskip("pytestqt")
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
 from test_records_compare import write_rinex3  # noqa: E402
@@ -26,10 +27,11 @@ from core.api import compare_record, load_record, load_scenario, make_plan  # no
 from core.files.demo import write_demo  # noqa: E402
 
 
-def test_record_page_in_the_sheets(tmp_path):
-    from planner_gui.sheets import ensure_gui_application, write_sheet_pdf
+def test_record_page_in_the_sheets(qapp, tmp_path):
+    """``qapp``: pytest-qt's QApplication (a bare QGuiApplication made here would make
+    later window tests crash)."""
+    from planner_gui.sheets import write_sheet_pdf
 
-    ensure_gui_application()
     plan = make_plan(load_scenario(write_demo(tmp_path)))
     without = write_sheet_pdf(plan, tmp_path / "plain.pdf", generated_unix_s=0.0)
     times = plan.times.start_unix_s + 5.0 * np.arange(13)
@@ -44,7 +46,7 @@ def test_record_page_in_the_sheets(tmp_path):
     assert "Record against the plan" in text
     assert f"{comparison.oscillator_offset_ppb:+.1f} ppb" in text
     assert "OUTSIDE" in text
-    assert f"cn0_zenith_dbhz = {comparison.cn0_fit.zenith_dbhz:.1f}" in text
+    assert f"zenith {comparison.cn0_fit.zenith_dbhz:.1f}, mask {comparison.cn0_fit.mask_dbhz:.1f}" in text
     for s in comparison.satellites:
         assert s.sat_id in text
     assert text.count("NO (") == len(comparison.outside()) > 0
