@@ -148,3 +148,13 @@ def test_data_far_ahead_of_the_plan_is_refused(orbit_data, capsys):
     tle = orbit_data / "tle/perylune_gps-ops_2020-04-01.txt"
     code, out, err = _cli(capsys, *_geometry_args("passes", tle, "2019-12-01T00:00:00Z"))
     assert code == 2 and "after the start" in err and "14 days ahead" in err
+
+
+@pytest.mark.parametrize("week, header_week, shown", [(8, 862, "differs from week 862"),
+                                                       (9999, 9999, "outside 0..8191")])
+def test_bad_weeks_end_the_command_with_one_line(tmp_path, capsys, week, header_week, shown):
+    p = tmp_path / "weeks.alm"
+    p.write_text(yuma(3, week=header_week) + yuma(7, week=week, header_week=header_week))
+    code, out, err = _cli(capsys, *_geometry_args("doppler", p, "2016-03-01T00:00:00Z"))
+    assert code == 2 and out == "" and err.count("\n") == 1
+    assert str(p) in err and "field 'week'" in err and "PRN-0" in err and shown in err
