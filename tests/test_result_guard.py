@@ -121,3 +121,28 @@ def test_real_data_passes_the_guard(orbit_data, rel, when):
     if gps:
         up = pred.valid[gps] & (pred.elevation_deg[gps] > 0)
         assert np.abs(pred.doppler_hz[gps][up]).max() < 4.9e3 * (1.0 + 0.01)
+
+
+def test_drive_events_drop_the_satellite(monkeypatch, tmp_path):
+    import core.plan.events as events
+    from core.files.demo import write_demo
+    from core.files.scenario import load_scenario
+
+    write_demo(tmp_path)
+    sc = load_scenario(tmp_path / "demo_drive_scenario.toml")
+    real = events.load_satellites
+
+    def corrupted(scenario, progress=None):
+        orbits, by_system, warnings = real(scenario, progress)
+        k = next(i for i, e in enumerate(orbits.entries) if e.almanac is not None)
+        bad = orbits.entries[k].sat_id
+        corrupted.bad = bad
+        return _corrupt(orbits, k, omega_dot_rad_s=1.570796327), by_system, warnings
+
+    monkeypatch.setattr(events, "load_satellites", corrupted)
+    dp = events.plan_drive(sc)
+    bad = corrupted.bad
+    assert any(w.startswith(f"{bad} (") and "satellite dropped" in w for w in dp.warnings)
+    assert dp.events
+    for ev in dp.events:
+        assert ev.plan.satellites and all(s.sat_id != bad for s in ev.plan.satellites)

@@ -53,6 +53,7 @@ from ..ground.timeutil import iso_z, time_grid
 from ..search.motion import MotionUncertainty, route_motion
 from ..search.windows import max_doppler_anywhere_hz, shift_summary
 from ..sky.predict import passes, predict
+from ..sky.result_guard import guard_prediction
 from ..sky.route import Route, RouteStates, SpeedStretch, read_route_file, time_route
 from ..sky.surroundings import (
     HorizonProfile,
@@ -450,6 +451,13 @@ def plan_drive(sc: Scenario, progress: ProgressFn | None = None, cancel: Callabl
         warnings.append("the drive has no events: add [[event]] entries or an outage stretch")
     orbits, by_system, sel_warn = load_satellites(sc)
     warnings += sel_warn
+    # Satellites whose geometry no orbit of their system allows are dropped once, from a
+    # coarse look over the whole window (core.sky.result_guard).
+    coarse = time_grid(sc.time.start, sc.time.end, max(sc.time.step_s, 600.0))
+    orbits, _, guard_warn = guard_prediction(
+        orbits, predict(orbits, Site(sc.site.lat_deg, sc.site.lon_deg, sc.site.height_m), coarse,
+                        signals=by_system))
+    warnings += guard_warn
     healthy = np.array([e.info.healthy for e in orbits.entries])
     horizon_s = (drive.spec.event_horizon_min if drive is not None else 15.0) * 60.0
     step = sc.time.step_s
