@@ -125,6 +125,7 @@ _PUBLIC: dict[str, str] = {
     "write_text_atomic": "core.files.atomic",
     "write_bytes_atomic": "core.files.atomic",
     "write_demo": "core.files.demo",
+    "file_problem": "core.ground.filecheck",
 }
 
 __all__ = sorted(_PUBLIC)
@@ -174,6 +175,7 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
         InputError,
         RecordFormatError,
     )
+    from core.ground.filecheck import file_problem  # noqa: F401
     from core.ground.geodesy import Site  # noqa: F401
     from core.ground.signals import SIGNALS, get_signal  # noqa: F401
     from core.ground.timeutil import TimeGrid, iso_z, parse_iso_utc, time_grid  # noqa: F401

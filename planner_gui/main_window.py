@@ -48,6 +48,7 @@ from core.api import (
     Scenario,
     ScenarioValidationError,
     clock_text,
+    file_problem,
     load_scenario_for_editing,
     save_scenario,
     utc_stamp,
@@ -810,9 +811,11 @@ class PlannerWindow(QMainWindow):
         self.panel.refresh_files()
         missing = sc.missing_orbit_files()
         if missing:
-            names = ", ".join(str(m) for m in missing)
-            self.panel.show_problems([("orbits.files", f"not found (moved or deleted?): {names}")])
-            self.show_problem(f"{missing[0]}: orbit file not found (moved or deleted?); the plan "
+            why = [file_problem(m) or "not found" for m in missing]
+            names = "; ".join(f"{m}: {w}" for m, w in zip(missing, why))
+            hint = " (moved or deleted?)" if why[0] == "not found" else ""
+            self.panel.show_problems([("orbits.files", names)])
+            self.show_problem(f"{missing[0]}: orbit file {why[0]}{hint}; the plan "
                               "on screen is from the last valid inputs.", kind="error")
             return
         if self._computing and sc == getattr(self, "_requested", None):

@@ -17,6 +17,7 @@ import tomli_w
 
 from ..ground.bounded_read import TEXT_FILE_LIMIT_BYTES, read_bytes_bounded
 from ..ground.errors import ScenarioError
+from ..ground.filecheck import file_problem
 from ..plan.spec import Scenario, ScenarioValidationError, _build, _Locator, salvage_scenario
 from .atomic import write_text_atomic
 
@@ -51,13 +52,15 @@ def load_scenario(path: str | os.PathLike[str], *, check_files: bool = True) -> 
         loc = _Locator(text)
         problems = []
         for f, resolved in zip(sc.orbits.files, sc.resolved_orbit_files()):
-            if not resolved.is_file():
-                problems.append(ScenarioError(f"orbit file '{f}' not found (looked for {resolved})",
+            why = file_problem(resolved)
+            if why is not None:
+                problems.append(ScenarioError(f"orbit file '{f}' {why} (looked for {resolved})",
                                               file=file, line=loc.line_of("orbits.files"),
                                               field="orbits.files"))
         m_path = sc.resolved_mapping()
-        if m_path is not None and not m_path.is_file():
-            problems.append(ScenarioError(f"mapping file '{sc.orbits.mapping}' not found "
+        why = None if m_path is None else file_problem(m_path)
+        if why is not None:
+            problems.append(ScenarioError(f"mapping file '{sc.orbits.mapping}' {why} "
                                           f"(looked for {m_path})", file=file,
                                           line=loc.line_of("orbits.mapping"), field="orbits.mapping"))
         if problems:

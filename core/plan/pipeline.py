@@ -36,6 +36,7 @@ import numpy as np
 
 from ..ground.display import iso_utc
 from ..ground.errors import Cancelled, ComputationError, InputError
+from ..ground.filecheck import file_problem
 from ..ground.geodesy import Site
 from ..ground.signals import SIGNALS
 from ..ground.timeutil import TimeGrid, iso_z, time_grid
@@ -142,7 +143,9 @@ def load_satellites(sc: Scenario, progress: ProgressFn | None = None
 
     missing = sc.missing_orbit_files()
     if missing:
-        raise InputError("orbit file not found (moved or deleted?)", file=str(missing[0]))
+        why = file_problem(missing[0]) or "not found"
+        hint = " (moved or deleted?)" if why == "not found" else ""
+        raise InputError(f"orbit file {why}{hint}", file=str(missing[0]))
     if not sc.orbits.files:
         raise InputError("the scenario names no orbit file", field="orbits.files")
     _report(progress, 0.02, "reading orbit files")

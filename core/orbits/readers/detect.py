@@ -110,7 +110,18 @@ def load_orbits(path: str | Path, reference_time: datetime | float | None = None
     :class:`InputError` (a bad argument).
     """
     table = as_mapping(mapping)
-    return parse_orbits(read_text(path), str(path), reference_time, table, strict=strict)
+    out = parse_orbits(read_text(path), str(path), reference_time, table, strict=strict)
+    out.warnings.extend(_empty_mapping_warning(mapping, table))
+    return out
+
+
+def _empty_mapping_warning(mapping: MappingArg, table) -> list[str]:
+    """A mapping FILE that maps nothing (empty, or only comments and a header) is usable
+    but almost certainly not what was meant: say so."""
+    if isinstance(mapping, str | Path) and table is not None and not table:
+        return [f"{mapping}: the mapping file holds no entries (empty, or only comments); "
+                "no catalogue number is mapped and GLONASS channels k stay unknown"]
+    return []
 
 
 def load_orbit_files(paths: Iterable[str | Path],
@@ -125,6 +136,7 @@ def load_orbit_files(paths: Iterable[str | Path],
     sets = [parse_orbits(read_text(p), str(p), reference_unix_s, table, strict=strict,
                          k_warning=False) for p in path_list]
     merged = OrbitSet().merge(*sets)
+    merged.warnings.extend(_empty_mapping_warning(mapping, table))
     kw = glonass_k_warning(merged.entries)
     if kw:
         merged.warnings.append(kw)
