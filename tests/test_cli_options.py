@@ -160,3 +160,21 @@ def test_bins_errors_name_the_option_not_the_parameter(capsys, argv, option):
     assert code == 2 and option in err
     for internal in ("coherent_s", "low_hz", "high_hz", "span_hz", "max_loss_db"):
         assert internal not in err
+
+
+def test_a_code_step_too_wide_for_boc_names_the_scenario_key(capsys, demo_dir, tmp_path):
+    # BOC(1,1) main peak half-width 1/3 chip (core.search.codephase): a 0.8 chip step puts
+    # half a step beyond it. The message names the key the user typed, not the core's
+    # parameter ('step_chips').
+    import os
+
+    text = (demo_dir / "demo_scenario.toml").read_text()
+    assert "code_step_chips = 0.5" in text
+    for n in os.listdir(demo_dir):
+        (tmp_path / n).write_bytes((demo_dir / n).read_bytes())
+    p = tmp_path / "demo_scenario.toml"
+    p.write_text(text.replace("code_step_chips = 0.5", "code_step_chips = 0.8"))
+    assert main(["plan", str(p)]) == 2
+    err = capsys.readouterr().err
+    assert "field 'search.code_step_chips'" in err and "GAL-E1" in err
+    assert "field 'step_chips'" not in err

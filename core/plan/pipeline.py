@@ -491,7 +491,10 @@ def integration(sc: Scenario, signal_ids: list[str]) -> Integration:
             raise InputError("; ".join(chk.errors), field="search.coherent_ms")
         warnings.extend(f"{sid}: {w}" for w in chk.warnings)
         design[sid] = _design_bins(coh_ms / 1000.0, sc.search.max_frequency_loss_db)
-        code_loss[sid] = codephase.code_step_loss(step, codephase.correlation_shape_for(sig))
+        try:
+            code_loss[sid] = codephase.code_step_loss(step, codephase.correlation_shape_for(sig))
+        except InputError as err:   # name the scenario key, not the core's parameter
+            raise InputError(f"{sid}: {err.message}", field="search.code_step_chips") from None
         rows = [i for i, x in enumerate(signal_ids) if x == sid]
         tc_s[rows] = coh_ms / 1000.0
         n_nc[rows] = nc
