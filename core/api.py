@@ -26,6 +26,7 @@ _PUBLIC: dict[str, str] = {
     "time_grid": "core.ground.timeutil",
     "parse_iso_utc": "core.ground.timeutil",
     "iso_z": "core.ground.timeutil",
+    "to_unix_s": "core.ground.timeutil",
     "clock_text": "core.ground.display",
     "utc_stamp": "core.ground.display",
     "iso_utc": "core.ground.display",
@@ -56,6 +57,11 @@ _PUBLIC: dict[str, str] = {
     "Pass": "core.sky.predict",
     "predict": "core.sky.predict",
     "passes": "core.sky.predict",
+    "check_grid_size": "core.sky.predict",
+    "DOPPLER_MAX_SATELLITE_STEPS": "core.ground.constants",
+    "PASSES_MAX_SATELLITE_STEPS": "core.ground.constants",
+    "PASSES_MAX_WINDOW_DAYS": "core.ground.constants",
+    "PLAN_MAX_SATELLITE_STEPS": "core.ground.constants",
     "Route": "core.sky.route",
     "RouteFile": "core.sky.route",
     "read_route_file": "core.sky.route",
@@ -155,6 +161,12 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
         save_scenario,
         scenario_to_toml,
     )
+    from core.ground.constants import (  # noqa: F401
+        DOPPLER_MAX_SATELLITE_STEPS,
+        PASSES_MAX_SATELLITE_STEPS,
+        PASSES_MAX_WINDOW_DAYS,
+        PLAN_MAX_SATELLITE_STEPS,
+    )
     from core.ground.display import (  # noqa: F401
         STATE_MEANING,
         clock_text,
@@ -178,7 +190,7 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     from core.ground.filecheck import file_problem  # noqa: F401
     from core.ground.geodesy import Site  # noqa: F401
     from core.ground.signals import SIGNALS, get_signal  # noqa: F401
-    from core.ground.timeutil import TimeGrid, iso_z, parse_iso_utc, time_grid  # noqa: F401
+    from core.ground.timeutil import TimeGrid, iso_z, parse_iso_utc, time_grid, to_unix_s  # noqa: F401
     from core.orbits.broadcast import RecordUse, orbit_data_age_s, records_in_use  # noqa: F401
     from core.orbits.data_age import check_data_age  # noqa: F401
     from core.orbits.orbit_set import OrbitSet  # noqa: F401
@@ -221,6 +233,6 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     from core.search.detection import cn0_at_elevation_dbhz  # noqa: F401
     from core.search.motion import MotionUncertainty, RouteMotion, route_motion  # noqa: F401
     from core.search.windows import Uncertainty, doppler_windows  # noqa: F401
-    from core.sky.predict import Pass, Prediction, passes, predict  # noqa: F401
+    from core.sky.predict import Pass, Prediction, check_grid_size, passes, predict  # noqa: F401
     from core.sky.result_guard import guard_prediction  # noqa: F401
     from core.sky.route import Route, RouteFile, read_route_file, route_file_summary, time_route  # noqa: F401

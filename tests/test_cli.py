@@ -223,3 +223,38 @@ def test_nan_step_gives_one_line(capsys):
         code, _, err = run_cli(capsys, cmd, "--orbits", f, "--site", "47,8,0", "--start",
                                "2020-04-01T06:00:00Z", "--end", "2020-04-01T07:00:00Z", "--step", "nan")
         assert code == 2 and len(err.strip().splitlines()) == 1 and "step" in err, (cmd, err)
+
+
+DEMO_YUMA = str(REPO / "sample_almanacs" / "demo_gps_yuma.txt")
+
+
+@pytest.mark.parametrize("argv, field, words", [
+    # passes over 100 years: refused up front, naming the option and the limit
+    (["passes", "--start", "2027-05-18T00:00:00Z", "--end", "2127-05-18T00:00:00Z"], "--end",
+     ["366 days"]),
+    # a day of Doppler at 1 s for every GPS satellite: above the listing's limit
+    (["doppler", "--start", "2027-05-18T00:00:00Z", "--end", "2027-05-19T00:00:00Z", "--step", "1"],
+     "--step", ["400,000", "at least 6 s"]),
+])
+def test_resource_limits_refuse_up_front(capsys, argv, field, words):
+    import time
+
+    t0 = time.perf_counter()
+    code, out, err = run_cli(capsys, *argv, "--orbits", DEMO_YUMA, "--site", "49.6,10.1,300")
+    assert code == 2 and not out and len(err.strip().splitlines()) == 1
+    assert field in err and all(w in err for w in words), err
+    assert time.perf_counter() - t0 < 10.0
+
+
+def test_plan_above_the_size_limit_is_refused_naming_the_key(tmp_path, capsys):
+    """A 7-day plan at 1 s (96 satellites x 604,800 steps) is refused before any array is
+    made, with the key, the limit and a step that fits."""
+    from core.files.demo import write_demo
+
+    path = write_demo(tmp_path)
+    text = path.read_text().replace('end = "2027-05-18T06:00:00Z"', 'end = "2027-05-25T04:00:00Z"')
+    text = text.replace("step_s = 30", "step_s = 1")
+    path.write_text(text)
+    code, out, err = run_cli(capsys, "plan", str(path))
+    assert code == 2 and len(err.strip().splitlines()) == 1
+    assert "time.step_s" in err and "700,000" in err and "at least" in err, err

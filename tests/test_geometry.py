@@ -313,3 +313,21 @@ def test_predict_in_blocks_equals_one_block(monkeypatch):
         a, b = getattr(one, name), getattr(many, name)
         assert np.allclose(a, b, rtol=1e-12, atol=1e-9), name
     assert np.array_equal(one.valid, many.valid)
+
+
+@requires_orbit_data
+def test_passes_in_chunks_equal_one_chunk(monkeypatch):
+    """passes() predicts long windows in chunks sharing their end samples; tiny chunks must
+    find the same passes as one chunk [calc: the same grid, crossings between samples]."""
+    import core.sky.predict as predict_mod
+    from core.orbits.readers import load_orbit_files
+
+    orbits = load_orbit_files([ORBIT_DATA / "tle" / n for n in TLE_SETS[:2]])
+    start, end = datetime(2020, 4, 1, tzinfo=UTC), datetime(2020, 4, 2, 7, tzinfo=UTC)
+    monkeypatch.setattr(predict_mod, "PASSES_CHUNK_SAMPLES", 10 ** 9)
+    one = passes(orbits, SITES[1], start, end, mask_deg=10.0, step_s=60.0)
+    monkeypatch.setattr(predict_mod, "PASSES_CHUNK_SAMPLES", 57 * 40)
+    many = passes(orbits, SITES[1], start, end, mask_deg=10.0, step_s=60.0)
+    assert len(one) == len(many) > 20
+    for p, q in zip(one, many):
+        assert p.to_dict() == q.to_dict()

@@ -98,3 +98,18 @@ GLONASS_MU_M3_S2 = 3.986004418e14
 GLONASS_EARTH_RADIUS_M = 6_378_136.0
 GLONASS_J2 = 1.08262575e-3
 GLONASS_EARTH_ROTATION_RAD_S = 7.292115e-5
+
+# --- Resource limits ----------------------------------------------------------------------
+# Every command keeps its memory within about 1 GB whatever the window [calc: peak resident
+# set measured with resource.getrusage on the demo, benchmarks/bench_predict.py and
+# bench_plan.py]: predict works in blocks (57 bytes a satellite-sample of results); the
+# plan holds about 580 bytes a satellite-step and its JSON about 700 more, so a plan is
+# refused above PLAN_MAX_SATELLITE_STEPS (96 satellites: 24 h at 12 s, 2 h at 1 s); the
+# doppler listing holds about 2.1 kB a listed sample until it is written (JSON, every
+# elevation: 4.1 GB for 1.9 M samples), so it is refused above DOPPLER_MAX_SATELLITE_STEPS
+# (24 satellites: 4.6 h at 1 s, a day at 5 s); passes works in blocks and keeps only the
+# passes, so it is limited by window length and by computing time.
+PLAN_MAX_SATELLITE_STEPS = 700_000
+DOPPLER_MAX_SATELLITE_STEPS = 400_000
+PASSES_MAX_WINDOW_DAYS = 366.0
+PASSES_MAX_SATELLITE_STEPS = 100_000_000

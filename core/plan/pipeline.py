@@ -34,6 +34,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from ..ground.constants import PLAN_MAX_SATELLITE_STEPS
 from ..ground.display import iso_utc
 from ..ground.errors import Cancelled, ComputationError, InputError
 from ..ground.filecheck import file_problem
@@ -62,7 +63,7 @@ from ..search.windows import (
     shift_summary,
     windows_after_first_acquisition,
 )
-from ..sky.predict import Pass, Prediction, passes, predict
+from ..sky.predict import Pass, Prediction, check_grid_size, passes, predict
 from . import timeline as tl
 from .spec import Scenario, SearchSpec
 
@@ -167,6 +168,7 @@ def prepare_geometry(sc: Scenario, progress: ProgressFn | None = None,
     grid = time_grid(sc.time.start, sc.time.end, sc.time.step_s)
     if len(grid) < 2:
         raise InputError("the test window must hold at least two time steps", field="time.step_s")
+    check_plan_size(len(orbits), sc.time.start_unix_s, sc.time.end_unix_s, sc.time.step_s)
     _check_cancel(cancel)
     _report(progress, 0.1, f"propagating {len(orbits)} satellites over {len(grid)} times")
     pred = predict(orbits, site, grid, signals=by_system)
@@ -193,6 +195,13 @@ def prepare_geometry(sc: Scenario, progress: ProgressFn | None = None,
     return PreparedGeometry(geometry_key(sc), orbits, site, grid, pred, shifted, found,
                             pred.signal_ids, visible, warnings + pred.warnings,
                             _time.perf_counter() - t0)
+
+
+def check_plan_size(n_satellites: int, start_unix_s: float, end_unix_s: float, step_s: float) -> None:
+    """Refuse, before any array is made, a plan above PLAN_MAX_SATELLITE_STEPS (its memory
+    grows with satellites x time steps; the limit keeps it within about 1 GB)."""
+    check_grid_size(n_satellites, end_unix_s - start_unix_s, step_s, PLAN_MAX_SATELLITE_STEPS,
+                    what="plan's", step_option="a [time] step_s", field="time.step_s")
 
 
 def _report(progress: ProgressFn | None, fraction: float, text: str) -> None:

@@ -293,6 +293,29 @@ def blocks(n_satellites: int, unix_s: np.ndarray) -> list[tuple[int, int]]:
     return out
 
 
+def check_grid_size(n_satellites: int, span_s: float, step_s: float, limit: int, *,
+                    what: str, step_option: str, field: str, memory: str = "about 1 GB") -> int:
+    """Number of grid times of a window, or InputError when satellites x times exceeds
+    ``limit`` (checked before any array is made; names the option the user typed and the
+    step that would fit)."""
+    if not (math.isfinite(step_s) and step_s > 0):
+        raise InputError(f"{step_option} {step_s:g} must be a positive number of seconds",
+                         field=field)
+    n_t = math.floor(span_s / step_s + 1e-9) + 2 if span_s / step_s < 1e15 else math.inf
+    total = n_satellites * n_t
+    if total <= limit:
+        return int(n_t)
+    steps = max(limit // max(n_satellites, 1) - 1, 1)
+    min_step = math.ceil(span_s / steps)
+    max_hours = steps * step_s / 3600.0
+    shown = f"{n_t - 1:,}" if math.isfinite(n_t) else f"{span_s / step_s:.3g}"
+    raise InputError(
+        f"{n_satellites} satellites x {shown} time steps is above the {what} limit of "
+        f"{limit:,} satellite-steps ({memory} of memory): use {step_option} of at least "
+        f"{min_step:g} s, or a window of at most {max_hours:.3g} h at {step_s:g} s",
+        field=field)
+
+
 def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] | np.ndarray,
             signals: SignalChoice = None, *, keep_states: bool = False) -> Prediction:
     """Azimuth, elevation, range, range rate, Doppler and Doppler rate of every satellite
@@ -393,6 +416,37 @@ def _hermite_roots(t0, t1, f0, f1, d0, d1, level=0.0, derivative=False, iteratio
     return t0 + x * h, _hermite_value(x, h, f0, f1, d0, d1)
 
 
+# Grid times per chunk of passes() when it predicts for itself (about 2**20
+# satellite-samples): memory stays bounded however long the window.
+PASSES_CHUNK_SAMPLES = 1 << 20
+
+
+def _chunk_events(pred: Prediction, mask_deg: float):
+    """Crossings of the mask and culminations on one prediction's grid (see passes):
+    (sat, time, rising, azimuth) per crossing and (sat, time, elevation) per culmination."""
+    u = pred.times.unix_s
+    el = np.where(pred.valid, pred.elevation_deg, -90.0)
+    above = el >= mask_deg
+    r_ok = np.where(pred.valid, pred.elevation_rate_deg_s, 0.0)
+    # Mask crossings between grid points (both ends propagated).
+    both = pred.valid[:, 1:] & pred.valid[:, :-1]
+    s_idx, t_idx = np.nonzero((above[:, 1:] != above[:, :-1]) & both)
+    cross, cross_el = _hermite_roots(u[t_idx], u[t_idx + 1], el[s_idx, t_idx],
+                                     el[s_idx, t_idx + 1], r_ok[s_idx, t_idx],
+                                     r_ok[s_idx, t_idx + 1], level=mask_deg)
+    rising = ~above[s_idx, t_idx]
+    # Azimuth at the crossing: linear between the grid points, the short way round.
+    f0, f1 = pred.azimuth_deg[s_idx, t_idx], pred.azimuth_deg[s_idx, t_idx + 1]
+    x = (cross - u[t_idx]) / (u[t_idx + 1] - u[t_idx])
+    f1 = f0 + ((f1 - f0 + 180.0) % 360.0 - 180.0)
+    cross_az = (f0 + x * (f1 - f0)) % 360.0
+    # Culminations: elevation rate changes from + to -.
+    cs, ct = np.nonzero((r_ok[:, :-1] > 0) & (r_ok[:, 1:] <= 0) & both)
+    culm, culm_el = _hermite_roots(u[ct], u[ct + 1], el[cs, ct], el[cs, ct + 1], r_ok[cs, ct],
+                                   r_ok[cs, ct + 1], derivative=True)
+    return (s_idx, cross, rising, cross_az, cross_el), (cs, culm, culm_el), (el, above)
+
+
 def passes(orbits: OrbitSet, site: Site, start: datetime | float, end: datetime | float,
            mask_deg: float = 10.0, step_s: float = 60.0,
            prediction: Prediction | None = None) -> list[Pass]:
@@ -402,7 +456,9 @@ def passes(orbits: OrbitSet, site: Site, start: datetime | float, end: datetime 
     Hermite interpolant of the elevation and its analytic rate between grid points
     (elevation is smooth over minutes: the refined times agree with the true model to
     far better than 1 s at 60 s steps, see tests/test_geometry.py). A pass shorter than
-    the step can be missed; at GNSS altitudes passes last hours.
+    the step can be missed; at GNSS altitudes passes last hours. Without ``prediction``
+    the grid is predicted in chunks of about PASSES_CHUNK_SAMPLES satellite-samples
+    (sharing their end samples), so memory does not grow with the window.
     """
     a = start if isinstance(start, float | int) else to_unix_s(start)
     b = end if isinstance(end, float | int) else to_unix_s(end)
@@ -410,64 +466,62 @@ def passes(orbits: OrbitSet, site: Site, start: datetime | float, end: datetime 
         raise InputError("end must be after start", field="end")
     if not (math.isfinite(step_s) and step_s > 0):
         raise InputError(f"step {step_s} s must be a positive number", field="step_s")
-    if prediction is None:
+    if prediction is not None:
+        ids, n_s = prediction.ids, prediction.n_satellites
+        chunks = iter([prediction])
+    else:
         n = max(2, int(np.ceil((b - a) / step_s)) + 1)
-        prediction = predict(orbits, site, np.linspace(a, b, n))
-    u = prediction.times.unix_s
-    el = np.where(prediction.valid, prediction.elevation_deg, -90.0)
-    rate = prediction.elevation_rate_deg_s
-    above = el >= mask_deg
+        ids, n_s = orbits.ids, len(orbits.entries)
+        per = max(2, PASSES_CHUNK_SAMPLES // max(n_s, 1))
+        h = (b - a) / (n - 1)
 
-    r_ok = np.where(prediction.valid, rate, 0.0)
-    # Mask crossings between grid points (both ends propagated).
-    both = prediction.valid[:, 1:] & prediction.valid[:, :-1]
-    s_idx, t_idx = np.nonzero((above[:, 1:] != above[:, :-1]) & both)
-    cross, _ = _hermite_roots(u[t_idx], u[t_idx + 1], el[s_idx, t_idx], el[s_idx, t_idx + 1],
-                              r_ok[s_idx, t_idx], r_ok[s_idx, t_idx + 1], level=mask_deg)
-    rising = ~above[s_idx, t_idx]
-    # Culminations: elevation rate changes from + to -.
-    cs, ct = np.nonzero((r_ok[:, :-1] > 0) & (r_ok[:, 1:] <= 0) & both)
-    culm, culm_el = _hermite_roots(u[ct], u[ct + 1], el[cs, ct], el[cs, ct + 1], r_ok[cs, ct],
-                                   r_ok[cs, ct + 1], derivative=True)
+        def _chunks():
+            for i0 in range(0, n - 1, per - 1):
+                i1 = min(i0 + per - 1, n - 1)
+                idx = np.arange(i0, i1 + 1)
+                u = np.where(idx == n - 1, b, a + idx * h)
+                yield predict(orbits, site, u)
+        chunks = _chunks()
+
+    crossings, culminations = [], []
+    u_first = u_last = None
+    for pred in chunks:
+        cross_, culm_, (el, above) = _chunk_events(pred, mask_deg)
+        crossings.append(cross_)
+        culminations.append(culm_)
+        if u_first is None:
+            u_first = pred.times.unix_s[0]
+            above0 = above[:, 0].copy()
+            el0, az0 = el[:, 0].copy(), pred.azimuth_deg[:, 0].copy()
+        u_last = pred.times.unix_s[-1]
+        el1, az1 = el[:, -1].copy(), pred.azimuth_deg[:, -1].copy()
+    s_idx, cross, rising, cross_az, cross_el = (np.concatenate(x) for x in zip(*crossings))
+    cs, culm, culm_el = (np.concatenate(x) for x in zip(*culminations))
 
     out: list[Pass] = []
-    for s in range(prediction.n_satellites):
-        events = sorted([(t, "rise" if r else "set") for t, r, ss in zip(cross, rising, s_idx) if ss == s])
+    order = np.argsort(s_idx, kind="stable")
+    starts = np.searchsorted(s_idx[order], np.arange(n_s + 1))
+    for s in range(n_s):
+        mine = order[starts[s]:starts[s + 1]]
+        events = sorted((float(cross[i]), bool(rising[i]), float(cross_az[i]), float(cross_el[i]))
+                        for i in mine)
         intervals = []
-        cur = u[0] if above[s, 0] else None
-        for t, kind in events:
-            if kind == "rise":
-                cur = t
+        cur = (float(u_first), float(el0[s]), float(az0[s])) if above0[s] else None
+        for t, is_rise, az, e in events:
+            if is_rise:
+                cur = (t, e, az)
             elif cur is not None:
-                intervals.append((cur, t))
+                intervals.append((cur, (t, e, az)))
                 cur = None
         if cur is not None:
-            intervals.append((cur, u[-1]))
-        for r0, s0 in intervals:
+            intervals.append((cur, (float(u_last), float(el1[s]), float(az1[s]))))
+        for (r0, r_el, r_az), (s0, s_el, s_az) in intervals:
             inside = (cs == s) & (culm >= r0) & (culm <= s0)
             cand_t = list(culm[inside]) + [r0, s0]
-            cand_el = list(culm_el[inside]) + [_el_at(u, el[s], r_ok[s], r0),
-                                               _el_at(u, el[s], r_ok[s], s0)]
+            cand_el = list(culm_el[inside]) + [r_el, s_el]
             k = int(np.nanargmax(cand_el))
-            az_pair = [_el_at(u, prediction.azimuth_deg[s], None, t, angle=True) for t in (r0, s0)]
-            out.append(Pass(prediction.ids[s], float(r0), float(cand_t[k]), float(s0),
-                            float(cand_el[k]), float(az_pair[0]), float(az_pair[1]),
-                            rises_in_window=bool(r0 > u[0]), sets_in_window=bool(s0 < u[-1])))
+            out.append(Pass(ids[s], float(r0), float(cand_t[k]), float(s0),
+                            float(cand_el[k]), float(r_az), float(s_az),
+                            rises_in_window=bool(r0 > u_first), sets_in_window=bool(s0 < u_last)))
     out.sort(key=lambda p: (p.rise_unix_s, p.sat_id))
     return out
-
-
-def _el_at(u, values, rates, t, angle=False):
-    """Value of a grid series at time t: Hermite with rates, else linear (angles unwrapped)."""
-    j = int(np.clip(np.searchsorted(u, t) - 1, 0, u.size - 2))
-    h = u[j + 1] - u[j]
-    x = (t - u[j]) / h
-    f0, f1 = float(values[j]), float(values[j + 1])
-    if angle:
-        f1 = f0 + ((f1 - f0 + 180.0) % 360.0 - 180.0)
-        return (f0 + x * (f1 - f0)) % 360.0
-    if rates is None:
-        return f0 + x * (f1 - f0)
-    d0, d1 = float(rates[j]), float(rates[j + 1])
-    return ((2 * x**3 - 3 * x**2 + 1) * f0 + (x**3 - 2 * x**2 + x) * h * d0
-            + (-2 * x**3 + 3 * x**2) * f1 + (x**3 - x**2) * h * d1)

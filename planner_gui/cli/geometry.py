@@ -42,13 +42,31 @@ def _files_json(orbits, start) -> list[dict]:
 
 
 def cmd_passes(args) -> int:
-    from core.api import guard_prediction, passes, predict, time_grid
+    from core.api import (
+        PASSES_MAX_SATELLITE_STEPS,
+        PASSES_MAX_WINDOW_DAYS,
+        check_grid_size,
+        guard_prediction,
+        passes,
+        predict,
+        time_grid,
+        to_unix_s,
+    )
 
     orbits, site, start, end = _load(args)
-    grid = time_grid(start, end, args.step)
-    orbits, pred, _ = guard_prediction(orbits, predict(orbits, site, grid))
-    found = passes(orbits, site, start, end, mask_deg=args.mask, step_s=args.step,
-                   prediction=pred)
+    span_s = to_unix_s(end) - to_unix_s(start)
+    if span_s > PASSES_MAX_WINDOW_DAYS * 86400.0:
+        raise InputError(f"the window from --start to --end is {span_s / 86400.0:,.0f} days; "
+                         f"passes covers at most {PASSES_MAX_WINDOW_DAYS:g} days at once "
+                         "(split it into several runs)", field="--end")
+    check_grid_size(len(orbits), span_s, args.step, PASSES_MAX_SATELLITE_STEPS,
+                    what="passes", step_option="a --step", field="--step",
+                    memory="bounded, but minutes of computing")
+    # The plausibility guard looks at the window on at most 2000 times (memory bounded);
+    # passes() then predicts the kept satellites at --step in chunks.
+    coarse = time_grid(start, end, max(args.step, span_s / 2000.0))
+    orbits, _, _ = guard_prediction(orbits, predict(orbits, site, coarse))
+    found = passes(orbits, site, start, end, mask_deg=args.mask, step_s=args.step)
     rows = [p.to_dict() for p in found]
     if args.format == "json":
         emit(json.dumps({"site": [site.lat_deg, site.lon_deg, site.height_m],
@@ -67,7 +85,16 @@ def cmd_passes(args) -> int:
 def cmd_doppler(args) -> int:
     import numpy as np
 
-    from core.api import get_signal, guard_prediction, iso_z, predict, time_grid
+    from core.api import (
+        DOPPLER_MAX_SATELLITE_STEPS,
+        check_grid_size,
+        get_signal,
+        guard_prediction,
+        iso_z,
+        predict,
+        time_grid,
+        to_unix_s,
+    )
 
     orbits, site, start, end = _load(args)
     if args.signal:
@@ -77,23 +104,26 @@ def cmd_doppler(args) -> int:
             raise InputError(f"no satellite of the {sig.description} system in the orbit files",
                              field="--signal")
         orbits = orbits.select(keep)
+    check_grid_size(len(orbits), to_unix_s(end) - to_unix_s(start), args.step,
+                    DOPPLER_MAX_SATELLITE_STEPS, what="doppler table's", step_option="a --step",
+                    field="--step")
     grid = time_grid(start, end, args.step)
     orbits, pred, _ = guard_prediction(orbits, predict(orbits, site, grid, signals=args.signal))
     iso = grid.iso()
+    range_rate = pred.range_rate_m_s          # derived from the Doppler: computed once
     sats = []
     for k, sid in enumerate(pred.ids):
         above = True if args.all_elevations else pred.elevation_deg[k] >= args.mask
         show = np.nonzero(pred.valid[k] & above)[0]
         if not show.size:
             continue
-        samples = [{"time": iso[j],
-                    "azimuth_deg": round(float(pred.azimuth_deg[k, j]), 4),
-                    "elevation_deg": round(float(pred.elevation_deg[k, j]), 4),
-                    "range_m": round(float(pred.range_m[k, j]), 3),
-                    "range_rate_m_s": round(float(pred.range_rate_m_s[k, j]), 4),
-                    "doppler_hz": round(float(pred.doppler_hz[k, j]), 3),
-                    "doppler_rate_hz_s": round(float(pred.doppler_rate_hz_s[k, j]), 5)}
-                   for j in show]
+        cols = [arr[k, show].tolist() for arr in (pred.azimuth_deg, pred.elevation_deg,
+                                                  pred.range_m, range_rate, pred.doppler_hz,
+                                                  pred.doppler_rate_hz_s)]
+        samples = [{"time": iso[j], "azimuth_deg": round(az, 4), "elevation_deg": round(el, 4),
+                    "range_m": round(rng, 3), "range_rate_m_s": round(rr, 4),
+                    "doppler_hz": round(dop, 3), "doppler_rate_hz_s": round(rate, 5)}
+                   for j, az, el, rng, rr, dop, rate in zip(show.tolist(), *cols)]
         info = orbits.entries[k].info
         sats.append({"id": sid, "signal": pred.signal_ids[k],
                      "carrier_hz": float(pred.carrier_hz[k]), "healthy": info.healthy,
