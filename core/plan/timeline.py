@@ -537,17 +537,15 @@ def _cached(inp: TimelineInputs, name: str, make: Callable[[], Any]) -> Any:
 
 def _rank_order(inp: TimelineInputs, k: int) -> list[int]:
     """All satellites in search order at grid index k: highest priority first, ties by
-    index, non-finite priorities last. The same for every run, so cached per k."""
+    index, non-finite priorities last. The same for every run: one stable argsort of the
+    whole grid, kept on the inputs, and each column's list cached."""
     orders = _cached(inp, "rank_orders", dict)
     order = orders.get(k)
     if order is None:
-        n_t = inp.times_unix_s.size
-        keys = []
-        for s in range(len(inp.sat_ids)):
-            pr = _lookup(inp.priority, s, k, n_t)
-            keys.append((-pr if math.isfinite(pr) else math.inf, s))
-        keys.sort()
-        order = orders[k] = [s for _, s in keys]
+        def make():
+            pr = _with_next(inp.priority, inp.visible.shape)
+            return np.argsort(np.where(np.isfinite(pr), -pr, np.inf), axis=0, kind="stable")
+        order = orders[k] = _cached(inp, "rank_argsort", make)[:, k].tolist()
     return order
 
 
@@ -690,11 +688,13 @@ def _to_timeline(inp: TimelineInputs, run: _Run) -> Timeline:
 
 
 def _expected_duration(inp: TimelineInputs) -> DurationFn:
-    n_t = inp.times_unix_s.size
-    first, later = inp.expected_search_first_s, inp.expected_search_after_s
+    shape = inp.visible.shape
+    first, later = _cached(inp, "expected_with_next", lambda: (
+        _with_next(inp.expected_search_first_s, shape),
+        _with_next(inp.expected_search_after_s, shape)))
 
     def duration(s: int, k: int, after: bool) -> float | None:
-        d = _lookup(later if after else first, s, k, n_t)
+        d = float((later if after else first)[s, k])
         return d if math.isfinite(d) else None
 
     return duration
