@@ -46,6 +46,7 @@ def register(sub) -> None:
     sp = sub.add_parser("route", help="summarise a route file (GPX or CSV): length, duration, segments")
     sp.add_argument("route_file", metavar="ROUTE_FILE", help="GPX 1.0/1.1 or CSV (time_utc, lat_deg, lon_deg, height_m)")
     sp.add_argument("--speed-kmh", type=float, metavar="V",
-                    help="planned speed: the duration at this speed (instead of the recorded times)")
+                    help="planned speed in km/h: the duration at this speed instead of the recorded "
+                         "times (default: not set, the file's own times)")
     output_options(sp)
     sp.set_defaults(func=cmd_route)
