@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 import os
+import signal
 import sys
 
 from ._common import EXIT_BAD_INPUT, EXIT_OK, emit, format_rows, output_options, print_warnings
@@ -119,18 +120,8 @@ def _shown(rows: list[dict]) -> list[dict]:
     return [{k: cell(k, v) for k, v in r.items()} for r in rows]
 
 
-def cmd_sweep(args) -> int:
-    from core.api import (
-        SWEEP_ROW_COLUMNS,
-        best_scenario,
-        load_scenario,
-        run_sweep,
-        save_scenario,
-        short_key,
-        sweep_rows,
-        sweep_spec,
-        sweep_to_json,
-    )
+def _compute(args):
+    from core.api import load_scenario, run_sweep, sweep_spec
 
     workers = _workers(args)
     scenario = load_scenario(args.scenario)
@@ -140,24 +131,44 @@ def cmd_sweep(args) -> int:
     try:
         result = run_sweep(scenario, spec, workers=workers, scheduler=args.scheduler,
                            progress=update)
-    except KeyboardInterrupt:
+    finally:
         close()
+    return scenario, spec, result
+
+
+def cmd_sweep(args) -> int:
+    from core.api import (
+        SWEEP_ROW_COLUMNS,
+        best_scenario,
+        save_scenario,
+        short_key,
+        sweep_rows,
+        sweep_to_json,
+    )
+
+    try:
+        scenario, spec, result = _compute(args)
+    except KeyboardInterrupt:           # at any moment before the results: nothing written
         print("acqplan sweep: cancelled; nothing written", file=sys.stderr)
         return EXIT_CANCELLED
-    close()
-    if args.format == "json":
-        text = json.dumps(sweep_to_json(result, scenario.name), indent=1)
-    elif args.format == "csv":
-        print_warnings(result.warnings)
-        keys = [short_key(k) for k in spec.keys]
-        text = format_rows(sweep_rows(result), "csv", SWEEP_ROW_COLUMNS[:3] + keys + SWEEP_ROW_COLUMNS[3:])
-    else:
-        text = _table(result, scenario.name)
-    emit(text, args.output)
-    if args.write_best:
-        saved = save_scenario(best_scenario(scenario, result), args.write_best)
-        print(f"wrote {os.fspath(saved.path)} (setting {spec.setting_text(result.best.setting)}, "
-              f"departure {saved.time.start.strftime('%Y-%m-%dT%H:%M:%SZ')})", file=sys.stderr)
+    # The writes are short and atomic; Ctrl+C waits for them, so no file is left half-made.
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        if args.format == "json":
+            text = json.dumps(sweep_to_json(result, scenario.name), indent=1)
+        elif args.format == "csv":
+            print_warnings(result.warnings)
+            keys = [short_key(k) for k in spec.keys]
+            text = format_rows(sweep_rows(result), "csv", SWEEP_ROW_COLUMNS[:3] + keys + SWEEP_ROW_COLUMNS[3:])
+        else:
+            text = _table(result, scenario.name)
+        emit(text, args.output)
+        if args.write_best:
+            saved = save_scenario(best_scenario(scenario, result), args.write_best)
+            print(f"wrote {os.fspath(saved.path)} (setting {spec.setting_text(result.best.setting)}, "
+                  f"departure {saved.time.start.strftime('%Y-%m-%dT%H:%M:%SZ')})", file=sys.stderr)
+    finally:
+        signal.signal(signal.SIGINT, previous)
     return EXIT_OK
 
 
