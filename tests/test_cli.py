@@ -258,3 +258,20 @@ def test_plan_above_the_size_limit_is_refused_naming_the_key(tmp_path, capsys):
     code, out, err = run_cli(capsys, "plan", str(path))
     assert code == 2 and len(err.strip().splitlines()) == 1
     assert "time.step_s" in err and "700,000" in err and "at least" in err, err
+
+
+def test_output_cut_by_a_closed_pipe_is_quiet(tmp_path):
+    """`acqplan plan ... | head -1`: the reader closes the pipe early; the command stops
+    quietly (no "Broken pipe" error line) [trade: Unix filter behaviour]."""
+    import subprocess as sp
+
+    from core.files.demo import write_demo
+
+    scenario = write_demo(tmp_path / "demo")
+    proc = sp.Popen([sys.executable, "-m", "planner_gui.cli", "plan", str(scenario), "--format", "json"],
+                    stdout=sp.PIPE, stderr=sp.PIPE, cwd=REPO)
+    proc.stdout.read(10)
+    proc.stdout.close()                      # the reader goes away after a few bytes
+    err = proc.stderr.read().decode()
+    assert proc.wait(timeout=120) == 0
+    assert "Broken pipe" not in err and "error" not in err.lower(), err

@@ -62,6 +62,16 @@ def main(argv: Sequence[str] | None = None) -> int:
     except AcqplanError as err:
         print(f"acqplan {args.command}: {err}", file=sys.stderr)
         return EXIT_FAILURE
+    except BrokenPipeError:
+        # the reader went away (``acqplan plan ... | head``): not an error of the command.
+        # Point stdout at devnull so the interpreter's final flush does not complain.
+        import os
+
+        try:
+            os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        except OSError:
+            pass
+        return EXIT_OK
     except OSError as err:
         name = getattr(err, "filename", None)
         where = f"{name}: " if name else ""
