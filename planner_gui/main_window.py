@@ -16,6 +16,7 @@ import html
 import re
 import threading
 import time
+from dataclasses import replace
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
 from typing import Any
@@ -795,6 +796,10 @@ class PlannerWindow(QMainWindow):
         except AcqplanError as err:
             self.panel.show_problems([(getattr(err, "field", None), str(err))])
             return None
+        # The form holds no drive keys: they are the file's, and so are their lines.
+        loaded = self.scenario
+        if loaded is not None and loaded.path is not None and loaded.path == self.current_path:
+            sc = replace(sc, locator=loaded.locator)
         return sc
 
     def _on_edited(self, _dotted: str) -> None:
@@ -884,6 +889,7 @@ class PlannerWindow(QMainWindow):
             self.panel.show_problems([])
         if result.final:
             self._hide_progress()
+            self.route.mark_problem(None)
         else:
             # Tell the worker once this update is painted (posted paints run first).
             serial = result.serial
@@ -908,6 +914,8 @@ class PlannerWindow(QMainWindow):
             self.problemShown.emit(text)
         else:
             marked = self.panel.show_problems(problems_of(err))
+            if isinstance(err, InputError):
+                self.route.mark_problem(err)
             if not marked and isinstance(err, InputError) and err.file and self.scenario is not None:
                 if str(err.file) in {str(p) for p in self.scenario.resolved_orbit_files()}:
                     self.panel.show_problems([("orbits.files", err.message + f" ({err.file})")])

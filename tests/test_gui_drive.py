@@ -128,3 +128,33 @@ def test_scenario_without_route_has_an_empty_diagram(qtbot, window, tmp_path):
     assert window.model.drive is None
     assert len(window.route.events.points()) == 0
     assert "no route" in window.route.info.text()
+
+
+def test_bad_drive_key_keeps_the_old_plan_and_marks_the_field(qtbot, window, drive_scenario, tmp_path):
+    # A waypoint name not on the route is found once the route is read: the window keeps
+    # the plan it shows and marks the field (its line from the file's own text [calc]).
+    _open_drive(qtbot, window, drive_scenario)
+    old_plan, old_drive = window.model.plan, window.model.drive
+    text = drive_scenario.read_text(encoding="utf-8")
+    bad = text.replace('at = "Altmarkt Kressing"', 'at = "Altmarkt"', 1)
+    lines = bad.splitlines()
+    third = [i for i, ln in enumerate(lines) if ln.strip() == "[[event]]"][2]
+    line = next(j + 1 for j in range(third + 1, len(lines)) if lines[j].startswith("at ="))
+    shutil.copytree(drive_scenario.parent, tmp_path / "demo")
+    path = tmp_path / "demo" / "bad_drive.toml"
+    path.write_text(bad, encoding="utf-8")
+    with qtbot.waitSignal(window.problemShown, timeout=WAIT_MS,
+                          check_params_cb=lambda t: "Altmarkt" in t):
+        assert window.open_scenario(path) is True          # the checker passes; planning fails
+    assert window.model.plan is old_plan and window.model.drive is old_drive
+    marked = window.route.problem_text()
+    assert f"line {line}" in marked and "event[3].at" in marked and "'Altmarkt'" in marked
+    bar = window.message_bar.text.text()
+    assert str(path) in bar and f"line {line}" in bar and "field 'event[3].at'" in bar
+    assert "event[3].at" in window.panel.general_problem.text()
+    # Fixed on disk and opened again: planned, the mark gone.
+    path.write_text(text, encoding="utf-8")
+    with qtbot.waitSignal(window.planShown, timeout=WAIT_MS,
+                          check_params_cb=lambda r: r.final and r.drive is not None):
+        window.open_scenario(path)
+    assert window.route.problem_text() == ""

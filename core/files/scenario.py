@@ -80,8 +80,9 @@ def load_scenario_for_editing(path: str | os.PathLike[str]) -> tuple[Scenario, l
     except ScenarioValidationError as err:
         problems = err.problems
     p = Path(path)
-    d = tomllib.loads(p.read_bytes().decode("utf-8-sig"))
-    return salvage_scenario(d, problems, base_dir=p.resolve().parent, path=p), problems
+    text = p.read_bytes().decode("utf-8-sig")
+    sc = salvage_scenario(tomllib.loads(text), problems, base_dir=p.resolve().parent, path=p)
+    return replace(sc, locator=_Locator(text)), problems
 
 
 def _rebase(name: str, old_dir: Path, new_dir: Path) -> str:
@@ -125,8 +126,9 @@ def save_scenario(scenario: Scenario, path: str | os.PathLike[str]) -> Scenario:
                         stretches=tuple(replace(st, horizon_file=moved(st.horizon_file))
                                         for st in route.stretches))
     saved = replace(scenario, orbits=orbits, route=route, path=p, base_dir=folder)
-    write_text_atomic(p, scenario_to_toml(saved), ScenarioError, "save the scenario")
-    return saved
+    text = scenario_to_toml(saved)
+    write_text_atomic(p, text, ScenarioError, "save the scenario")
+    return replace(saved, locator=_Locator(text))
 
 
 __all__ = ["load_scenario", "load_scenario_for_editing", "save_scenario", "scenario_to_toml"]

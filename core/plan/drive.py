@@ -4,7 +4,8 @@ A helper of core.plan.spec (which calls :func:`check_drive` while validating a s
 and keeps the result in ``Scenario.route`` / ``Scenario.events``). Only keys, types and
 ranges are checked here; what needs the route file (waypoint names, distances past the
 route's end, overlapping stretches, events outside the window) is checked when the drive
-is planned (core.plan.events), with the same field names.
+is planned (core.plan.events), with the same field names and the key's line in the file
+(``Scenario.line_of``; the n-th ``[[event]]`` is ``event[n]``).
 
 Every key, its unit, range and default is listed in docs/scenario-keys.md.
 """

@@ -103,12 +103,17 @@ def _scenario_file(sc: Scenario) -> str | None:
     return None if sc.path is None else str(sc.path)
 
 
+def _scenario_error(sc: Scenario, message: str, field_name: str) -> InputError:
+    """A problem of scenario key ``field_name`` found once the route is read: named with
+    the scenario file and the key's line there (``event[3].at``: that element's key)."""
+    return InputError(message, file=_scenario_file(sc), line=sc.line_of(field_name), field=field_name)
+
+
 def _distance_of(place, waypoints: dict, field_name: str, sc: Scenario) -> float:
     if isinstance(place, str):
         if place not in waypoints:
             known = ", ".join(waypoints) or "none"
-            raise InputError(f"no waypoint named '{place}' on the route (known: {known})",
-                             file=_scenario_file(sc), field=field_name)
+            raise _scenario_error(sc, f"no waypoint named '{place}' on the route (known: {known})", field_name)
         return float(waypoints[place])
     return float(place) * 1000.0
 
@@ -134,11 +139,13 @@ def load_drive(sc: Scenario) -> Drive:
             speeds.append(SpeedStretch(a, b, st.speed_kmh / 3.6))
     try:
         check_stretches(stretches, length, "route.stretch")
+        route = time_route(rf, start_unix_s=sc.time.start_unix_s, shift_to_start=rs.shift_to_start,
+                           speed_m_s=None if rs.speed_kmh is None else rs.speed_kmh / 3.6,
+                           stretch_speeds=speeds, dwell_s=dict(rs.dwell_s))
     except InputError as exc:
-        raise InputError(exc.message, file=_scenario_file(sc), field=exc.field) from None
-    route = time_route(rf, start_unix_s=sc.time.start_unix_s, shift_to_start=rs.shift_to_start,
-                       speed_m_s=None if rs.speed_kmh is None else rs.speed_kmh / 3.6,
-                       stretch_speeds=speeds, dwell_s=dict(rs.dwell_s))
+        if exc.file is not None or not exc.field:        # the route file's own problem
+            raise
+        raise _scenario_error(sc, exc.message, exc.field) from None
     horizon = None if rs.horizon_file is None else read_horizon_csv(_resolve(sc, rs.horizon_file))
     mu = MotionUncertainty(rs.slip_min * 60.0, rs.speed_uncertainty_kmh / 3.6, rs.heading_uncertainty_deg,
                            rs.climb_uncertainty_m_s)
@@ -227,7 +234,6 @@ def drive_events(sc: Scenario, drive: Drive | None) -> list[DriveEvent]:
     """The scenario's events (times resolved) and, with ``auto_reacquire``, one
     re-acquisition at the end of every outage stretch; sorted by time."""
     out: list[DriveEvent] = []
-    file = _scenario_file(sc)
     wp = {} if drive is None else {w.name: w for w in drive.route.waypoints}
     drift = 0.2 if drive is None else drive.spec.outage_drift_ppb_per_s
     dv = 0.0 if drive is None else drive.motion.speed_m_s
@@ -236,21 +242,21 @@ def drive_events(sc: Scenario, drive: Drive | None) -> list[DriveEvent]:
         if isinstance(ev.at, datetime):
             t = ev.at.timestamp()
         elif drive is None:
-            raise InputError("a waypoint or a distance needs a [route]", file=file, field=fld)
+            raise _scenario_error(sc, "a waypoint or a distance needs a [route]", fld)
         elif isinstance(ev.at, str):
             if ev.at not in wp:
                 known = ", ".join(wp) or "none"
-                raise InputError(f"no waypoint named '{ev.at}' on the route (known: {known})", file=file, field=fld)
+                raise _scenario_error(sc, f"no waypoint named '{ev.at}' on the route (known: {known})", fld)
             t = drive.route.time_at_distance(wp[ev.at].distance_m)
         else:
             d = float(ev.at) * 1000.0
             if d > drive.route.length_m + 1e-6:
-                raise InputError(f"{ev.at:g} km is past the route's end ({drive.route.length_m / 1000:.3f} km)",
-                                 file=file, field=fld)
+                raise _scenario_error(sc, f"{ev.at:g} km is past the route's end "
+                                          f"({drive.route.length_m / 1000:.3f} km)", fld)
             t = drive.route.time_at_distance(d)
         if not (sc.time.start_unix_s <= t < sc.time.end_unix_s):
-            raise InputError(f"the event falls at {iso_z(t)}, outside the window {iso_z(sc.time.start_unix_s)} "
-                             f"to {iso_z(sc.time.end_unix_s)}", file=file, field=fld)
+            raise _scenario_error(sc, f"the event falls at {iso_z(t)}, outside the window "
+                                      f"{iso_z(sc.time.start_unix_s)} to {iso_z(sc.time.end_unix_s)}", fld)
         outage_s = driven = None
         base = kind_knowledge(sc, ev.kind, drift_ppb_s=drift)
         if ev.kind == "reacquire" and drive is not None:

@@ -294,8 +294,17 @@ class Scenario:
     # empty), so that all their values are defaults; a file cut short that is still valid
     # TOML shows here. Kept through with_changes() for the sections not changed.
     defaults_used: tuple[str, ...] = field(default=(), compare=False)
+    # Where each key stands in the file the scenario was read from (a _Locator; None when
+    # built from a dict): problems found later, when the drive is planned, name the line.
+    # Kept through with_changes(), where the keys a change touches are not the file's
+    # values any more; their problems are found by the checker, which names no line then.
+    locator: Any = field(default=None, compare=False, repr=False)
 
     # -- convenience
+    def line_of(self, dotted: str) -> int | None:
+        """The line of key ``dotted`` (``event[3].at``) in the scenario's file, if known."""
+        return None if self.locator is None else self.locator.line_of(dotted)
+
     @property
     def defaults_note(self) -> str:
         """'defaults used for: [receiver], [mask]' or '' (plan header, JSON, sheet)."""
@@ -380,12 +389,12 @@ class Scenario:
                 raise TypeError(f"with_changes: no section '{key}'")
         changed = _build(d, base_dir=self.base_dir, path=self.path, text=None)
         return replace(changed, defaults_used=tuple(
-            s for s in self.defaults_used if s not in updates))
+            s for s in self.defaults_used if s not in updates), locator=self.locator)
 
     def validated(self) -> Scenario:
         """Re-check a scenario built by hand (dataclass constructors do not validate)."""
         again = _build(self.to_dict(), base_dir=self.base_dir, path=self.path, text=None)
-        return replace(again, defaults_used=self.defaults_used)
+        return replace(again, defaults_used=self.defaults_used, locator=self.locator)
 
 
 def _spec_to_table(section: str, spec: Any) -> dict[str, Any]:
@@ -445,7 +454,9 @@ def _locate_without_file(p: ScenarioError) -> str:
 # Locating keys in the file text (for line numbers)
 
 _HEADER_RE = re.compile(r"^\s*\[\s*([^\[\]]+?)\s*\]\s*(#.*)?$")
+_ARRAY_HEADER_RE = re.compile(r"^\s*\[\[\s*([^\[\]]+?)\s*\]\]\s*(#.*)?$")
 _KEY_RE = re.compile(r"^\s*((?:[A-Za-z0-9_\-]+|\"[^\"]*\"|'[^']*')(?:\s*\.\s*(?:[A-Za-z0-9_\-]+|\"[^\"]*\"|'[^']*'))*)\s*=")
+_INDEX_RE = re.compile(r"\[\d+\]")
 
 
 def _split_key(text: str) -> list[str]:
@@ -454,7 +465,11 @@ def _split_key(text: str) -> list[str]:
 
 
 class _Locator:
-    """Maps dotted keys and table headers to 1-based line numbers of a TOML text."""
+    """Maps dotted keys and table headers to 1-based line numbers of a TOML text.
+
+    Elements of an array of tables are numbered from 1 as the checker names them:
+    the keys under the third ``[[event]]`` are ``event[3].kind``, ``event[3].at``, and
+    ``event[3]`` is that header's line (``[[route.stretch]]``: ``route.stretch[2].from``)."""
 
     def __init__(self, text: str | None):
         self.keys: dict[str, int] = {}
@@ -462,27 +477,44 @@ class _Locator:
         if not text:
             return
         table: list[str] = []
+        counts: dict[str, int] = {}          # indexed path of an array of tables -> elements so far
         for n, line in enumerate(text.splitlines(), start=1):
-            h = _HEADER_RE.match(line)
-            if h:
-                table = _split_key(h.group(1))
+            a = _ARRAY_HEADER_RE.match(line)
+            h = None if a else _HEADER_RE.match(line)
+            if a or h:
+                table = self._resolve(_split_key((a or h).group(1)), counts, is_array=bool(a))
                 self.tables.setdefault(".".join(table), n)
                 continue
             k = _KEY_RE.match(line)
             if k:
                 self.keys.setdefault(".".join([*table, *_split_key(k.group(1))]), n)
 
+    @staticmethod
+    def _resolve(parts: list[str], counts: dict[str, int], is_array: bool) -> list[str]:
+        """A header's path with the latest element index of every array of tables on it."""
+        out: list[str] = []
+        for i, part in enumerate(parts):
+            name = ".".join([*out, part])
+            if is_array and i == len(parts) - 1:
+                counts[name] = counts.get(name, 0) + 1
+            out.append(f"{part}[{counts[name]}]" if name in counts else part)
+        return out
+
     def line_of(self, dotted: str) -> int | None:
         if dotted in self.keys:
             return self.keys[dotted]
         if dotted in self.tables:
             return self.tables[dotted]
-        # A missing key: point at its table header, if there is one.
-        head = dotted.rpartition(".")[0]
-        while head:
+        # A missing key: point at its table header, if there is one; an element of an
+        # array written inline (event = [{...}]) at the array's key.
+        parts = dotted.split(".")
+        for i in range(len(parts) - 1, 0, -1):
+            head = ".".join(parts[:i])
+            bare = _INDEX_RE.sub("", head)
             if head in self.tables:
                 return self.tables[head]
-            head = head.rpartition(".")[0]
+            if bare != head and bare in self.keys:
+                return self.keys[bare]
         return None
 
 
@@ -727,7 +759,8 @@ _BAD: Any = _Bad()
 
 def _build(d: Mapping[str, Any], *, base_dir: Any, path: Any, text: str | None) -> Scenario:
     file = str(path) if path is not None else None
-    chk = _Checker(file, _Locator(text))
+    locator = _Locator(text)
+    chk = _Checker(file, locator)
     if not isinstance(d, Mapping):
         raise ScenarioValidationError([ScenarioError(
             f"a scenario must be a table of sections, not {_type_name(d)}", file=file)], file=file)
@@ -803,7 +836,8 @@ def _build(d: Mapping[str, Any], *, base_dir: Any, path: Any, text: str | None) 
         base_dir = path.resolve().parent if path is not None else Path.cwd()
     defaulted = tuple(sec for sec in DEFAULTABLE_SECTIONS if not tables.get(sec))
     return Scenario(name=values[""]["name"], path=path, base_dir=Path(base_dir),
-                    defaults_used=defaulted, route=drive_route, events=drive_events, **specs)
+                    defaults_used=defaulted, route=drive_route, events=drive_events,
+                    locator=locator if text else None, **specs)
 
 
 def salvage_scenario(d: Mapping[str, Any], problems: list[ScenarioError], *,

@@ -521,7 +521,7 @@ def time_route(rf: RouteFile, *, start_unix_s: float | None = None, shift_to_sta
         if name not in names:
             known = ", ".join(names) or "none"
             raise InputError(f"no waypoint named '{name}' on the route (known: {known})",
-                             field=f"{field_prefix}.dwell_s")
+                             field=f"{field_prefix}.dwell_s.{name}")
         if not (math.isfinite(secs) and secs >= 0):
             raise InputError(f"dwell {secs} s must be 0 or more", field=f"{field_prefix}.dwell_s.{name}")
         dwell_at[names[name].index] += secs

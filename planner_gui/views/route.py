@@ -16,7 +16,7 @@ from __future__ import annotations
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
-from PySide6.QtWidgets import QComboBox, QWidget
+from PySide6.QtWidgets import QComboBox, QLabel, QWidget
 
 from ..models import PlanModel
 from ._common import (
@@ -59,6 +59,16 @@ class RouteView(ViewFrame):
         self.chooser.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
         self.chooser.activated.connect(self._chosen)
         self.add_header_widget(self.chooser)
+        # A drive key the plan could not use (a waypoint name not on the route, a stretch
+        # past its end, an event outside the window): the field, its line and the reason,
+        # marked above the diagram, which keeps the last drive that could be planned.
+        self.problem = QLabel("", self)
+        self.problem.setObjectName("routeProblem")
+        self.problem.setWordWrap(True)
+        self.problem.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.problem.setStyleSheet("background: #FBE3D6; border: 1px solid #C9A38F; padding: 2px 4px;")
+        self.problem.hide()
+        self.outer.addWidget(self.problem)
         self.plot = pg.PlotWidget(self, axisItems={"bottom": UtcAxis("bottom")})
         self.plot.setObjectName("routePlot")
         self.outer.addWidget(self.plot, 1)
@@ -95,6 +105,25 @@ class RouteView(ViewFrame):
         model.driveChanged.connect(self._on_drive)
         model.cursorChanged.connect(self._on_cursor)
         self._on_drive(model.drive)
+
+    # -- problems
+    def mark_problem(self, err) -> None:
+        """Mark the drive key of an InputError (``route...`` or ``event[n]...``) above the
+        diagram; ``None`` clears the mark."""
+        field = getattr(err, "field", None) or ""
+        if err is None or not (field.startswith("route") or field.startswith("event")):
+            self.problem.clear()
+            self.problem.hide()
+            return
+        where = ", ".join(x for x in (f"line {err.line}" if err.line is not None else "", field) if x)
+        self.problem.setText(f"Not planned: {where}: {err.message} (the diagram shows the last drive "
+                             "that could be planned)")
+        self.problem.setToolTip(str(err))
+        self.problem.show()
+
+    def problem_text(self) -> str:
+        """The marked problem ('' when none), for tests."""
+        return self.problem.text() if not self.problem.isHidden() else ""
 
     # -- model -> view
     def _on_drive(self, drive) -> None:
