@@ -317,7 +317,8 @@ def check_grid_size(n_satellites: int, span_s: float, step_s: float, limit: int,
 
 
 def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] | np.ndarray,
-            signals: SignalChoice = None, *, keep_states: bool = False) -> Prediction:
+            signals: SignalChoice = None, *, keep_states: bool = False,
+            failures: dict | None = None) -> Prediction:
     """Azimuth, elevation, range, range rate, Doppler and Doppler rate of every satellite
     of ``orbits`` seen from ``site`` at ``times`` (TimeGrid, aware datetimes, or UTC POSIX s).
 
@@ -326,6 +327,9 @@ def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] |
     ``keep_states`` also keeps the Earth-fixed positions and velocities (S, T, 3).
     ``site`` may be a :class:`~core.ground.geodesy.SitePath` (a receiver that moves: one
     position per grid time).
+    ``failures``: a caller that predicts a long window in pieces collects the propagation
+    failures of every piece in one dict (see :func:`propagate_ecef`); the pieces then
+    carry no failure warnings and the caller makes them once with :func:`failure_warnings`.
     """
     if not len(orbits.entries):
         raise ComputationError("the orbit data holds no satellites")
@@ -342,7 +346,8 @@ def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] |
     states = (np.empty((n_s, n_t, 3)), np.empty((n_s, n_t, 3))) if keep_states else None
     mu = _mu_for(orbits)
     lam = SPEED_OF_LIGHT_M_S / carrier
-    failures: dict = {}
+    own = failures is None
+    failures = {} if failures is None else failures
     for a, b in blocks(n_s, u):
         pos, vel, ok, _ = propagate_ecef(orbits, u[a:b], failures=failures)
         here = site.take(slice(a, b)) if isinstance(site, SitePath) else site   # a moving receiver
@@ -351,7 +356,7 @@ def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] |
         if states is not None:
             states[0][:, a:b] = pos
             states[1][:, a:b] = vel
-    warnings = failure_warnings(orbits, failures, n_t)
+    warnings = failure_warnings(orbits, failures, n_t) if own else []
     return Prediction(ids=orbits.ids, signal_ids=sig_ids, carrier_hz=carrier, times=grid,
                       site=site, valid=valid, warnings=list(orbits.warnings) + warnings,
                       sat_pos_ecef_m=None if states is None else states[0],
@@ -483,45 +488,68 @@ def passes(orbits: OrbitSet, site: Site, start: datetime | float, end: datetime 
                 yield predict(orbits, site, u)
         chunks = _chunks()
 
-    crossings, culminations = [], []
-    u_first = u_last = None
+    finder = PassFinder(ids, mask_deg)
     for pred in chunks:
-        cross_, culm_, (el, above) = _chunk_events(pred, mask_deg)
-        crossings.append(cross_)
-        culminations.append(culm_)
-        if u_first is None:
-            u_first = pred.times.unix_s[0]
-            above0 = above[:, 0].copy()
-            el0, az0 = el[:, 0].copy(), pred.azimuth_deg[:, 0].copy()
-        u_last = pred.times.unix_s[-1]
-        el1, az1 = el[:, -1].copy(), pred.azimuth_deg[:, -1].copy()
-    s_idx, cross, rising, cross_az, cross_el = (np.concatenate(x) for x in zip(*crossings))
-    cs, culm, culm_el = (np.concatenate(x) for x in zip(*culminations))
+        finder.add(pred)
+    return finder.passes()
 
-    out: list[Pass] = []
-    order = np.argsort(s_idx, kind="stable")
-    starts = np.searchsorted(s_idx[order], np.arange(n_s + 1))
-    for s in range(n_s):
-        mine = order[starts[s]:starts[s + 1]]
-        events = sorted((float(cross[i]), bool(rising[i]), float(cross_az[i]), float(cross_el[i]))
-                        for i in mine)
-        intervals = []
-        cur = (float(u_first), float(el0[s]), float(az0[s])) if above0[s] else None
-        for t, is_rise, az, e in events:
-            if is_rise:
-                cur = (t, e, az)
-            elif cur is not None:
-                intervals.append((cur, (t, e, az)))
-                cur = None
-        if cur is not None:
-            intervals.append((cur, (float(u_last), float(el1[s]), float(az1[s]))))
-        for (r0, r_el, r_az), (s0, s_el, s_az) in intervals:
-            inside = (cs == s) & (culm >= r0) & (culm <= s0)
-            cand_t = list(culm[inside]) + [r0, s0]
-            cand_el = list(culm_el[inside]) + [r_el, s_el]
-            k = int(np.nanargmax(cand_el))
-            out.append(Pass(ids[s], float(r0), float(cand_t[k]), float(s0),
-                            float(cand_el[k]), float(r_az), float(s_az),
-                            rises_in_window=bool(r0 > u_first), sets_in_window=bool(s0 < u_last)))
-    out.sort(key=lambda p: (p.rise_unix_s, p.sat_id))
-    return out
+
+class PassFinder:
+    """The passes of :func:`passes` from a window's predictions given piece by piece, in
+    time order, each piece starting at the last time of the one before (so that every grid
+    interval is looked at once): ``add(piece)`` for each, then ``passes()``. The result
+    equals ``passes(..., prediction=whole)`` for the same samples."""
+
+    def __init__(self, ids: Sequence[str], mask_deg: float) -> None:
+        self.ids, self.n_s, self.mask_deg = list(ids), len(ids), mask_deg
+        self.crossings: list = []
+        self.culminations: list = []
+        self.u_first = self.u_last = None
+
+    def add(self, pred: Prediction) -> tuple[np.ndarray, np.ndarray]:
+        """Take the next piece; returns its mask crossings (satellite index, time)."""
+        cross_, culm_, (el, above) = _chunk_events(pred, self.mask_deg)
+        self.crossings.append(cross_)
+        self.culminations.append(culm_)
+        if self.u_first is None:
+            self.u_first = pred.times.unix_s[0]
+            self.above0 = above[:, 0].copy()
+            self.el0, self.az0 = el[:, 0].copy(), pred.azimuth_deg[:, 0].copy()
+        self.u_last = pred.times.unix_s[-1]
+        self.el1, self.az1 = el[:, -1].copy(), pred.azimuth_deg[:, -1].copy()
+        return cross_[0], cross_[1]
+
+    def passes(self) -> list[Pass]:
+        ids, n_s = self.ids, self.n_s
+        u_first, u_last = self.u_first, self.u_last
+        above0, el0, az0, el1, az1 = self.above0, self.el0, self.az0, self.el1, self.az1
+        s_idx, cross, rising, cross_az, cross_el = (np.concatenate(x) for x in zip(*self.crossings))
+        cs, culm, culm_el = (np.concatenate(x) for x in zip(*self.culminations))
+
+        out: list[Pass] = []
+        order = np.argsort(s_idx, kind="stable")
+        starts = np.searchsorted(s_idx[order], np.arange(n_s + 1))
+        for s in range(n_s):
+            mine = order[starts[s]:starts[s + 1]]
+            events = sorted((float(cross[i]), bool(rising[i]), float(cross_az[i]), float(cross_el[i]))
+                            for i in mine)
+            intervals = []
+            cur = (float(u_first), float(el0[s]), float(az0[s])) if above0[s] else None
+            for t, is_rise, az, e in events:
+                if is_rise:
+                    cur = (t, e, az)
+                elif cur is not None:
+                    intervals.append((cur, (t, e, az)))
+                    cur = None
+            if cur is not None:
+                intervals.append((cur, (float(u_last), float(el1[s]), float(az1[s]))))
+            for (r0, r_el, r_az), (s0, s_el, s_az) in intervals:
+                inside = (cs == s) & (culm >= r0) & (culm <= s0)
+                cand_t = list(culm[inside]) + [r0, s0]
+                cand_el = list(culm_el[inside]) + [r_el, s_el]
+                k = int(np.nanargmax(cand_el))
+                out.append(Pass(ids[s], float(r0), float(cand_t[k]), float(s0),
+                                float(cand_el[k]), float(r_az), float(s_az),
+                                rises_in_window=bool(r0 > u_first), sets_in_window=bool(s0 < u_last)))
+        out.sort(key=lambda p: (p.rise_unix_s, p.sat_id))
+        return out
