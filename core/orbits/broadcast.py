@@ -167,14 +167,14 @@ def records_in_use(entry: OrbitEntry, unix_s: np.ndarray) -> list[RecordUse]:
     if not entry.broadcast:
         return []
     u = np.atleast_1d(np.asarray(unix_s, dtype=float))
-    idx = select_records(entry.broadcast, np.asarray(unix_to_gps_s(u), dtype=float))
+    idx = np.asarray(select_records(entry.broadcast, np.asarray(unix_to_gps_s(u), dtype=float)))
+    # Runs of equal record index (one array pass: a week at 1 s is 604,801 times).
+    starts = np.concatenate(([0], np.flatnonzero(idx[1:] != idx[:-1]) + 1))
+    ends = np.append(starts[1:], u.size) - 1
     out: list[RecordUse] = []
-    start = 0
-    for k in range(1, u.size + 1):
-        if k == u.size or idx[k] != idx[start]:
-            if idx[start] >= 0:
-                r = entry.broadcast[idx[start]]
-                out.append(RecordUse(float(gps_to_unix_s(r.toe_gps_s)), int(r.issue), r.line,
-                                     r.healthy, float(u[start]), float(u[k - 1])))
-            start = k
+    for a, b in zip(starts.tolist(), ends.tolist()):
+        if idx[a] >= 0:
+            r = entry.broadcast[int(idx[a])]
+            out.append(RecordUse(float(gps_to_unix_s(r.toe_gps_s)), int(r.issue), r.line,
+                                 r.healthy, float(u[a]), float(u[b])))
     return out
