@@ -404,16 +404,20 @@ def orbit_margins(search: SearchSpec, g: PreparedGeometry) -> OrbitMargins:
     else:
         margin_t = np.stack([orbit_margin_hz(k, a, f) for k, a, f in zip(kinds, age, pred.carrier_hz)])
     range_margin = np.stack([orbit_range_margin_m(k, a) for k, a in zip(kinds, age)])
-    warnings = []
     old = sorted({e.info.sat_id for e, k, a in zip(orbits.entries, kinds, age)
                   if bool(np.any(margin_extrapolated(k, a)))})
-    if old and search.orbit_margin_hz is None:
-        warnings.append(
-            f"orbit data further from the planned time than the ages the default margin was "
+    return OrbitMargins(margin_t, range_margin, age, kinds, old_data_warnings(search, old))
+
+
+def old_data_warnings(search: SearchSpec, old: list[str]) -> list[str]:
+    """The warning for the satellites ``old`` (sorted IDs) whose data age lies beyond the
+    ages the default margin was derived for (none when the scenario sets the margin)."""
+    if not old or search.orbit_margin_hz is not None:
+        return []
+    return [f"orbit data further from the planned time than the ages the default margin was "
             f"derived for (docs/orbit-margin.md) for {len(old)} satellite(s) ({', '.join(old[:6])}"
             f"{', ...' if len(old) > 6 else ''}): windows may be too narrow; use fresher "
-            "data or set [search] orbit_margin_hz")
-    return OrbitMargins(margin_t, range_margin, age, kinds, warnings)
+            "data or set [search] orbit_margin_hz"]
 
 
 def unknown_glonass_k(g: PreparedGeometry) -> np.ndarray:
@@ -885,7 +889,9 @@ def _pd_by_table(cn0_centre_dbhz: np.ndarray, coherent_s: np.ndarray, n_nc: np.n
         lo, hi = float(np.min(sub)), float(np.max(sub))
         reach = float(np.max(off.loss_db))
         h = 0.01
-        grid = np.arange(lo - 2 * h - reach, hi + 2 * h, h)
+        # Nodes on the fixed lattice h * integer (not from lo): any part of the window
+        # (a block of a long plan, core.plan.long_window) gets the same values.
+        grid = h * np.arange(math.floor((lo - reach) / h) - 2, math.ceil(hi / h) + 3)
         thr = detection.threshold_for_pfa(pfa, n)
         base = np.asarray(detection.detection_probability(
             detection.coherent_snr_linear(grid, tc), n, thr))
