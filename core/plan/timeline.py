@@ -86,8 +86,13 @@ _FREE_EVENT = 1
 
 def _as_grid_array(value: Any, shape: tuple[int, int], name: str, *, dtype=float,
                    allow_scalar: bool = False) -> np.ndarray | float:
-    """Copy ``value`` to a read-only (S, T) array, or a float if scalars are allowed."""
-    arr = np.array(value, dtype=dtype)
+    """``value`` as a read-only (S, T) array, or a float if scalars are allowed. A copy,
+    unless ``value`` already is a read-only array of that dtype whose memory nothing can
+    write to (:func:`_read_only`): then it is kept as it is."""
+    if isinstance(value, np.ndarray) and value.dtype == np.dtype(dtype) and _read_only(value):
+        arr = value
+    else:
+        arr = np.array(value, dtype=dtype)
     if arr.ndim == 0:
         if allow_scalar:
             return float(arr)
@@ -99,9 +104,27 @@ def _as_grid_array(value: Any, shape: tuple[int, int], name: str, *, dtype=float
     return arr
 
 
+def _read_only(arr: np.ndarray) -> bool:
+    """True when neither ``arr`` nor any array it views is writeable and the chain ends
+    in an array that owns its memory (so no other name can change the values)."""
+    a: Any = arr
+    while isinstance(a, np.ndarray):
+        if a.flags.writeable:
+            return False
+        if a.base is None:
+            return True
+        a = a.base
+    return False
+
+
 def _check_range(value: np.ndarray | float, name: str, lo: float, hi: float,
                  lo_open: bool = False) -> None:
     arr = np.asarray(value, dtype=float)
+    # One pass over the grid when every value is in range (NaN compares False; an
+    # infinite value out of range is looked at below, where non-finite values are skipped).
+    outside = (arr <= lo if lo_open else arr < lo) | (arr > hi)
+    if not np.any(outside):
+        return
     fin = arr[np.isfinite(arr)]
     if fin.size == 0:
         return
@@ -116,6 +139,8 @@ def _check_range(value: np.ndarray | float, name: str, lo: float, hi: float,
 
 def _check_positions(value: np.ndarray | None, name: str) -> None:
     if value is None:
+        return
+    if np.all((value >= 1) & (np.floor(value) == value)):   # NaN fails: checked below
         return
     fin = value[np.isfinite(value)]
     if fin.size and (np.any(fin < 1) or np.any(fin != np.round(fin))):
@@ -258,25 +283,30 @@ class TimelineInputs:
         times = self.times_unix_s
         t0, t_end = float(times[0]), float(times[-1])
         n_sat, n_t = self.visible.shape
-        padded = np.zeros((n_sat, n_t + 2), dtype=np.int8)
-        padded[:, 1:-1] = self.visible
-        step = np.diff(padded, axis=1)                 # (S, T+1)
-        rise_s, rise_k = np.nonzero(step == 1)         # first True sample index
-        _, set_k = np.nonzero(step == -1)              # first False sample index (T = none)
-        # np.nonzero scans row-major, so the k-th rise and the k-th set are one pass.
-        rise_t = times[rise_k]
-        set_t = np.where(set_k < n_t, times[np.minimum(set_k, n_t - 1)], math.inf)
         grid: list[list[tuple[float, float]]] = [[] for _ in range(n_sat)]
-        for s, r, st in zip(rise_s.tolist(), rise_t.tolist(), set_t.tolist()):
-            if r < t_end:
-                grid[s].append((r, st))
-        if self.set_unix_s:
-            index = {sid: i for i, sid in enumerate(self.sat_ids)}
-            for sid, passes in self.set_unix_s.items():
-                if sid not in index:
-                    raise InputError(f"refined passes given for unknown satellite {sid}",
-                                     field="set_unix_s")
-                grid[index[sid]] = _normalise_passes(passes, sid, t0, t_end)
+        refined = self.set_unix_s or {}
+        index = {sid: i for i, sid in enumerate(self.sat_ids)}
+        for sid in refined:
+            if sid not in index:
+                raise InputError(f"refined passes given for unknown satellite {sid}",
+                                 field="set_unix_s")
+        # Grid passes of the satellites the refined passes do not name.
+        rows = np.array([i for i, sid in enumerate(self.sat_ids) if sid not in refined],
+                        dtype=np.int64)
+        if rows.size:
+            padded = np.zeros((rows.size, n_t + 2), dtype=np.int8)
+            padded[:, 1:-1] = self.visible[rows]
+            step = np.diff(padded, axis=1)                 # (rows, T+1)
+            rise_r, rise_k = np.nonzero(step == 1)         # first True sample index
+            _, set_k = np.nonzero(step == -1)              # first False sample index (T = none)
+            # np.nonzero scans row-major, so the k-th rise and the k-th set are one pass.
+            rise_t = times[rise_k]
+            set_t = np.where(set_k < n_t, times[np.minimum(set_k, n_t - 1)], math.inf)
+            for r_i, r, st in zip(rise_r.tolist(), rise_t.tolist(), set_t.tolist()):
+                if r < t_end:
+                    grid[int(rows[r_i])].append((r, st))
+        for sid, passes in refined.items():
+            grid[index[sid]] = _normalise_passes(passes, sid, t0, t_end)
         return tuple(tuple(p) for p in grid)
 
     @property
@@ -537,15 +567,18 @@ def _cached(inp: TimelineInputs, name: str, make: Callable[[], Any]) -> Any:
 
 def _rank_order(inp: TimelineInputs, k: int) -> list[int]:
     """All satellites in search order at grid index k: highest priority first, ties by
-    index, non-finite priorities last. The same for every run: one stable argsort of the
-    whole grid, kept on the inputs, and each column's list cached."""
+    index, non-finite priorities last (the priority looked up as :func:`_lookup` does).
+    The same for every run: one stable argsort of column k, cached on the inputs (a
+    timeline asks for a few hundred of the grid's columns at most)."""
     orders = _cached(inp, "rank_orders", dict)
     order = orders.get(k)
     if order is None:
-        def make():
-            pr = _with_next(inp.priority, inp.visible.shape)
-            return np.argsort(np.where(np.isfinite(pr), -pr, np.inf), axis=0, kind="stable")
-        order = orders[k] = _cached(inp, "rank_argsort", make)[:, k].tolist()
+        pr = inp.priority[:, k]
+        bad = ~np.isfinite(pr)
+        if bad.any() and k + 1 < inp.priority.shape[1]:
+            pr = np.where(bad, inp.priority[:, k + 1], pr)
+        key = np.where(np.isfinite(pr), -pr, np.inf)
+        order = orders[k] = np.argsort(key, kind="stable").tolist()
     return order
 
 
@@ -688,13 +721,11 @@ def _to_timeline(inp: TimelineInputs, run: _Run) -> Timeline:
 
 
 def _expected_duration(inp: TimelineInputs) -> DurationFn:
-    shape = inp.visible.shape
-    first, later = _cached(inp, "expected_with_next", lambda: (
-        _with_next(inp.expected_search_first_s, shape),
-        _with_next(inp.expected_search_after_s, shape)))
+    first, later = inp.expected_search_first_s, inp.expected_search_after_s
+    n_t = inp.times_unix_s.size
 
     def duration(s: int, k: int, after: bool) -> float | None:
-        d = float((later if after else first)[s, k])
+        d = _lookup(later if after else first, s, k, n_t)
         return d if math.isfinite(d) else None
 
     return duration
