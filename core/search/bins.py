@@ -54,14 +54,16 @@ def _float_array(value: ArrayLike, name: str, *, positive: bool = False,
     except (TypeError, ValueError):
         raise InputError(f"{name} must be a number or an array of numbers, got {value!r}",
                          field=name) from None
-    bad = np.isinf(arr) if allow_nan else ~np.isfinite(arr)
-    if np.any(bad):
+    if allow_nan:
+        if np.any(np.isinf(arr)):
+            raise InputError(f"{name} must be finite", field=name)
+    elif not np.all(np.isfinite(arr)):
         raise InputError(f"{name} must be finite", field=name)
-    finite = arr[np.isfinite(arr)]
-    if positive and np.any(finite <= 0):
-        raise InputError(f"{name} must be > 0, got {finite[finite <= 0].flat[0]:g}", field=name)
-    if nonnegative and np.any(finite < 0):
-        raise InputError(f"{name} must be >= 0, got {finite[finite < 0].flat[0]:g}", field=name)
+    # What is left is finite or NaN, and NaN compares False: no need to filter it out.
+    if positive and np.any(arr <= 0):
+        raise InputError(f"{name} must be > 0, got {arr[arr <= 0].flat[0]:g}", field=name)
+    if nonnegative and np.any(arr < 0):
+        raise InputError(f"{name} must be >= 0, got {arr[arr < 0].flat[0]:g}", field=name)
     return arr
 
 
@@ -191,8 +193,8 @@ def design_bins(coherent_s: float, max_loss_db: float) -> BinDesign:
 # --------------------------------------------------------------------------- tiling
 
 def _check_window(low: np.ndarray, high: np.ndarray) -> None:
-    both = np.isfinite(low) & np.isfinite(high)
-    if np.any(high[both] < low[both]):
+    # Edges are finite or NaN (checked before); a NaN edge compares False.
+    if np.any(high < low):
         raise InputError("the window's high_hz is below its low_hz", field="high_hz")
 
 
@@ -209,11 +211,15 @@ def bin_count(low_hz: ArrayLike, high_hz: ArrayLike, bin_width_hz: ArrayLike) ->
     width = _float_array(bin_width_hz, "bin_width_hz", positive=True)
     low, high, width = np.broadcast_arrays(low, high, width)
     _check_window(low, high)
-    valid = np.isfinite(low) & np.isfinite(high)
-    with np.errstate(invalid="ignore"):
-        ratio = np.where(valid, (high - low) / width, 0.0)
-    n = np.ceil(ratio * (1.0 - WHOLE_NUMBER_RTOL))
-    n = np.where(valid, np.maximum(n, 1.0), 0.0).astype(np.int64)
+    # The ratio is NaN exactly where an edge is NaN (the edges hold no infinity and the
+    # width is finite and > 0); worked in place on one array.
+    ratio = np.asarray(high - low, dtype=float)
+    ratio /= width
+    ratio *= 1.0 - WHOLE_NUMBER_RTOL
+    np.ceil(ratio, out=ratio)
+    np.maximum(ratio, 1.0, out=ratio)
+    np.copyto(ratio, 0.0, where=np.isnan(ratio))
+    n = ratio.astype(np.int64)
     return int(n) if n.ndim == 0 else n
 
 
@@ -224,10 +230,19 @@ def bin_centres(low_hz: float, high_hz: float, bin_width_hz: float) -> np.ndarra
     bin's lower edge is at or below ``low_hz`` and the last bin's upper edge at or above
     ``high_hz`` (the excess ``n * width - span`` is split equally at both ends).
     """
-    low = float(_float_array(low_hz, "low_hz"))
-    high = float(_float_array(high_hz, "high_hz"))
-    width = float(_float_array(bin_width_hz, "bin_width_hz", positive=True))
-    n = int(bin_count(low, high, width))
+    try:    # plain numbers: checked and counted as bin_count does, without arrays
+        low, high, width = float(low_hz), float(high_hz), float(bin_width_hz)
+        plain = math.isfinite(low) and math.isfinite(high) and math.isfinite(width) \
+            and width > 0 and high >= low
+    except (TypeError, ValueError):
+        plain = False
+    if plain:
+        n = max(math.ceil((high - low) / width * (1.0 - WHOLE_NUMBER_RTOL)), 1)
+    else:
+        low = float(_float_array(low_hz, "low_hz"))
+        high = float(_float_array(high_hz, "high_hz"))
+        width = float(_float_array(bin_width_hz, "bin_width_hz", positive=True))
+        n = int(bin_count(low, high, width))
     if n > MAX_LISTED_BINS:
         raise InputError(f"{n} bins of {width:g} Hz: more than the {MAX_LISTED_BINS} that are "
                          "listed one by one; narrow the span", field="span_hz")

@@ -75,6 +75,8 @@ def _probability(value: ArrayLike, name: str, *, zero_ok: bool = False,
 
 def _count(value: ArrayLike, name: str) -> np.ndarray:
     arr = _float_array(value, name, lo=1.0)
+    if isinstance(value, np.ndarray) and value.dtype.kind in "iu":
+        return arr                                   # whole numbers already
     if np.any(arr != np.round(arr)):
         raise InputError(f"{name} must be a whole number >= 1", field=name)
     return arr

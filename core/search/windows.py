@@ -412,28 +412,52 @@ def oscillator_fraction_after(w: DopplerWindows, carrier_hz: np.ndarray, sats, k
     predicted true Doppler is uncertain by its own non-oscillator terms U1. The oscillator
     is then known to within (half bin + U1) / f_c1.
     """
-    lo1, hi1 = w.non_oscillator_extent_hz()
     sats, ks = np.asarray(sats, dtype=int), np.asarray(ks, dtype=int)
-    u1 = np.maximum(-lo1[sats, ks], hi1[sats, ks])
+    # the non-oscillator extents (DopplerWindows.non_oscillator_extent_hz) at those samples only
+    shape = np.shape(w.nominal_hz)
+    lo1 = sum(np.broadcast_to(v, shape)[sats, ks] for k, v in w.terms_low_hz.items()
+              if k != "oscillator")
+    hi1 = sum(np.broadcast_to(v, shape)[sats, ks] for k, v in w.terms_high_hz.items()
+              if k != "oscillator")
+    u1 = np.maximum(-lo1, hi1)
     half = np.broadcast_to(np.asarray(bin_half_width_hz, dtype=float), u1.shape)
     return float(np.max((half + u1) / np.asarray(carrier_hz, dtype=float)[sats]))
 
 
+def terms_before_oscillator(w: DopplerWindows) -> tuple[np.ndarray | float, np.ndarray | float]:
+    """The sums (low, high) of the terms that come before the oscillator term, in the
+    windows' order: what :func:`windows_after_first_acquisition` adds the new oscillator
+    term to. They do not depend on the oscillator fraction, so a caller that narrows the
+    same windows for several fractions can compute them once."""
+    def before(terms: dict) -> np.ndarray | float:
+        names = list(terms)
+        return sum(terms[k] for k in names[:names.index("oscillator")])
+    return before(w.terms_low_hz), before(w.terms_high_hz)
+
+
 def windows_after_first_acquisition(w: DopplerWindows, carrier_hz: np.ndarray,
-                                    oscillator_fraction: float) -> DopplerWindows:
+                                    oscillator_fraction: float,
+                                    before: tuple | None = None) -> DopplerWindows:
     """Windows once the oscillator is measured to within ``oscillator_fraction``
     (see :func:`oscillator_fraction_after`): the oscillator term of every satellite j
     becomes f_cj x fraction, but never wider than before the acquisition. The window is
     centred on the nominal (the receiver's corrected oscillator estimate is unknown at
-    planning time, only its accuracy is)."""
-    osc = np.asarray(carrier_hz, dtype=float)[:, None] * oscillator_fraction * np.ones_like(w.nominal_hz)
+    planning time, only its accuracy is). ``before``: :func:`terms_before_oscillator`
+    of ``w``, when the caller has it (the same sums, in the same order)."""
+    osc = np.asarray(carrier_hz, dtype=float)[:, None] * oscillator_fraction   # (S, 1)
     lows = dict(w.terms_low_hz)
     highs = dict(w.terms_high_hz)
     lows["oscillator"] = np.maximum(-osc, w.terms_low_hz["oscillator"])
     highs["oscillator"] = np.minimum(osc, w.terms_high_hz["oscillator"])
-    low = w.nominal_hz + sum(lows.values())
-    high = w.nominal_hz + sum(highs.values())
-    return DopplerWindows(w.nominal_hz, low, high, lows, highs)
+    low_before, high_before = terms_before_oscillator(w) if before is None else before
+    after = list(lows)[list(lows).index("oscillator") + 1:]
+    # Summed in the windows' order, as sum(lows.values()) would.
+    low = low_before + lows["oscillator"]
+    high = high_before + highs["oscillator"]
+    for k in after:
+        low = low + lows[k]
+        high = high + highs[k]
+    return DopplerWindows(w.nominal_hz, w.nominal_hz + low, w.nominal_hz + high, lows, highs)
 
 
 def _sliding(x: np.ndarray, half: int, fn) -> np.ndarray:
