@@ -31,6 +31,7 @@ import time as _time
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from functools import lru_cache
+from typing import Any
 
 import numpy as np
 
@@ -61,6 +62,7 @@ from ..search.windows import (
     full_range_windows,
     oscillator_fraction_after,
     shift_summary,
+    terms_before_oscillator,
     windows_after_first_acquisition,
 )
 from ..sky.predict import Pass, Prediction, check_grid_size, passes, predict
@@ -104,6 +106,8 @@ class PreparedGeometry:
     warnings: list[str]
     propagate_s: float
     window_cache: dict = field(default_factory=dict)
+    # Values derived from the geometry and a few settings (see _reuse), one per name.
+    derived: dict = field(default_factory=dict)
     # A drive along a route (core.plan.events): the receiver's motion over the grid for
     # the windows, and the surroundings' attenuation (dB) per (S, T) for the C/N0.
     motion: RouteMotion | None = None
@@ -202,6 +206,33 @@ def check_plan_size(n_satellites: int, start_unix_s: float, end_unix_s: float, s
     grows with satellites x time steps; the limit keeps it within about 1 GB)."""
     check_grid_size(n_satellites, end_unix_s - start_unix_s, step_s, PLAN_MAX_SATELLITE_STEPS,
                     what="plan's", step_option="a [time] step_s", field="time.step_s")
+
+
+def _reuse(g: PreparedGeometry, name: str, key: tuple, make: Callable[[], Any],
+           same: tuple = ()) -> Any:
+    """A value that depends on the geometry, on the settings in ``key`` (compared by
+    value) and on the objects in ``same`` (compared by identity) only, kept on the
+    prepared geometry (one per name, the last key asked for): a re-plan that changes
+    other settings takes it as it is. Arrays kept this way are made read-only, since
+    several plans share them."""
+    # The geometry's parts, compared by identity: a copy of the geometry given another
+    # prediction or visibility (tests do that) must not take the values of the original.
+    parts = (g.prediction, g.visible, g.orbits, g.grid, g.passes, g.shifted, g.motion,
+             g.extra_loss_db, g.full_range_hz) + tuple(same)
+    entry = g.derived.get(name)
+    if entry is not None and entry[0] == key and all(a is b for a, b in zip(entry[1], parts)):
+        return entry[2]
+    value = make()
+    g.derived[name] = (key, parts, value)
+    return value
+
+
+def _frozen(arr: Any, dtype: Any = None) -> np.ndarray:
+    """An array this module has just made (or its conversion to ``dtype``), made
+    read-only in place: the timeline inputs and later plans then share it uncopied."""
+    a = np.asarray(arr, dtype=dtype)
+    a.setflags(write=False)
+    return a
 
 
 def _report(progress: ProgressFn | None, fraction: float, text: str) -> None:
@@ -393,7 +424,13 @@ class OrbitMargins:
 
 
 def orbit_margins(search: SearchSpec, g: PreparedGeometry) -> OrbitMargins:
-    """Stage 1: the Doppler and range margins for orbit-data error at each grid time."""
+    """Stage 1: the Doppler and range margins for orbit-data error at each grid time
+    (kept on the geometry for re-plans with the same ``orbit_margin_hz``)."""
+    return _reuse(g, "orbit_margins", (search.orbit_margin_hz,),
+                  lambda: _orbit_margins(search, g))
+
+
+def _orbit_margins(search: SearchSpec, g: PreparedGeometry) -> OrbitMargins:
     pred, orbits, grid = g.prediction, g.orbits, g.grid
     n_s, n_t = pred.elevation_deg.shape
     age = orbit_data_age_s(orbits, grid.unix_s)                      # (S, T) seconds
@@ -406,7 +443,8 @@ def orbit_margins(search: SearchSpec, g: PreparedGeometry) -> OrbitMargins:
     range_margin = np.stack([orbit_range_margin_m(k, a) for k, a in zip(kinds, age)])
     old = sorted({e.info.sat_id for e, k, a in zip(orbits.entries, kinds, age)
                   if bool(np.any(margin_extrapolated(k, a)))})
-    return OrbitMargins(margin_t, range_margin, age, kinds, old_data_warnings(search, old))
+    return OrbitMargins(_frozen(margin_t), _frozen(range_margin), _frozen(age), kinds,
+                        old_data_warnings(search, old))
 
 
 def old_data_warnings(search: SearchSpec, old: list[str]) -> list[str]:
@@ -446,8 +484,11 @@ def first_windows(g: PreparedGeometry, unc: Uncertainty, margins: OrbitMargins
     """Stage 2: Doppler windows before any acquisition, as computed (``raw``) and widened
     for unknown GLONASS channels. They depend on the uncertainties and the margin only,
     so they are cached on the prepared geometry."""
-    wkey = (unc, margins.doppler_hz.tobytes())
-    cached = g.window_cache.get(wkey)
+    entry = g.window_cache.get("windows")
+    cached = None
+    if entry is not None and entry[0] == unc and (
+            entry[1] is margins.doppler_hz or np.array_equal(entry[1], margins.doppler_hz)):
+        cached = entry[2]
     if cached is None:
         if g.full_range_hz is not None:
             w_raw = full_range_windows(g.prediction, unc, g.full_range_hz, g.full_range_speed_m_s)
@@ -456,7 +497,7 @@ def first_windows(g: PreparedGeometry, unc: Uncertainty, margins: OrbitMargins
                                     motion=g.motion)
         cached = (w_raw, _widen_for_unknown_k(w_raw, unknown_glonass_k(g)))
         g.window_cache.clear()
-        g.window_cache[wkey] = cached
+        g.window_cache["windows"] = (unc, margins.doppler_hz, cached)
     return cached
 
 
@@ -521,8 +562,8 @@ def integration(sc: Scenario, signal_ids: list[str]) -> Integration:
         code_loss_db[rows] = code_loss[sid].average_loss_db
     width = np.array([design[x].bin_width_hz for x in signal_ids])[:, None]
     avg_freq_loss = np.array([design[x].average_loss_db for x in signal_ids])[:, None]
-    offsets = {sid: detection.cell_offsets(design[sid].coherent_ms / 1000.0, design[sid].bin_width_hz,
-                                           step, code_loss[sid].shape) for sid in design}
+    offsets = {sid: _cell_offsets(design[sid].coherent_ms / 1000.0, design[sid].bin_width_hz,
+                                  step, code_loss[sid].shape) for sid in design}
     return Integration(design, code_loss, tc_s, n_nc, transition_db, code_loss_db, width,
                        avg_freq_loss, warnings, offsets)
 
@@ -544,7 +585,17 @@ class CodeWindows:
 def code_windows(sc: Scenario, g: PreparedGeometry, unc: Uncertainty,
                  margins: OrbitMargins) -> CodeWindows:
     """Stage 4: the code window: the whole code, or with fine time the range uncertainty
-    (position, satellite motion over the fine-time error, orbit margin, satellite clock)."""
+    (position, satellite motion over the fine-time error, orbit margin, satellite clock).
+    Kept on the geometry for re-plans with the same fine time, code step and position
+    uncertainty."""
+    key = (sc.search.fine_time_uncertainty_us, sc.search.code_step_chips, unc.horizontal_m,
+           unc.vertical_m)
+    return _reuse(g, "code_windows", key, lambda: _code_windows(sc, g, unc, margins),
+                  same=(margins,))
+
+
+def _code_windows(sc: Scenario, g: PreparedGeometry, unc: Uncertainty,
+                  margins: OrbitMargins) -> CodeWindows:
     pred = g.prediction
     n_s, n_t = pred.elevation_deg.shape
     signals = [SIGNALS[s] for s in g.signal_ids]
@@ -579,8 +630,8 @@ def code_windows(sc: Scenario, g: PreparedGeometry, unc: Uncertainty,
         cw_first = np.minimum(2.0 * (non_clock + np.asarray(budget.clock_m)) / chip_m, code_len)
         cw_after_base = non_clock
     cells_first = np.maximum(codephase.code_cells(cw_first, sc.search.code_step_chips), 1)
-    return CodeWindows(cw_first, cw_after_base, cells_first, code_len, chip_m, fine is not None,
-                       warnings)
+    return CodeWindows(_frozen(cw_first), _frozen(cw_after_base), _frozen(cells_first),
+                       _frozen(code_len), _frozen(chip_m), fine is not None, warnings)
 
 
 @dataclass(frozen=True)
@@ -601,16 +652,22 @@ def detection_figures(sc: Scenario, g: PreparedGeometry, integ: Integration,
     (surroundings) on top of the scenario's ``[signal] extra_loss_db``. Failed
     propagation samples count as below the mask: never searched."""
     pred = g.prediction
-    el_ok = np.where(pred.valid, pred.elevation_deg, -90.0)
-    cn0 = detection.cn0_at_elevation_dbhz(el_ok, sc.signal.cn0_zenith_dbhz,
-                                          sc.signal.cn0_at_mask_dbhz, sc.mask.elevation_deg)
+    sig = sc.signal
+
+    def elevation_cn0():
+        el_ok = np.where(pred.valid, pred.elevation_deg, -90.0)
+        return _frozen(detection.cn0_at_elevation_dbhz(el_ok, sig.cn0_zenith_dbhz,
+                                                       sig.cn0_at_mask_dbhz, sc.mask.elevation_deg))
+
+    cn0 = _reuse(g, "elevation_cn0", (sig.cn0_zenith_dbhz, sig.cn0_at_mask_dbhz,
+                                      sc.mask.elevation_deg), elevation_cn0)
     losses_db = (sc.signal.extra_loss_db + integ.average_frequency_loss_db
                  + (integ.code_loss_db + integ.transition_db)[:, None])
     # Pd is the mean over the signal's offset within its cell (frequency uniform in the
     # bin, code uniform in the step), not Pd at the mean loss, which overstates it by up
     # to 0.04: the offset losses enter through integ.offsets, the rest as a C/N0 shift.
     other_db = sc.signal.extra_loss_db + integ.transition_db[:, None] + extra_loss_db
-    cn0_centre = np.asarray(cn0) - other_db
+    cn0_centre = cn0 - other_db
     pfa = sc.search.false_alarm_per_cell
     row_offsets = [integ.offsets[sid] for sid in g.signal_ids]
     pd = _pd_by_table(np.asarray(cn0_centre, dtype=float), integ.coherent_s, integ.noncoherent,
@@ -621,7 +678,7 @@ def detection_figures(sc: Scenario, g: PreparedGeometry, integ: Integration,
         coh_ms, nc = sc.search.integration_for(sid)
         sens[sid] = _sensitivity_dbhz(float(pfa), int(nc), integ.offsets[sid],
                                       float(sc.signal.extra_loss_db + integ.transition_db[row]))
-    return DetectionFigures(np.asarray(cn0), losses_db, pd, sens)
+    return DetectionFigures(cn0, losses_db, _frozen(pd), sens)
 
 
 def search_costs(sc: Scenario, integ: Integration, det: DetectionFigures,
@@ -658,19 +715,35 @@ def timeline_inputs(sc: Scenario, g: PreparedGeometry, integ: Integration,
     acquisition and the "after" costs from then on."""
     pred = g.prediction
     n_s, n_t = pred.elevation_deg.shape
+    # Read-only arrays, shared by the two timeline inputs of a plan (and the geometry's
+    # visibility and priority by every re-plan), so that TimelineInputs copies none.
+    visible = _reuse(g, "visible", (), lambda: _frozen(g.visible.copy()))
+    priority = _reuse(g, "priority", (sc.search.priority,), lambda: _frozen(
+        np.where(g.visible, _priority(sc.search.priority, pred), -1000.0)))
+    first = _timeline_costs(g, "first", cost_first)
+    after = _timeline_costs(g, "after", cost_after)
+    dwell = _frozen(np.array(integ.dwell_s, dtype=float)[:, None])
     return tl.TimelineInputs(
-        times_unix_s=g.grid.unix_s, sat_ids=tuple(pred.ids), visible=g.visible,
-        priority=np.where(g.visible, _priority(sc.search.priority, pred), -1000.0),
-        expected_search_first_s=np.where(g.visible, cost_first.expected_search_s, np.inf),
-        expected_search_after_s=np.where(g.visible, cost_after.expected_search_s, np.inf),
+        times_unix_s=g.grid.unix_s, sat_ids=tuple(pred.ids), visible=visible,
+        priority=priority,
+        expected_search_first_s=first[0], expected_search_after_s=after[0],
         n_channels=sc.receiver.channels, first_fix_satellites=sc.search.first_fix_satellites,
         ephemeris_wait_s=sc.search.ephemeris_wait_s,
-        q_first=np.asarray(cost_first.positions), q_after=np.asarray(cost_after.positions),
+        q_first=first[1], q_after=after[1],
         pd_first=det.pd, pd_after=det.pd,
-        pfa_position=np.asarray(cost_first.pfa_position),
-        pfa_position_after=np.asarray(cost_after.pfa_position),
-        dwell_s=np.broadcast_to(integ.dwell_s[:, None], (n_s, n_t)).copy(),
+        pfa_position=first[2], pfa_position_after=after[2],
+        dwell_s=np.broadcast_to(dwell, (n_s, n_t)),
         penalty_s=sc.search.false_alarm_penalty_s, set_unix_s=refined)
+
+
+def _timeline_costs(g: PreparedGeometry, name: str, cost) -> tuple[np.ndarray, ...]:
+    """The timeline's read-only view of a search cost: the expected search time where
+    visible (inf elsewhere), the positions (float) and the Pfa per position; made once
+    per cost object (a plan's first timeline and its final one share the first costs)."""
+    return _reuse(g, f"timeline_costs_{name}", (), lambda: (
+        _frozen(np.where(g.visible, cost.expected_search_s, np.inf)),
+        _frozen(cost.positions, dtype=float), _frozen(cost.pfa_position, dtype=float)),
+        same=(cost,))
 
 
 @dataclass(frozen=True)
@@ -704,7 +777,10 @@ def after_first_acquisition(sc: Scenario, g: PreparedGeometry, integ: Integratio
     c_s = [c[0] for c in candidates]
     c_k = [c[1] for c in candidates]
     frac = oscillator_fraction_after(w_first, pred.carrier_hz, c_s, c_k, half[c_s, 0])
-    w_after = _widen_for_unknown_k(windows_after_first_acquisition(w_raw, pred.carrier_hz, frac),
+    before = _reuse(g, "terms_before_oscillator", (), lambda: terms_before_oscillator(w_raw),
+                    same=(w_raw,))
+    w_after = _widen_for_unknown_k(windows_after_first_acquisition(w_raw, pred.carrier_hz, frac,
+                                                                   before),
                                    unknown_glonass_k(g))
     if not cw.fine_time:
         cw_after = cw.first_chips
@@ -792,7 +868,8 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
     _report(progress, 0.75, "channel timeline")
     after = after_first_acquisition(sc, g, integ, cw, w_raw, w_first,
                                     timeline_inputs(sc, g, integ, det, cost_first, cost_first, refined))
-    cells_after = np.maximum(codephase.code_cells(after.code_window_chips, sc.search.code_step_chips), 1)
+    cells_after = cw.cells_first if after.code_window_chips is cw.first_chips else \
+        np.maximum(codephase.code_cells(after.code_window_chips, sc.search.code_step_chips), 1)
     bins_after, cost_after = search_costs(sc, integ, det, after.windows, cells_after)
     inputs = timeline_inputs(sc, g, integ, det, cost_first, cost_after, refined)
     timeline = tl.expected_timeline(inputs)
@@ -854,9 +931,20 @@ def _design_bins(coherent_s: float, max_loss_db: float) -> binlib.BinDesign:
     return binlib.design_bins(coherent_s, max_loss_db)
 
 
+@lru_cache(maxsize=64)
+def _cell_offsets(coherent_s: float, bin_width_hz: float, step_chips: float,
+                  shape: str) -> detection.CellOffsets:
+    """core.search.detection.cell_offsets, cached (a pure function of its four numbers;
+    every re-plan asks for the same few). The arrays are made read-only: plans share them."""
+    off = detection.cell_offsets(coherent_s, bin_width_hz, step_chips, shape)
+    off.loss_db.setflags(write=False)
+    off.weight.setflags(write=False)
+    return off
+
+
 @lru_cache(maxsize=256)
 def _sensitivity_cached(pfa: float, n: int, offsets_key: tuple, losses_db: float) -> float:
-    offsets = detection.cell_offsets(*offsets_key)
+    offsets = _cell_offsets(*offsets_key)
     return detection.expected_sensitivity_dbhz(pfa, 0.9, n, offsets, losses_db)
 
 
@@ -864,6 +952,46 @@ def _sensitivity_dbhz(pfa: float, n: int, offsets: detection.CellOffsets, losses
     """C/N0 at which the expected Pd over the cell offsets is 0.9 (the same Pd as the
     plan's, core.search.detection.expected_sensitivity_dbhz; cached per design)."""
     return _sensitivity_cached(pfa, n, offsets.key, losses_db)
+
+
+# Step (dB) of the C/N0 grid on which Pd is tabulated (see _pd_by_table).
+PD_TABLE_STEP_DB = 0.01
+
+
+@lru_cache(maxsize=64)
+def _expected_pd_table(coherent_s: float, n: int, pfa: float, offsets_key: tuple,
+                       first: int, top: int, end: int) -> np.ndarray:
+    """The expected Pd over the cell offsets at the C/N0 nodes ``h k`` for k = top ..
+    end - 1 (h = PD_TABLE_STEP_DB), from the detector's Pd at the nodes first .. end - 1
+    (see :func:`_pd_by_table`); read-only. A pure function of its arguments, cached: a
+    re-plan that returns to a setting, every event of a drive and every departure of a
+    sweep with the same C/N0 span ask for the same."""
+    off = _cell_offsets(*offsets_key)
+    h = PD_TABLE_STEP_DB
+    grid = h * np.arange(first, end)
+    thr = detection.threshold_for_pfa(pfa, n)
+    base = np.asarray(detection.detection_probability(
+        detection.coherent_snr_linear(grid, coherent_s), n, thr))
+    j0 = top - first                                  # top nodes = grid[j0:]
+    n_top = end - top
+    # Pd at node - loss_k, linear between the grid's nodes, summed with the weights:
+    # h k - loss_k lies a fixed (fractional) number of steps below node k, so the sum
+    # over the offset nodes is one short correlation of the detector's table with a
+    # kernel of (step, weight) taps (equal to interpolating each shift, to rounding).
+    shift = off.loss_db / h
+    below = np.floor(shift).astype(np.int64)          # whole steps below, and the rest
+    frac = shift - below
+    lags = np.concatenate([below, below + 1])         # base index j0 + j - lag
+    taps = np.concatenate([off.weight * (1.0 - frac), off.weight * frac])
+    kernel = np.zeros(int(lags.max()) + 1)
+    np.add.at(kernel, lags, taps)
+    start = j0 - kernel.size + 1                      # first base index the kernel reaches
+    # (the grid reaches down by the worst loss; should rounding leave it a node short,
+    # Pd below the grid is its first value, as np.interp would take it)
+    seg = base[start:] if start >= 0 else np.concatenate([np.full(-start, base[0]), base])
+    table = np.convolve(seg, kernel, mode="valid")[:n_top]
+    table.setflags(write=False)
+    return table
 
 
 def _pd_by_table(cn0_centre_dbhz: np.ndarray, coherent_s: np.ndarray, n_nc: np.ndarray,
@@ -878,28 +1006,40 @@ def _pd_by_table(cn0_centre_dbhz: np.ndarray, coherent_s: np.ndarray, n_nc: np.n
     by less than 1.3e-6 [calc: |Pd''| < 0.1 per dB^2 times h^2/8]; test_plan checks the
     result against a direct evaluation to 2e-5). The elevation model holds C/N0 at its
     mask value below the mask, so every sample has a finite value. This keeps a re-plan
-    fast on long windows, where the direct non-central chi-square would dominate."""
-    pd = np.zeros_like(cn0_centre_dbhz)
-    keys = [(float(t), int(n), off.key) for t, n, off in zip(coherent_s, n_nc, offsets)]
-    for key in set(keys):
-        tc, n, _ = key
-        rows = np.array([i for i, k in enumerate(keys) if k == key])
-        off = offsets[int(rows[0])]
-        sub = cn0_centre_dbhz[rows]
+    fast on long windows, where the direct non-central chi-square would dominate: the
+    tables are cached per (setting, node range) and the samples are looked up on the
+    lattice by index."""
+    pd = np.empty_like(cn0_centre_dbhz, dtype=float)
+    groups: dict[tuple, list[int]] = {}
+    for i, (t, n, off) in enumerate(zip(coherent_s, n_nc, offsets)):
+        groups.setdefault((float(t), int(n), off.key), []).append(i)
+    for (tc, n, okey), row_list in groups.items():
+        whole = len(row_list) == cn0_centre_dbhz.shape[0]
+        rows = slice(None) if whole else np.array(row_list)
+        sub = cn0_centre_dbhz if whole else cn0_centre_dbhz[rows]
         lo, hi = float(np.min(sub)), float(np.max(sub))
-        reach = float(np.max(off.loss_db))
-        h = 0.01
+        reach = float(np.max(_cell_offsets(*okey).loss_db))
+        h = PD_TABLE_STEP_DB
         # Nodes on the fixed lattice h * integer (not from lo): any part of the window
-        # (a block of a long plan, core.plan.long_window) gets the same values.
-        grid = h * np.arange(math.floor((lo - reach) / h) - 2, math.ceil(hi / h) + 3)
-        thr = detection.threshold_for_pfa(pfa, n)
-        base = np.asarray(detection.detection_probability(
-            detection.coherent_snr_linear(grid, tc), n, thr))
-        top = grid[grid >= lo - h]
-        expected = np.zeros_like(top)
-        for loss, w in zip(off.loss_db, off.weight):
-            expected += w * np.interp(top - loss, grid, base)
-        pd[rows] = np.interp(sub, top, expected)
+        # (a block of a long plan, core.plan.long_window) gets the same values. The
+        # detector's table reaches down by the worst offset loss; the expected one
+        # starts at the first node at or above lo - h.
+        first, end = math.floor((lo - reach) / h) - 2, math.ceil(hi / h) + 3
+        top = math.ceil((lo - h) / h)
+        top -= 1 if h * (top - 1) >= lo - h else 0
+        top += 1 if h * top < lo - h else 0
+        table = _expected_pd_table(tc, n, float(pfa), okey, first, top, end)
+        # Linear interpolation between the nodes h (top + i) (as np.interp there).
+        u = sub - h * top
+        u /= h
+        k = u.astype(np.intp)                           # u >= 0: the node at or below
+        np.clip(k, 0, table.size - 2, out=k)
+        u -= k
+        step = np.diff(table)
+        val = step[k]
+        val *= u
+        val += table[k]
+        pd[rows] = val
     return pd
 
 
