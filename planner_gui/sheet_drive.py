@@ -172,7 +172,8 @@ def event_facts(ctx, ev) -> list[tuple[str, str]]:
     knows = []
     knows.append("time: nothing" if k.time_uncertainty_s is None else f"time ±{k.time_uncertainty_s:g} s")
     knows.append("position: nothing" if k.horizontal_uncertainty_km is None
-                 else f"position ±{k.horizontal_uncertainty_km:g} km, ±{k.vertical_uncertainty_m:g} m up")
+                 else f"position ±{k.horizontal_uncertainty_km:g} km, ±{k.vertical_uncertainty_m:g} m up"
+                 + (f", ±{k.along_route_m / 1000.0:.2f} km along the route" if k.along_route_m else ""))
     knows.append(f"oscillator ±{k.oscillator_uncertainty_ppb:g} ppb")
     knows.append(f"ephemeris after {k.ephemeris_wait_s:g} s")
     ff = ev.first_fix_unix_s

@@ -112,8 +112,51 @@ def test_outage_growth_and_window_order(demo_dir, tmp_path):
     # Clock: 1 us + 20 ppb x 60 s + 0.2 ppb/s x 60^2 / 2 = 2.56 us [calc]
     assert reacquire_time_uncertainty_s(60.0, 0.2) == pytest.approx(2.56e-6, rel=1e-9)
     assert rq.event.knowledge.fine_time_us == pytest.approx(2.56, rel=1e-6)
-    # Position: hot 0.05 km + 1.4 km driven + 10 km/h x 60 s = 1.6167 km [calc]
-    assert rq.event.knowledge.horizontal_uncertainty_km == pytest.approx(0.05 + 1.4 + 10 / 3.6 * 60 / 1000, rel=1e-6)
+    # Position: the hot start's 0.05 km disc, and along the route +- 10 km/h x 60 s =
+    # +- 166.7 m [calc: the speed uncertainty over the outage]
+    assert rq.event.knowledge.horizontal_uncertainty_km == pytest.approx(0.05)
+    assert rq.event.knowledge.along_route_m == pytest.approx(10 / 3.6 * 60, rel=1e-9)
+    assert hot.event.knowledge.along_route_m == 0.0 and warm.event.knowledge.along_route_m == 0.0
+
+
+def test_reacquisition_range_along_the_route_against_the_disc(drive):
+    # After the demo's tunnel (1.4 km at 70 km/h, 72 s): the range of +- speed uncertainty
+    # x outage along the road [calc] against the disc of radius 0.05 km + driven + that
+    # slip searched before (same geometry, margins and every other term). The position
+    # share shrinks everywhere; the whole window at the event too, though less: the range
+    # along the road also brings the road's own motion there (the tunnel's 70 km/h legs),
+    # which the disc took from the nominal legs only, and the +-3 min schedule slip stays.
+    from dataclasses import replace
+
+    from core.plan.pipeline import acquisition_uncertainty, first_windows, orbit_margins
+    from core.search.motion import route_motion
+
+    sc, dp = drive
+    r = next(e for e in dp.events if e.event.kind == "reacquire" and e.event.origin == "outage")
+    k = r.event.knowledge
+    L, driven = r.event.outage_s, r.event.outage_driven_m
+    dv = 10 / 3.6                                       # the demo's speed_uncertainty_kmh
+    assert L == pytest.approx(1400.0 / (70 / 3.6), rel=1e-6) and driven == pytest.approx(1400.0, abs=0.01)
+    assert k.along_route_m == pytest.approx(dv * L, rel=1e-9) and k.horizontal_uncertainty_km == 0.05
+    g = r.plan.prepared
+    margins = orbit_margins(r.plan.scenario.search, g)
+    unc = acquisition_uncertainty(r.plan.scenario)
+    w_along = first_windows(g, unc, margins)[1]
+    assert np.allclose(w_along.width_hz, r.plan.windows_first.width_hz)
+    mu = replace(dp.drive.motion, along_m=0.0)
+    g_disc = replace(g, motion=route_motion(dp.drive.route, g.grid.unix_s, mu), window_cache={})
+    unc_disc = replace(unc, horizontal_m=50.0 + driven + dv * L)
+    w_disc = first_windows(g_disc, unc_disc, margins)[1]
+    vis = r.plan.visible
+    pos = w_along.share_hz["position"][vis] / w_disc.share_hz["position"][vis]
+    assert np.all(pos < 1.0)
+    at_event = w_along.width_hz[vis[:, 0], 0] / w_disc.width_hz[vis[:, 0], 0]
+    assert np.all(at_event < 1.0)
+    ratio = w_along.width_hz[vis] / w_disc.width_hz[vis]
+    print(f"re-acquisition window along the route / disc on {r.event.id} (median over satellites): "
+          f"{np.median(at_event):.3f} at the event ({at_event.min():.3f}-{at_event.max():.3f}), "
+          f"{np.median(ratio):.3f} over its plan (max {ratio.max():.3f}); position share "
+          f"{np.median(pos):.3f} (max {pos.max():.3f})")
 
 
 def _iso(u):

@@ -1,8 +1,9 @@
 """Doppler windows along a route against brute force with skyfield.
 
 For each visible satellite we draw points of the drive inside the stated uncertainties:
-where the vehicle is (anywhere the schedule slip allows along the route, then inside the
-horizontal disc and vertical band around it), how it moves (the route's speed there +- the
+where the vehicle is (anywhere the schedule slip allows along the route, then, after an
+outage, anywhere up to the along-route slip behind or ahead of that, waiting at an end
+of the route beyond it, then inside the horizontal disc and vertical band around it), how it moves (the route's speed there +- the
 speed uncertainty, its heading +- the heading uncertainty, its climb +- the climb
 uncertainty), true time and oscillator offset. The true apparent Doppler comes from
 skyfield's satellite positions and velocities (reference library), the drawn receiver
@@ -65,6 +66,16 @@ CASES = [
      MotionUncertainty(slip_s=300.0, speed_m_s=5.0, heading_deg=10.0, vertical_m_s=0.5), 600.0),
     ((60.2, 24.9), Uncertainty(2000.0, 100.0, 300.0, 0.0, 0.0, -200.0, 100.0),
      MotionUncertainty(slip_s=60.0, speed_m_s=2.0, heading_deg=20.0, vertical_m_s=1.0), 300.0),
+    # After an outage (core.plan.events): the hot start's disc, a clock within microseconds,
+    # the oscillator grown, and a range along the route of +- speed uncertainty x outage.
+    ((47.5, 8.0), Uncertainty(50.0, 20.0, 2.6e-6, 0.0, 0.0, 0.0, 32.0),
+     MotionUncertainty(slip_s=0.0, speed_m_s=2.78, heading_deg=15.0, vertical_m_s=1.0, along_m=200.0), 150.0),
+    # ... the range reaching behind the route's start (the vehicle waits there),
+    ((-33.9, -70.6), Uncertainty(50.0, 20.0, 1e-5, 0.0, 0.0, 0.0, 40.0),
+     MotionUncertainty(slip_s=0.0, speed_m_s=5.0, heading_deg=10.0, vertical_m_s=0.5, along_m=1000.0), 30.0),
+    # ... and with a schedule slip, over the first corner and its 90 s stop.
+    ((60.2, 24.9), Uncertainty(50.0, 20.0, 1e-5, 0.0, 0.0, 0.0, 40.0),
+     MotionUncertainty(slip_s=30.0, speed_m_s=3.0, heading_deg=15.0, vertical_m_s=1.0, along_m=1500.0), 420.0),
 ]
 
 
@@ -89,15 +100,38 @@ def test_route_window_holds_every_draw_and_is_tight(site, unc, mu, dt_in):
     # headings across the heading range (the extreme may be inside it), on a grid of slips
     # (the extreme may be anywhere along the route), then as many uniform draws inside.
     rng = np.random.default_rng(11)
-    grid = np.array(np.meshgrid(np.linspace(-1, 1, 41), [-1, 1], [-1, -0.5, 0, 0.5, 1], [-1, 1], [-1, 1],
-                                [-1, 1], indexing="ij")).reshape(6, -1)
+    # Along the route: nine steps over the range, and every planned stop (a dwell) in it,
+    # where the vehicle may stand [calc: a stop is a position with speed 0].
+    rd, rt = route.distance_m, route.time_unix_s
+    stops = rd[:-1][(np.diff(rd) == 0) & (np.diff(rt) > 0)]
+    d0 = float(route.distance_at(t0))
+    at_stops = [(x - d0) / mu.along_m for x in stops if mu.along_m and abs(x - d0) <= mu.along_m]
+    alongs = np.concatenate((np.linspace(-1, 1, 9), at_stops)) if mu.along_m else [0.0]
+    grid = np.array(np.meshgrid(np.linspace(-1, 1, 41), alongs, [-1, 1], [-1, -0.5, 0, 0.5, 1], [-1, 1],
+                                [-1, 1], [-1, 1], indexing="ij")).reshape(7, -1)
     n_c = grid.shape[1]
     n = 2 * n_c
     boundary = np.arange(n) < n_c
-    uniform = rng.uniform(-1, 1, (6, n - n_c))
-    u_slip, u_speed, u_head, u_climb, u_tau, u_osc = np.concatenate((grid, uniform), axis=1)
+    uniform = rng.uniform(-1, 1, (7, n - n_c))
+    if not mu.along_m:
+        uniform[1] = 0.0
+    u_slip, u_along, u_speed, u_head, u_climb, u_tau, u_osc = np.concatenate((grid, uniform), axis=1)
     slip = u_slip * mu.slip_s
     st = route.state_at(t0 + slip)
+    if mu.along_m:
+        # Moved along the route from the slipped position: the state where the timetable
+        # is at that distance; behind the start or past the end, stopped there.
+        d = st.distance_m + u_along * mu.along_m
+        beyond = (d < 0.0) | (d > route.length_m)
+        d = np.clip(d, 0.0, route.length_m)
+        for x in stops:
+            d = np.where(np.abs(d - x) < 1e-6, x, d)
+        at_d = route.state_at(np.array([route.time_at_distance(float(x)) for x in d]))
+        moved = u_along != 0.0
+        for name in ("lat_deg", "lon_deg", "height_m", "speed_m_s", "heading_deg", "vertical_m_s"):
+            setattr(st, name, np.where(moved, getattr(at_d, name), getattr(st, name)))
+        st.speed_m_s = np.where(beyond, 0.0, st.speed_m_s)
+        st.vertical_m_s = np.where(beyond, 0.0, st.vertical_m_s)
     moving = st.speed_m_s > 0
     speed = np.where(moving, np.maximum(st.speed_m_s + u_speed * mu.speed_m_s, 0.0), 0.0)
     heading = np.radians(st.heading_deg + u_head * mu.heading_deg)

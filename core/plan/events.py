@@ -17,7 +17,7 @@ kind          time             position            oscillator         ephemeris 
 cold          nothing          nothing             [receiver] +-      [search] wait  whole range
 warm          [time] +-        [site] +- km        [receiver] +-      [search] wait  windows
 hot           0.02 s           0.05 km             20 ppb             valid (0 s)    windows
-reacquire     grows (below)    grows (below)       grows (below)      valid (0 s)    windows
+reacquire     grows (below)    along the route     grows (below)      valid (0 s)    windows
 ============  ===============  ==================  =================  =============  ========
 
 A re-acquisition follows an outage of length L (s) over which the vehicle drove D (m),
@@ -27,8 +27,13 @@ starting from the hot-start knowledge (time dt0, position r0, oscillator e0):
   0.2 ppb/s [trade: a vehicle TCXO's short-term drift under cabin temperature change]);
 * clock: dt(L) = dt0 + e0 L + drift L^2 / 2 (the integral of the frequency error) [calc];
   below 0.1 s it is given to the code search as fine time;
-* position: r(L) = r0 + D + (speed uncertainty) L [calc: the vehicle drove D along the
-  route, the receiver does not know where it is on it].
+* position: on a route the vehicle stays on the road, so the position after the outage
+  is a range along the route: the distance driven through the outage is known to within
+  the speed uncertainty dv times L (the true speed is the planned one +- dv), an
+  along-track slip of +- dv L on top of the schedule slip
+  (core.search.motion.MotionUncertainty.along_m) [calc], and the hot start's disc r0 of
+  the fix before the outage stays. (Before, the whole disc r0 + D + dv L was searched, D
+  the distance driven; there is no outage without a route, so no disc growth is left.)
 
 Cold start: the receiver knows no almanac, position or time, so every satellite's whole
 Doppler range (core.search.windows.max_doppler_anywhere_hz) and the whole code are
@@ -164,6 +169,7 @@ class EventKnowledge:
     oscillator_uncertainty_ppb: float
     ephemeris_wait_s: float
     fine_time_us: float | None                # handed to the code search
+    along_route_m: float = 0.0                # +- distance along the route (after an outage)
 
 
 @dataclass(frozen=True)
@@ -180,8 +186,8 @@ class DriveEvent:
     outage_driven_m: float | None = None
 
 
-def kind_knowledge(sc: Scenario, kind: str, outage_s: float = 0.0, driven_m: float = 0.0,
-                   drift_ppb_s: float = 0.2, speed_uncertainty_m_s: float = 0.0) -> EventKnowledge:
+def kind_knowledge(sc: Scenario, kind: str, outage_s: float = 0.0, drift_ppb_s: float = 0.2,
+                   speed_uncertainty_m_s: float = 0.0) -> EventKnowledge:
     """The defaults of each kind (module docstring)."""
     if kind == "cold":
         return EventKnowledge(None, None, sc.site.vertical_uncertainty_m, sc.receiver.oscillator_uncertainty_ppb,
@@ -198,8 +204,8 @@ def kind_knowledge(sc: Scenario, kind: str, outage_s: float = 0.0, driven_m: flo
         osc = e0 + drift_ppb_s * outage_s
         dt = HOT_TIME_UNCERTAINTY_S if outage_s <= 0 else (
             reacquire_time_uncertainty_s(outage_s, drift_ppb_s))
-        horiz = HOT_HORIZONTAL_UNCERTAINTY_KM + (driven_m + speed_uncertainty_m_s * outage_s) / 1000.0
-        return EventKnowledge(dt, horiz, HOT_VERTICAL_UNCERTAINTY_M, osc, 0.0, _fine(dt))
+        return EventKnowledge(dt, HOT_HORIZONTAL_UNCERTAINTY_KM, HOT_VERTICAL_UNCERTAINTY_M, osc, 0.0, _fine(dt),
+                              along_route_m=speed_uncertainty_m_s * max(outage_s, 0.0))
     raise ValueError(kind)
 
 
@@ -267,7 +273,7 @@ def drive_events(sc: Scenario, drive: Drive | None) -> list[DriveEvent]:
                 s = max(prev, key=lambda x: x.to_m)
                 outage_s = drive.route.time_at_distance(s.to_m) - drive.route.time_at_distance(s.from_m)
                 driven = s.to_m - s.from_m
-                base = kind_knowledge(sc, "reacquire", outage_s, driven, drift, dv)
+                base = kind_knowledge(sc, "reacquire", outage_s, drift, dv)
         out.append(DriveEvent(f"E{i}", ev.kind, ev.name or f"{ev.kind} start" if ev.kind != "reacquire"
                               else ev.name or "re-acquisition", t, "scenario", _override(base, ev),
                               outage_s, driven))
@@ -279,7 +285,7 @@ def drive_events(sc: Scenario, drive: Drive | None) -> list[DriveEvent]:
             if not (sc.time.start_unix_s <= t1 < sc.time.end_unix_s):
                 continue
             n += 1
-            know = kind_knowledge(sc, "reacquire", t1 - t0, s.to_m - s.from_m, drift, dv)
+            know = kind_knowledge(sc, "reacquire", t1 - t0, drift, dv)
             label = s.name or "outage"
             out.append(DriveEvent(f"R{n}", "reacquire", f"after {label}", t1, "outage", know, t1 - t0,
                                   s.to_m - s.from_m))
@@ -332,6 +338,7 @@ class EventPlan:
                 "outage_s": None if ev.outage_s is None else round(ev.outage_s, 1),
                 "knows": {"time_uncertainty_s": k.time_uncertainty_s,
                           "horizontal_uncertainty_km": k.horizontal_uncertainty_km,
+                          "along_route_m": round(k.along_route_m, 1),
                           "oscillator_uncertainty_ppb": round(k.oscillator_uncertainty_ppb, 3),
                           "ephemeris_wait_s": k.ephemeris_wait_s, "fine_time_us": k.fine_time_us},
                 "visible": self.visible_ids, "blocked": self.blocked_ids,
@@ -482,7 +489,7 @@ def plan_drive(sc: Scenario, progress: ProgressFn | None = None, cancel: Callabl
                            f"over {2 * step:g} s")
         grid = time_grid(datetime.fromtimestamp(t0, UTC), datetime.fromtimestamp(t1, UTC), step)
         tp = _time.perf_counter()
-        motion = route_motion(route, grid.unix_s, mu)
+        motion = route_motion(route, grid.unix_s, replace(mu, along_m=ev.knowledge.along_route_m))
         pred = predict(orbits, motion.path, grid, signals=by_system, keep_states=True)
         k = ev.knowledge
         cold = ev.kind == "cold"

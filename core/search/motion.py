@@ -14,7 +14,11 @@ speed in any direction. What the planner does not know about the motion:
   azimuth (between its value at the leg's start and end) +- this (lane changes, curves
   between recorded points, a recording's noise);
 * **climb** ``vertical_m_s``: the rate of climb is the leg's (height change over time)
-  +- this.
+  +- this;
+* **along the route** ``along_m``: a distance slip on top of the schedule slip, the
+  vehicle up to that many metres behind or ahead of where the slip range ends (after an
+  outage: the speed uncertainty times the outage's length, core.plan.events); the legs
+  of the widened range are candidates with their own speed, heading and climb ranges.
 
 Defaults (documented in docs/scenario-keys.md): slip 0, speed +-3 m/s (about 11 km/h,
 traffic on a planned speed) [trade], heading +-15 deg [trade], climb +-1 m/s [trade].
@@ -50,6 +54,7 @@ class MotionUncertainty:
     speed_m_s: float = DEFAULT_SPEED_UNCERTAINTY_M_S
     heading_deg: float = DEFAULT_HEADING_UNCERTAINTY_DEG
     vertical_m_s: float = DEFAULT_VERTICAL_UNCERTAINTY_M_S
+    along_m: float = 0.0
 
 
 @dataclass
@@ -109,6 +114,27 @@ def _pad_ranges(first: np.ndarray, last: np.ndarray) -> tuple[np.ndarray, np.nda
     return np.where(ok, idx, np.maximum(first, 0)[:, None]), ok
 
 
+def _times_at_distances(rt: np.ndarray, rd: np.ndarray, d_m: np.ndarray, last: bool) -> np.ndarray:
+    """The first (or, with ``last``, the latest) time the timetable is at each distance
+    (a dwell keeps the vehicle at one distance for a while)."""
+    n = rd.size
+    if n < 2:
+        return np.full(d_m.shape, rt[0])
+    k = np.searchsorted(rd, d_m, side="right" if last else "left")
+    if last:
+        j = np.clip(k - 1, 0, n - 2)          # the leg from the last vertex not beyond d
+        at_vertex = rd[np.clip(k - 1, 0, n - 1)] == d_m
+        vert_t = rt[np.clip(k - 1, 0, n - 1)]
+    else:
+        j = np.clip(k - 1, 0, n - 2)          # the leg up to the first vertex not before d
+        at_vertex = rd[np.clip(k, 0, n - 1)] == d_m
+        vert_t = rt[np.clip(k, 0, n - 1)]
+    seg = rd[j + 1] - rd[j]
+    frac = np.clip((d_m - rd[j]) / np.where(seg > 0, seg, 1.0), 0.0, 1.0)
+    inside = rt[j] + frac * (rt[j + 1] - rt[j])
+    return np.where(at_vertex, vert_t, np.where(d_m <= rd[0], rt[0], np.where(d_m >= rd[-1], rt[-1], inside)))
+
+
 def route_motion(route: Route, unix_s: np.ndarray, unc: MotionUncertainty = MotionUncertainty()
                  ) -> RouteMotion:
     """The drive over the times ``unix_s`` with the uncertainties ``unc``."""
@@ -120,6 +146,19 @@ def route_motion(route: Route, unix_s: np.ndarray, unc: MotionUncertainty = Moti
     d_lo, d_hi = route.slip_range_m(t, slip)
     rt, rd = route.time_unix_s, route.distance_m
     n = rt.size
+    along = float(unc.along_m)
+    wait_lo = lo_t < rt[0]
+    wait_hi = hi_t > rt[-1]
+    if along > 0.0:
+        # The distance slip widens the range; the legs driven over the widened range are
+        # those of the times the timetable is there. Behind the start (ahead of the end)
+        # the vehicle waits there, stopped.
+        wait_lo = wait_lo | (d_lo - along < 0.0)
+        wait_hi = wait_hi | (d_hi + along > route.length_m)
+        d_lo = np.maximum(d_lo - along, 0.0)
+        d_hi = np.minimum(d_hi + along, route.length_m)
+        lo_t = np.minimum(lo_t, _times_at_distances(rt, rd, d_lo, last=False))
+        hi_t = np.maximum(hi_t, _times_at_distances(rt, rd, d_hi, last=True))
     centre = path.ecef_m.T                                                   # (T, 3)
     # The two ends of the slip range.
     e_lat, e_lon, e_h, _ = route.positions_at_distance(np.concatenate((d_lo, d_hi)))
@@ -161,7 +200,7 @@ def route_motion(route: Route, unix_s: np.ndarray, unc: MotionUncertainty = Moti
         max_leg = np.zeros(t.size)
     # Waiting before the start or after the end of the route: stopped candidates there.
     zero = np.zeros((t.size, 2))
-    waits = np.stack(((lo_t < rt[0]) | (n < 2), (hi_t > rt[-1]) | (n < 2)), axis=1)
+    waits = np.stack((wait_lo | (n < 2), wait_hi | (n < 2)), axis=1)
     w_pos = np.stack((ends[0], ends[1]), axis=1)                              # (T, 2, 3)
     s_lo, s_hi, h_lo, h_hi, c = (np.concatenate((x, zero), axis=1) for x in (s_lo, s_hi, h_lo, h_hi, c))
     leg_a = np.concatenate((leg_a, w_pos), axis=1)
