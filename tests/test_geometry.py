@@ -331,3 +331,21 @@ def test_passes_in_chunks_equal_one_chunk(monkeypatch):
     assert len(one) == len(many) > 20
     for p, q in zip(one, many):
         assert p.to_dict() == q.to_dict()
+
+
+def test_builtin_timescale_equals_skyfields_public_one():
+    """Reference: skyfield's own ``load.timescale(builtin=True)``. core.ground.timeutil
+    builds the same timescale without importing skyfield.api (start-up); UT1 - UTC, TT and
+    the leap seconds must be identical, 1972-2030 every 3 days and across a leap second."""
+    from skyfield.api import load
+
+    from core.ground.timeutil import builtin_timescale
+
+    ref, ours = load.timescale(builtin=True), builtin_timescale()
+    days = np.arange(0.0, 58 * 365.25, 3.0)
+    leap = 86400.0 * np.array([-1.0, -1e-3, 0.0, 1e-3, 1.0])   # around 2017-01-01
+    for t_ref, t_ours in ((ref.utc(1972, 1, 1, 0, 0, days * 86400.0), ours.utc(1972, 1, 1, 0, 0, days * 86400.0)),
+                          (ref.utc(2017, 1, 1, 0, 0, leap), ours.utc(2017, 1, 1, 0, 0, leap))):
+        assert np.array_equal(t_ref.dut1, t_ours.dut1)
+        assert np.array_equal(t_ref.tt, t_ours.tt)
+        assert np.array_equal(t_ref.ut1, t_ours.ut1)

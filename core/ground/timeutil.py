@@ -129,10 +129,27 @@ def jd_split_utc(unix_s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 @lru_cache(maxsize=1)
 def builtin_timescale():
-    """skyfield's offline timescale (bundled leap seconds and UT1-UTC)."""
-    from skyfield.api import load
+    """skyfield's offline timescale (bundled leap seconds and UT1-UTC).
 
-    return load.timescale(builtin=True)
+    Built the way skyfield's ``load.timescale(builtin=True)`` builds it, from the same
+    bundled arrays, but without importing ``skyfield.api``, whose download machinery (ssl,
+    urllib, certifi, the ephemeris readers) costs a plan's start-up about 35 ms; the public
+    route stays as the fallback for a skyfield laid out otherwise (test_geometry checks the
+    two give the same UT1 - UTC).
+    """
+    try:
+        from skyfield.functions import load_bundled_npy
+        from skyfield.timelib import Timescale
+
+        arrays = load_bundled_npy("iers.npz")
+        daily_tt = arrays["tt_jd_minus_arange"]
+        daily_tt += np.arange(len(daily_tt))
+        daily_delta_t = (arrays["delta_t_1e7"] / 1e7).round(7)
+        return Timescale((daily_tt, daily_delta_t), arrays["leap_dates"], arrays["leap_offsets"])
+    except (ImportError, KeyError, OSError):  # pragma: no cover - other skyfield layouts
+        from skyfield.api import load
+
+        return load.timescale(builtin=True)
 
 
 DUT1_KNOT_S = 3600.0
