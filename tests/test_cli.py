@@ -10,7 +10,7 @@ from pathlib import Path
 import pytest
 from conftest import ORBIT_DATA, REPO, requires_orbit_data
 
-from planner_gui.cli import main
+from planner_gui.cli import build_parser, main
 
 # Dates near each real file's epoch, from ../shared/orbit-data/README.md (the planned
 # start is the reference that resolves 10-bit weeks).
@@ -275,3 +275,20 @@ def test_output_cut_by_a_closed_pipe_is_quiet(tmp_path):
     err = proc.stderr.read().decode()
     assert proc.wait(timeout=120) == 0
     assert "Broken pipe" not in err and "error" not in err.lower(), err
+
+
+
+def test_version_is_the_installed_distributions(capsys):
+    # Reference: importlib.metadata (the version is looked up only for --version).
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        expected = version("acqplan")
+    except PackageNotFoundError:
+        expected = "0.1.0"
+    with pytest.raises(SystemExit) as stop:
+        build_parser().parse_args(["--version"])
+    assert stop.value.code == 0
+    assert capsys.readouterr().out == f"acqplan {expected}\n"
+    code, out, _ = run_cli(capsys, "--version")
+    assert (code, out) == (0, f"acqplan {expected}\n")
