@@ -6,6 +6,8 @@ and beyond it; a few points against mpmath at 40 digits where the two differ mos
 from __future__ import annotations
 
 import math
+import subprocess
+import sys
 
 import numpy as np
 import pytest
@@ -126,3 +128,19 @@ def test_sine_integral_series_is_exactly_rounded():
     one_by_one = np.array([float(tails.sine_integral(v)) for v in x[::10]])
     np.testing.assert_array_equal(one_by_one, exact[::10])
 
+
+# --------------------------------------------------------------------------- start-up
+
+def test_plan_command_imports_neither_scipy_nor_skyfield_api():
+    """The plan's start-up: scipy.special (array-API layer, numpy.f2py), skyfield.api
+    (download machinery) and importlib.metadata are not loaded by `acqplan plan`."""
+    from conftest import REPO
+
+    code = ("import sys; from planner_gui.cli import main\n"
+            "rc = main(['plan', 'sample_almanacs/demo_scenario.toml', '-o', __import__('os').devnull])\n"
+            "bad = sorted(m for m in sys.modules if m.split('.')[0] == 'scipy' "
+            "or m in ('skyfield.api', 'skyfield.iokit', 'importlib.metadata', 'numpy.f2py'))\n"
+            "print(rc, bad)")
+    out = subprocess.run([sys.executable, "-c", code], cwd=REPO, capture_output=True, text=True,
+                         check=True).stdout.strip().splitlines()[-1]
+    assert out == "0 []"

@@ -21,10 +21,10 @@ from dataclasses import asdict, dataclass, field
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy.special import sici
 
 from ..ground.errors import InputError
 from ..ground.signals import Signal
+from .tails import sine_integral
 
 # Relative tolerance used when a ratio "is" a whole number (window / bin width,
 # coherent time / code period): float round-off must not add a bin or fail a check.
@@ -122,7 +122,7 @@ def _mean_power_over_half_width(u_half: np.ndarray) -> np.ndarray:
     (integration by parts of sin^2 t / t^2), divided by a.
     """
     a = np.asarray(u_half, dtype=float)
-    si, _ = sici(2.0 * np.pi * a)
+    si = sine_integral(2.0 * np.pi * a)
     return (si - np.sin(np.pi * a) ** 2 / (np.pi * a)) / (np.pi * a)
 
 

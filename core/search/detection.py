@@ -22,17 +22,9 @@ from dataclasses import asdict, dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy import special
-
-try:  # the non-central chi-square survival function scipy.stats.ncx2 itself calls (Boost)
-    from scipy.special._ufuncs import _ncx2_sf
-except ImportError:  # pragma: no cover - other scipy layouts: the public route
-    def _ncx2_sf(x, df, nc):
-        from scipy.stats import ncx2
-
-        return ncx2.sf(x, df, nc)
 
 from ..ground.errors import InputError
+from . import tails
 
 # Bracket (dB) and steps of the vectorized bisection for the required SNR. The bracket
 # covers N up to ~1e5 (about -25 dB) and Pfa down to 1e-15 at Pd 0.9999 (about 22 dB).
@@ -100,22 +92,20 @@ def threshold_for_pfa(pfa: ArrayLike, n_noncoherent: ArrayLike) -> np.ndarray | 
     """
     p = _probability(pfa, "pfa")
     n = _count(n_noncoherent, "n_noncoherent")
-    return _out(special.gammainccinv(n, p))
+    return _out(tails.upper_gamma_inv(n, p))
 
 
 def false_alarm_probability(threshold: ArrayLike, n_noncoherent: ArrayLike) -> np.ndarray | float:
     """``P(S > threshold | noise only) = chi2.sf(2 threshold, 2N)``."""
     t = _float_array(threshold, "threshold", lo=0.0)
     n = _count(n_noncoherent, "n_noncoherent")
-    return _out(special.chdtrc(2.0 * n, 2.0 * t))
+    return _out(tails.upper_gamma(n, t))
 
 
 def _pd(snr: np.ndarray, n: np.ndarray, threshold: np.ndarray) -> np.ndarray:
-    # scipy.stats.ncx2.sf without importing scipy.stats (about 0.3 s at start-up): the
-    # same Boost function, and the central chi-square where the non-centrality is 0.
-    x, df, nc = np.broadcast_arrays(2.0 * threshold, 2.0 * n, 2.0 * n * snr)
-    with np.errstate(over="ignore"):
-        return np.where(nc != 0, _ncx2_sf(x, df, nc), special.chdtrc(df, x))
+    # ncx2.sf(2 threshold, 2N, 2 N snr) in numpy (core.search.tails; scipy.special, whose
+    # import costs a plan's start-up about 0.25 s, is the reference of its tests).
+    return tails.noncentral_tail(n, threshold, n * snr)
 
 
 def detection_probability(snr_linear: ArrayLike, n_noncoherent: ArrayLike,
@@ -150,7 +140,7 @@ def required_snr_db(pfa: ArrayLike, pd: ArrayLike, n_noncoherent: ArrayLike) -> 
     p_fa, p_d, n = np.broadcast_arrays(p_fa, p_d, n)
     if np.any(p_d <= p_fa):
         raise InputError("pd must be greater than pfa (with no signal Pd equals Pfa)", field="pd")
-    thr = special.gammainccinv(n, p_fa)   # chi2.isf(pfa, 2N) / 2
+    thr = tails.upper_gamma_inv(n, p_fa)   # chi2.isf(pfa, 2N) / 2
     lo = np.full(p_d.shape, _SNR_BRACKET_DB[0])
     hi = np.full(p_d.shape, _SNR_BRACKET_DB[1])
     if np.any(_pd(10.0 ** (hi / 10.0), n, thr) < p_d):
