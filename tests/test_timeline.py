@@ -559,6 +559,73 @@ def test_bad_inputs_raise_input_error_naming_the_field():
         monte_carlo_ttff(TimelineInputs(**ok), 10, seed=0)
 
 
+def _fields(inp: TimelineInputs) -> dict:
+    import dataclasses
+
+    return {f.name: getattr(inp, f.name) for f in dataclasses.fields(inp) if f.init}
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_with_after_figures_equals_the_inputs_built_anew(seed):
+    """The same inputs with other after-acquisition figures give what the constructor
+    gives for them: the same timeline and, for one seed, the same Monte Carlo draws."""
+    inp = random_inputs(seed)
+    expected_timeline(inp)                       # fills the search-order cache it shares
+    rng = np.random.default_rng(100 + seed)
+    shape = inp.visible.shape
+    after = rng.uniform(2, 60, shape)
+    q_after = rng.integers(1, 300, shape)
+    mine = inp.with_after_figures(after, q_after, 2e-3)
+    anew = TimelineInputs(**{**_fields(inp), "expected_search_after_s": after,
+                             "q_after": q_after, "pfa_position_after": 2e-3})
+    assert [rel(g) for g in expected_timeline(mine).segments] == \
+        [rel(g) for g in expected_timeline(anew).segments]
+    np.testing.assert_array_equal(monte_carlo_ttff(mine, 300, seed).samples_s,
+                                  monte_carlo_ttff(anew, 300, seed).samples_s)
+    # the original is left as it was
+    assert [rel(g) for g in expected_timeline(inp).segments] == \
+        [rel(g) for g in expected_timeline(TimelineInputs(**_fields(inp))).segments]
+
+
+def test_with_after_figures_checks_them():
+    inp = random_inputs(1)
+    shape = inp.visible.shape
+    for args, name in [((np.full(shape, -1.0),), "expected_search_after_s"),
+                       ((np.ones(shape), np.zeros(shape, dtype=np.int64)), "q_after"),
+                       ((np.ones(shape), None, 1.5), "pfa_position_after"),
+                       ((np.ones(shape), None, None, np.full(shape, 2.0)), "pd_after"),
+                       ((np.ones((1, 3)),), "expected_search_after_s")]:
+        with pytest.raises(InputError) as err:
+            inp.with_after_figures(*args)
+        assert err.value.field == name
+
+
+def test_inputs_copy_writeable_arrays_and_keep_read_only_ones():
+    """A caller's writeable array is copied (changing it later changes nothing); a
+    read-only array that owns its memory is kept as it is; integer positions stay integers."""
+    inp = random_inputs(2)
+    f = _fields(inp)
+    first = np.array(f["expected_search_first_s"])           # writeable
+    frozen = np.array(f["expected_search_after_s"])
+    frozen.setflags(write=False)
+    q = np.array(f["q_first"], dtype=np.int64)
+    made = TimelineInputs(**{**f, "expected_search_first_s": first,
+                             "expected_search_after_s": frozen, "q_first": q})
+    before = [rel(g) for g in expected_timeline(made).segments]
+    first *= 50.0
+    assert made.expected_search_first_s is not first
+    assert made.expected_search_after_s is frozen
+    assert made.q_first.dtype == np.int64
+    again = TimelineInputs(**{**f, "expected_search_after_s": frozen, "q_first": q})
+    assert [rel(g) for g in expected_timeline(again).segments] == before
+    # a read-only view of a writeable array is copied: its base can still change
+    base = np.array(f["expected_search_after_s"])
+    view = base[:, :]
+    view.setflags(write=False)
+    viewed = TimelineInputs(**{**f, "expected_search_after_s": view})
+    assert not np.shares_memory(viewed.expected_search_after_s, base)
+
+
 def test_to_dict_uses_iso_times():
     n = 5
     inp = TimelineInputs(

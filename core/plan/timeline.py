@@ -120,11 +120,13 @@ def _read_only(arr: np.ndarray) -> bool:
 def _check_range(value: np.ndarray | float, name: str, lo: float, hi: float,
                  lo_open: bool = False) -> None:
     arr = np.asarray(value, dtype=float)
-    # One pass over the grid when every value is in range (NaN compares False; an
-    # infinite value out of range is looked at below, where non-finite values are skipped).
-    outside = (arr <= lo if lo_open else arr < lo) | (arr > hi)
-    if not np.any(outside):
-        return
+    # Two reductions of the grid when every value is in range (a NaN makes them NaN,
+    # which compares False; an infinite value out of range is looked at below, where
+    # non-finite values are skipped).
+    if arr.size:
+        mn, mx = float(np.min(arr)), float(np.max(arr))
+        if (mn > lo if lo_open else mn >= lo) and mx <= hi:
+            return
     fin = arr[np.isfinite(arr)]
     if fin.size == 0:
         return
@@ -140,8 +142,12 @@ def _check_range(value: np.ndarray | float, name: str, lo: float, hi: float,
 def _check_positions(value: np.ndarray | None, name: str) -> None:
     if value is None:
         return
-    if np.all((value >= 1) & (np.floor(value) == value)):   # NaN fails: checked below
-        return
+    if value.dtype.kind in "iu":
+        if value.size == 0 or np.min(value) >= 1:
+            return
+        raise InputError("search positions must be whole numbers >= 1", field=name)
+    if value.size == 0 or (np.min(value) >= 1 and np.all(np.floor(value) == value)):
+        return                                             # NaN fails: checked below
     fin = value[np.isfinite(value)]
     if fin.size and (np.any(fin < 1) or np.any(fin != np.round(fin))):
         raise InputError("search positions must be whole numbers >= 1", field=name)
@@ -237,18 +243,27 @@ class TimelineInputs:
             _check_range(arr, name, 0.0, math.inf)
             put(self, name, arr)
         for name in ("q_first", "q_after", "pd_first", "pd_after"):
-            if getattr(self, name) is not None:
-                put(self, name, _as_grid_array(getattr(self, name), shape, name))
+            value = getattr(self, name)
+            if value is not None:
+                # whole positions given as integers stay integers (no float copy)
+                whole = name[0] == "q" and isinstance(value, np.ndarray) and value.dtype.kind in "iu"
+                put(self, name, _as_grid_array(value, shape, name,
+                                               dtype=np.int64 if whole else float))
+        # (an "after" figure that is the very array of the "first" one is checked once)
         _check_positions(self.q_first, "q_first")
-        _check_positions(self.q_after, "q_after")
+        if self.q_after is not self.q_first:
+            _check_positions(self.q_after, "q_after")
         for name in ("pd_first", "pd_after"):
-            if getattr(self, name) is not None:
+            if getattr(self, name) is not None and not (name == "pd_after"
+                                                        and self.pd_after is self.pd_first):
                 _check_range(getattr(self, name), name, 0.0, 1.0)
         if self.pfa_position is not None:
             pfa = _as_grid_array(self.pfa_position, shape, "pfa_position", allow_scalar=True)
             _check_range(pfa, "pfa_position", 0.0, 1.0)
             put(self, "pfa_position", pfa)
-        if self.pfa_position_after is not None:
+        after_pfa = self.pfa_position_after
+        if after_pfa is not None and not (isinstance(after_pfa, np.ndarray)
+                                          and after_pfa is self.pfa_position):
             pfa = _as_grid_array(self.pfa_position_after, shape, "pfa_position_after",
                                  allow_scalar=True)
             _check_range(pfa, "pfa_position_after", 0.0, 1.0)
@@ -277,6 +292,40 @@ class TimelineInputs:
         put(self, "ephemeris_wait_s", wait)
 
         put(self, "_passes", self._build_passes())
+
+    def with_after_figures(self, expected_search_after_s: np.ndarray,
+                           q_after: np.ndarray | None = None,
+                           pfa_position_after: np.ndarray | float | None = None,
+                           pd_after: np.ndarray | None = None) -> TimelineInputs:
+        """The same inputs with other figures for the searches after the first
+        acquisition (each checked as the constructor checks it; None keeps the current
+        one). The rest, checked already, and the passes are taken as they are, and so is
+        the search order (it depends on the priority only)."""
+        new = object.__new__(TimelineInputs)
+        new.__dict__.update({k: v for k, v in self.__dict__.items() if k != "_derived"})
+        put = object.__setattr__
+        shape = self.visible.shape
+        arr = _as_grid_array(expected_search_after_s, shape, "expected_search_after_s")
+        _check_range(arr, "expected_search_after_s", 0.0, math.inf)
+        put(new, "expected_search_after_s", arr)
+        if q_after is not None:
+            whole = isinstance(q_after, np.ndarray) and q_after.dtype.kind in "iu"
+            q = _as_grid_array(q_after, shape, "q_after", dtype=np.int64 if whole else float)
+            _check_positions(q, "q_after")
+            put(new, "q_after", q)
+        if pd_after is not None:
+            pd = _as_grid_array(pd_after, shape, "pd_after")
+            _check_range(pd, "pd_after", 0.0, 1.0)
+            put(new, "pd_after", pd)
+        if pfa_position_after is not None:
+            pfa = _as_grid_array(pfa_position_after, shape, "pfa_position_after",
+                                 allow_scalar=True)
+            _check_range(pfa, "pfa_position_after", 0.0, 1.0)
+            put(new, "pfa_position_after", pfa)
+        derived = self.__dict__.get("_derived", {})
+        new.__dict__["_derived"] = {k: derived[k] for k in ("times_list", "rank_orders")
+                                    if k in derived}
+        return new
 
     def _build_passes(self) -> tuple[tuple[tuple[float, float], ...], ...]:
         """(rise, set) per satellite; set = inf when still up at the window end."""
