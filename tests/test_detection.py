@@ -250,6 +250,31 @@ def test_search_positions():
     np.testing.assert_array_equal(v.positions, np.array([[4, 512], [25, 2]]) * 11)
 
 
+@pytest.mark.parametrize("parallel", [False, True])
+def test_search_positions_of_large_count_grids_follow_the_formula(parallel):
+    """(S, T) grids as the plan passes them (integer cells and bins, > 4096 samples: the
+    integer path and the looked-up Pfa per position), against the docstring's formulas
+    evaluated element by element in plain Python [calc]; float counts give the same."""
+    rng = np.random.default_rng(5)
+    cells = rng.integers(1, 3000, size=(40, 150))
+    bins = rng.integers(1, 60, size=(40, 150))
+    p = det.search_positions(cells, bins, 16, parallel, 3e-5)
+    for c, b, q, m, pfa in zip(cells.ravel()[::97], bins.ravel()[::97], p.positions.ravel()[::97],
+                               p.cells_per_position.ravel()[::97], p.pfa_position.ravel()[::97]):
+        m_ref = int(c) if parallel else min(16, int(c))
+        q_ref = int(b) if parallel else math.ceil(int(c) / m_ref) * int(b)
+        assert (int(m), int(q)) == (m_ref, q_ref)
+        assert pfa == pytest.approx(1.0 - (1.0 - 3e-5) ** m_ref, rel=1e-12)
+    np.testing.assert_array_equal(p.total_cells, cells * bins)
+    f = det.search_positions(cells.astype(float), bins.astype(float), 16.0, parallel, 3e-5)
+    np.testing.assert_array_equal(f.positions, p.positions)
+    np.testing.assert_array_equal(f.cells_per_position, p.cells_per_position)
+    np.testing.assert_allclose(f.pfa_position, p.pfa_position, rtol=1e-15, atol=0)
+    assert p.positions.dtype == np.int64 and not np.shares_memory(p.cells_per_position, cells)
+    with pytest.raises(InputError, match="code_cells"):
+        det.search_positions(np.where(cells > 2000, 0, cells), bins, 16, parallel, 3e-5)
+
+
 def test_search_cost_combines_positions_and_time():
     c = det.search_cost(freq_bins=20, code_cells=2046, correlators_per_channel=1,
                         parallel_code_search=True, coherent_s=1e-3, noncoherent=5,

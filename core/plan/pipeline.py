@@ -685,8 +685,9 @@ def search_costs(sc: Scenario, integ: Integration, det: DetectionFigures,
                  windows: DopplerWindows, cells: np.ndarray):
     """Stage 6: bins over each window and the serial-search figures (positions, Pfa per
     position, mean search time) per (S, T)."""
-    nb = np.maximum(np.asarray(binlib.bin_count(windows.low_hz, windows.high_hz,
-                                                integ.bin_width_hz)), 1)
+    nb = np.asarray(binlib.bin_count(windows.low_hz, windows.high_hz, integ.bin_width_hz))
+    if nb.size and np.min(nb) < 1:         # a window with a NaN edge: one bin all the same
+        nb = np.maximum(nb, 1)
     pfa = sc.search.false_alarm_per_cell
     cost = detection.search_cost(nb, cells, sc.receiver.correlators_per_channel,
                                  sc.receiver.parallel_code_search, integ.coherent_s[:, None],
@@ -720,8 +721,8 @@ def timeline_inputs(sc: Scenario, g: PreparedGeometry, integ: Integration,
     visible = _reuse(g, "visible", (), lambda: _frozen(g.visible.copy()))
     priority = _reuse(g, "priority", (sc.search.priority,), lambda: _frozen(
         np.where(g.visible, _priority(sc.search.priority, pred), -1000.0)))
-    first = _timeline_costs(g, "first", cost_first)
-    after = _timeline_costs(g, "after", cost_after)
+    first = _timeline_costs(g, cost_first)
+    after = _timeline_costs(g, cost_after)
     dwell = _frozen(np.array(integ.dwell_s, dtype=float)[:, None])
     return tl.TimelineInputs(
         times_unix_s=g.grid.unix_s, sat_ids=tuple(pred.ids), visible=visible,
@@ -736,14 +737,20 @@ def timeline_inputs(sc: Scenario, g: PreparedGeometry, integ: Integration,
         penalty_s=sc.search.false_alarm_penalty_s, set_unix_s=refined)
 
 
-def _timeline_costs(g: PreparedGeometry, name: str, cost) -> tuple[np.ndarray, ...]:
+def _timeline_costs(g: PreparedGeometry, cost) -> tuple[np.ndarray, ...]:
     """The timeline's read-only view of a search cost: the expected search time where
-    visible (inf elsewhere), the positions (float) and the Pfa per position; made once
-    per cost object (a plan's first timeline and its final one share the first costs)."""
-    return _reuse(g, f"timeline_costs_{name}", (), lambda: (
-        _frozen(np.where(g.visible, cost.expected_search_s, np.inf)),
-        _frozen(cost.positions, dtype=float), _frozen(cost.pfa_position, dtype=float)),
-        same=(cost,))
+    visible (inf elsewhere), the positions (whole numbers, as they are) and the Pfa per
+    position; made once per cost object (a plan's first timeline and its final one share
+    the first costs). The last two cost objects are kept."""
+    kept = g.derived.setdefault("timeline_costs", [])
+    for c, parts, value in kept:
+        if c is cost and parts is g.visible:
+            return value
+    value = (_frozen(np.where(g.visible, cost.expected_search_s, np.inf)),
+             _frozen(cost.positions), _frozen(cost.pfa_position, dtype=float))
+    kept.insert(0, (cost, g.visible, value))
+    del kept[2:]
+    return value
 
 
 @dataclass(frozen=True)
@@ -805,7 +812,15 @@ def satellite_summaries(g: PreparedGeometry, integ: Integration, det: DetectionF
             first_search[seg.sat_id] = seg
     width = integ.bin_width_hz
     sats: list[SatellitePlan] = []
-    ages = _data_age_s(orbits, grid.start_unix_s)
+
+    def static():       # what no search setting changes: ages, passes, records
+        by_sat: dict[str, list[Pass]] = {}
+        for p in g.passes:
+            by_sat.setdefault(p.sat_id, []).append(p)
+        return (_data_age_s(orbits, grid.start_unix_s), by_sat,
+                [records_in_use(e, grid.unix_s) for e in orbits.entries])
+
+    ages, passes_of, records = _reuse(g, "satellite_static", (), static)
     for s, e in enumerate(orbits.entries):
         sid = e.info.sat_id
         seg = first_search.get(sid)
@@ -828,8 +843,7 @@ def satellite_summaries(g: PreparedGeometry, integ: Integration, det: DetectionF
                 channel=seg.channel, acquired_unix_s=timeline.acquisition_unix_s.get(sid))
         sats.append(SatellitePlan(sid, g.signal_ids[s], e.info.system, float(pred.carrier_hz[s]),
                                   e.info.glonass_k, e.info.source_kind, float(ages[s]), e.info.healthy,
-                                  [p for p in g.passes if p.sat_id == sid], summary,
-                                  records_in_use(e, grid.unix_s)))
+                                  list(passes_of.get(sid, ())), summary, list(records[s])))
     return sats
 
 
@@ -866,12 +880,14 @@ def make_plan(sc: Scenario, prepared: PreparedGeometry | None = None,
 
     _check_cancel(cancel)
     _report(progress, 0.75, "channel timeline")
-    after = after_first_acquisition(sc, g, integ, cw, w_raw, w_first,
-                                    timeline_inputs(sc, g, integ, det, cost_first, cost_first, refined))
+    first_inputs = timeline_inputs(sc, g, integ, det, cost_first, cost_first, refined)
+    after = after_first_acquisition(sc, g, integ, cw, w_raw, w_first, first_inputs)
     cells_after = cw.cells_first if after.code_window_chips is cw.first_chips else \
         np.maximum(codephase.code_cells(after.code_window_chips, sc.search.code_step_chips), 1)
     bins_after, cost_after = search_costs(sc, integ, det, after.windows, cells_after)
-    inputs = timeline_inputs(sc, g, integ, det, cost_first, cost_after, refined)
+    # = timeline_inputs(sc, g, integ, det, cost_first, cost_after, refined), without
+    # checking again what the first inputs hold already
+    inputs = first_inputs.with_after_figures(*_timeline_costs(g, cost_after))
     timeline = tl.expected_timeline(inputs)
     warnings.extend(timeline.warnings)
     _check_cancel(cancel)

@@ -54,6 +54,11 @@ def _float_array(value: ArrayLike, name: str, *, positive: bool = False,
     except (TypeError, ValueError):
         raise InputError(f"{name} must be a number or an array of numbers, got {value!r}",
                          field=name) from None
+    if arr.size > 64:     # two reductions of a large array when it is finite throughout
+        mn, mx = float(np.min(arr)), float(np.max(arr))
+        if math.isfinite(mn) and math.isfinite(mx) and not (positive and mn <= 0) \
+                and not (nonnegative and mn < 0):
+            return arr
     if allow_nan:
         if np.any(np.isinf(arr)):
             raise InputError(f"{name} must be finite", field=name)
@@ -218,7 +223,8 @@ def bin_count(low_hz: ArrayLike, high_hz: ArrayLike, bin_width_hz: ArrayLike) ->
     ratio *= 1.0 - WHOLE_NUMBER_RTOL
     np.ceil(ratio, out=ratio)
     np.maximum(ratio, 1.0, out=ratio)
-    np.copyto(ratio, 0.0, where=np.isnan(ratio))
+    if ratio.size and math.isnan(float(np.min(ratio))):      # NaN min: some edge is NaN
+        np.copyto(ratio, 0.0, where=np.isnan(ratio))
     n = ratio.astype(np.int64)
     return int(n) if n.ndim == 0 else n
 

@@ -45,6 +45,8 @@ def _float_array(value: ArrayLike, name: str, *, lo: float | None = None,
     except (TypeError, ValueError):
         raise InputError(f"{name} must be a number or an array of numbers, got {value!r}",
                          field=name) from None
+    if arr.size > 64 and _within(float(np.min(arr)), float(np.max(arr)), lo, hi, lo_open, hi_open):
+        return arr            # two reductions of a large array instead of the checks below
     if not np.all(np.isfinite(arr)):
         raise InputError(f"{name} must be finite", field=name)
     if lo is not None:
@@ -58,6 +60,17 @@ def _float_array(value: ArrayLike, name: str, *, lo: float | None = None,
             op = "<" if hi_open else "<="
             raise InputError(f"{name} must be {op} {hi:g}, got {arr[bad].flat[0]:g}", field=name)
     return arr
+
+
+def _within(mn: float, mx: float, lo: float | None, hi: float | None, lo_open: bool,
+            hi_open: bool) -> bool:
+    """Every value between the smallest ``mn`` and the largest ``mx`` is finite and in
+    range (a NaN anywhere makes both NaN, and NaN fails every comparison)."""
+    if not (math.isfinite(mn) and math.isfinite(mx)):
+        return False
+    if lo is not None and not (mn > lo if lo_open else mn >= lo):
+        return False
+    return hi is None or (mx < hi if hi_open else mx <= hi)
 
 
 def _probability(value: ArrayLike, name: str, *, zero_ok: bool = False,
@@ -341,8 +354,28 @@ class SearchPositions:
 
 
 def _int_out(x: np.ndarray) -> np.ndarray | int:
-    x = np.asarray(x).astype(np.int64)
+    x = np.asarray(x)
+    x = x.astype(np.int64, copy=x.dtype != np.int64)   # int64 arrays here are new ones
     return int(x) if x.ndim == 0 else x
+
+
+def _whole_ints(value: ArrayLike, name: str) -> np.ndarray | None:
+    """An integer count (Python int or integer array) as int64, checked >= 1; None for
+    anything else (floats go through :func:`_count`)."""
+    if isinstance(value, bool | np.bool_):
+        return None
+    if isinstance(value, int | np.integer):
+        try:
+            arr = np.asarray(value, dtype=np.int64)
+        except OverflowError:
+            return None
+    elif isinstance(value, np.ndarray) and value.dtype.kind in "iu":
+        arr = value.astype(np.int64, copy=False)
+    else:
+        return None
+    if arr.size and np.min(arr) < 1:
+        raise InputError(f"{name} must be >= 1, got {arr[arr < 1].flat[0]:g}", field=name)
+    return arr
 
 
 def search_positions(code_cells: ArrayLike, freq_bins: ArrayLike,
@@ -368,6 +401,18 @@ def search_positions(code_cells: ArrayLike, freq_bins: ArrayLike,
     (conservative). The detection probability of the signal position is taken as the
     per-cell Pd (a noise cell beside the signal that crosses first is ignored).
     """
+    whole = [_whole_ints(v, name) for v, name in ((code_cells, "code_cells"), (freq_bins, "freq_bins"),
+                                                  (correlators_per_channel, "correlators_per_channel"))]
+    if all(w is not None for w in whole):
+        # Integer counts (the plan's cells and bins): the same numbers in integer
+        # arithmetic, no float copies (ceil(c / m) of whole numbers is -(-c // m)).
+        cells, bins, corr = np.broadcast_arrays(*whole)
+        m = np.array(cells) if parallel_code_search else np.minimum(corr, cells)
+        q = np.array(bins) if parallel_code_search else -(-cells // m) * bins
+        pfa_pos = None
+        if pfa_cell is not None:
+            pfa_pos = _out(_at_least_one(m, _probability(pfa_cell, "pfa_cell", zero_ok=True)))
+        return SearchPositions(_int_out(q), _int_out(m), _int_out(cells * bins), pfa_pos)
     cells = _count(code_cells, "code_cells")
     bins = _count(freq_bins, "freq_bins")
     corr = _count(correlators_per_channel, "correlators_per_channel")
@@ -381,9 +426,22 @@ def search_positions(code_cells: ArrayLike, freq_bins: ArrayLike,
     pfa_pos = None
     if pfa_cell is not None:
         p = _probability(pfa_cell, "pfa_cell", zero_ok=True)
-        # -expm1(m log1p(-p)) = 1 - (1-p)^m without cancellation for tiny p.
-        pfa_pos = _out(-np.expm1(m * np.log1p(-p)))
+        pfa_pos = _out(_at_least_one(m, p))
     return SearchPositions(_int_out(q), _int_out(m), _int_out(cells * bins), pfa_pos)
+
+
+def _at_least_one(m: np.ndarray, p: np.ndarray) -> np.ndarray:
+    """``1 - (1 - p)^m`` as ``-expm1(m log1p(-p))`` (no cancellation for tiny p). With one
+    p and a large array of whole m over a short range (cells per dwell take a few
+    values), evaluated once per value and looked up: the same numbers."""
+    if p.ndim == 0 and m.size > 4096:
+        lo, hi = float(np.min(m)), float(np.max(m))
+        if hi - lo < 65536:
+            values = -np.expm1(np.arange(lo, hi + 1.0) * np.log1p(-p))
+            idx = m.astype(np.intp)
+            idx -= int(lo)
+            return values[idx]
+    return -np.expm1(m * np.log1p(-p))
 
 
 @dataclass(frozen=True)

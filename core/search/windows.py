@@ -451,13 +451,22 @@ def windows_after_first_acquisition(w: DopplerWindows, carrier_hz: np.ndarray,
     highs["oscillator"] = np.minimum(osc, w.terms_high_hz["oscillator"])
     low_before, high_before = terms_before_oscillator(w) if before is None else before
     after = list(lows)[list(lows).index("oscillator") + 1:]
-    # Summed in the windows' order, as sum(lows.values()) would.
+    # Summed in the windows' order, as nominal + sum(lows.values()) would (in place on
+    # the one new array per edge; addition commutes exactly).
+    shape = np.broadcast_shapes(np.shape(w.nominal_hz), *(np.shape(v) for v in lows.values()),
+                                *(np.shape(v) for v in highs.values()))
     low = low_before + lows["oscillator"]
     high = high_before + highs["oscillator"]
+    if np.shape(low) != shape:
+        low = np.array(np.broadcast_to(low, shape), dtype=float)
+    if np.shape(high) != shape:
+        high = np.array(np.broadcast_to(high, shape), dtype=float)
     for k in after:
-        low = low + lows[k]
-        high = high + highs[k]
-    return DopplerWindows(w.nominal_hz, w.nominal_hz + low, w.nominal_hz + high, lows, highs)
+        low += lows[k]
+        high += highs[k]
+    low += w.nominal_hz
+    high += w.nominal_hz
+    return DopplerWindows(w.nominal_hz, low, high, lows, highs)
 
 
 def _sliding(x: np.ndarray, half: int, fn) -> np.ndarray:
