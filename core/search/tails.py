@@ -28,7 +28,6 @@ the exact value) and the continued fraction of ``E1(i x)`` beyond.
 from __future__ import annotations
 
 import math
-from fractions import Fraction
 from functools import lru_cache
 
 import numpy as np
@@ -458,12 +457,21 @@ def _dd_add(ah, al, bh, bl):
 # remainder below 1e-27 and the largest term (about 1.7e3) costs 11 of the 106 bits.
 _SI_SERIES_MAX = 12.0
 _SI_TERMS = 36
+
+
+def _dd_reciprocal(d: int) -> tuple[float, float]:
+    """``1 / d`` for a whole ``d`` as a double-double: ``hi = a / b`` correctly rounded,
+    then the exact remainder ``1/d - a/b = (b - a d) / (b d)`` rounded (integer ratios)."""
+    hi = 1 / d
+    a, b = hi.as_integer_ratio()
+    return hi, (b - a * d) / (b * d)
+
+
 _SI_COEF = []
 for _k in range(_SI_TERMS):
-    _c = Fraction((-1) ** _k, (2 * _k + 1) * math.factorial(2 * _k + 1))
-    _hi = float(_c)
-    _SI_COEF.append((_hi, float(_c - Fraction(_hi))))
-del _k, _c, _hi
+    _hi, _lo = _dd_reciprocal((2 * _k + 1) * math.factorial(2 * _k + 1))
+    _SI_COEF.append((_hi, _lo) if _k % 2 == 0 else (-_hi, -_lo))
+del _k, _hi, _lo
 
 
 def _si_series(x):
