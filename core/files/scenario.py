@@ -13,8 +13,6 @@ import tomllib
 from dataclasses import replace
 from pathlib import Path
 
-import tomli_w
-
 from ..ground.bounded_read import TEXT_FILE_LIMIT_BYTES, read_bytes_bounded
 from ..ground.errors import ScenarioError
 from ..ground.filecheck import file_problem
@@ -101,6 +99,8 @@ def _rebase(name: str, old_dir: Path, new_dir: Path) -> str:
 
 def scenario_to_toml(scenario: Scenario) -> str:
     """The TOML text :func:`save_scenario` writes."""
+    import tomli_w  # only when writing: a plan never needs it
+
     head = ("# acqplan scenario. Keys, units and allowed ranges: docs/scenario-keys.md\n"
             "# Relative file names are relative to this file's folder.\n\n")
     return head + tomli_w.dumps(scenario.to_dict())

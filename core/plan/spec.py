@@ -16,7 +16,6 @@ file's folder); :meth:`Scenario.resolved_orbit_files` gives absolute paths.
 
 from __future__ import annotations
 
-import difflib
 import math
 import numbers
 import os
@@ -38,6 +37,13 @@ MAX_WINDOW_S = 7 * 86_400.0      # longest planning window accepted (7 days)
 PRIORITIES = ("elevation", "rising")
 # Keys allowed inside [search.per_signal.<SIGNAL-ID>] tables.
 PER_SIGNAL_KEYS = ("coherent_ms", "noncoherent")
+
+
+def _close_matches(word: str, options, n: int = 1) -> list[str]:
+    """difflib's close matches ("did you mean"), imported only when a key is wrong."""
+    import difflib
+
+    return difflib.get_close_matches(word, options, n=n)
 
 
 class _Required:
@@ -665,7 +671,7 @@ class _Checker:
                 raise ValueError("empty")
             ZoneInfo(s)
         except (ZoneInfoNotFoundError, ValueError, OSError):
-            close = difflib.get_close_matches(s, sorted(available_timezones()), n=1)
+            close = _close_matches(s, sorted(available_timezones()), n=1)
             hint = f"; did you mean '{close[0]}'?" if close else ""
             self.add(dotted, f"{_show(v)} is not a known IANA time zone (e.g. 'Europe/Zurich', 'UTC'){hint}")
             return _BAD
@@ -722,7 +728,7 @@ class _Checker:
         for i, item in enumerate(v, start=1):
             sid = item.strip().upper() if isinstance(item, str) else None
             if sid is None or sid not in SIGNALS:
-                close = difflib.get_close_matches(sid or "", list(SIGNALS), n=1) if sid else []
+                close = _close_matches(sid or "", list(SIGNALS), n=1) if sid else []
                 hint = f"; did you mean '{close[0]}'?" if close else ""
                 self.add(dotted, f"entry {i} ({_show(item)}) is not a known signal{hint}; known: {known}")
                 ok = False
@@ -743,7 +749,7 @@ class _Checker:
 
     def unknown(self, dotted: str, key: str, known: tuple[str, ...], what: str,
                 where: str = "") -> None:
-        close = difflib.get_close_matches(key, known, n=1)
+        close = _close_matches(key, known, n=1)
         hint = f"did you mean '{close[0]}'? " if close else ""
         place = f" in {where}" if where else ""
         self.add(dotted, f"unknown {what} '{key}'{place}; {hint}known: {', '.join(known)}")
@@ -916,7 +922,7 @@ def _check_per_signal(chk: _Checker, v: Any) -> list[tuple[str, SignalOverride]]
         dotted = f"search.per_signal.{sid_raw}"
         sid = str(sid_raw).strip().upper()
         if sid not in SIGNALS:
-            close = difflib.get_close_matches(sid, list(SIGNALS), n=1)
+            close = _close_matches(sid, list(SIGNALS), n=1)
             hint = f"; did you mean '{close[0]}'?" if close else ""
             chk.add(dotted, f"'{sid_raw}' is not a known signal{hint}; known: {', '.join(SIGNALS)}")
             continue
