@@ -66,6 +66,7 @@ from typing import Any
 
 import numpy as np
 
+from ..ground.arrays import unique_values
 from ..ground.errors import Cancelled, InputError
 from ..ground.timeutil import iso_z
 
@@ -918,7 +919,7 @@ class _McTables:
         self.rise = np.array(rise, dtype=float)
         self.set = np.array(set_, dtype=float)
         self.busy_until = np.minimum(self.set, self.t_end)
-        self.rise_times = np.unique(self.rise[self.rise < self.t_end])
+        self.rise_times = unique_values(self.rise[self.rise < self.t_end])
         pfa_after = inp.pfa_position_after if inp.pfa_position_after is not None else inp.pfa_position
         figs = {}
         for state, (q, pd, pfa) in (("first", (inp.q_first, inp.pd_first, inp.pfa_position)),

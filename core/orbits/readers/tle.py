@@ -36,6 +36,7 @@ from pathlib import Path
 import numpy as np
 from sgp4.api import Satrec
 
+from ...ground.arrays import median_value
 from ...ground.constants import SECONDS_PER_DAY, UNIX_JD
 from ...ground.errors import OrbitFormatError
 from ..orbit_set import OrbitEntry, OrbitFileInfo, OrbitSet, SatelliteInfo
@@ -275,7 +276,7 @@ def parse_tle(text: str, source: str = "<tle>",
             warnings.append(f"{source}: {kw}")
     epochs = np.array([e.info.epoch_unix_s for e in entries])
     info = OrbitFileInfo(path=source, format="TLE", n_satellites=len(entries),
-                         epoch_unix_s=float(np.median(epochs)))
+                         epoch_unix_s=median_value(epochs))
     return OrbitSet(entries=entries, files=[info], warnings=warnings)
 
 

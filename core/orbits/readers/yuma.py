@@ -27,6 +27,7 @@ from numbers import Real
 
 import numpy as np
 
+from ...ground.arrays import median_value
 from ...ground.constants import SECONDS_PER_WEEK, WEEKS_PER_ROLLOVER
 from ...ground.errors import InputError, OrbitFormatError
 from ...ground.timeutil import gps_week_tow_to_unix_s, iso_z, resolve_week, to_unix_s
@@ -205,7 +206,7 @@ def finish_almanac_set(raws: list[RawAlmanac], fmt: str, source: str,
     else:
         week_full = resolve_week(week_raw, first.toa_s, reference_unix_s)
     epochs = np.array([e.info.epoch_unix_s for e in entries])
-    epoch = float(np.median(epochs))
+    epoch = median_value(epochs)
     info = OrbitFileInfo(path=source, format=fmt, n_satellites=len(entries), epoch_unix_s=epoch,
                          week_raw=week_raw, week_full=week_full,
                          reference_unix_s=reference_unix_s,
