@@ -88,6 +88,11 @@ _PUBLIC: dict[str, str] = {
     "make_plan": "core.plan.pipeline",
     "add_monte_carlo": "core.plan.pipeline",
     "plan_to_json": "core.plan.pipeline",
+    "PlanTooLarge": "core.plan.pipeline",
+    "LongPlan": "core.plan.long_window",
+    "make_long_plan": "core.plan.long_window",
+    "long_plan_rows": "core.plan.long_window",
+    "long_plan_to_json": "core.plan.long_window",
     "plan_drive": "core.plan.events",
     "load_drive": "core.plan.events",
     "DrivePlan": "core.plan.events",
@@ -197,9 +202,11 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     from core.orbits.plausibility import check_elements  # noqa: F401
     from core.orbits.readers import load_mapping, load_orbit_files, load_orbits  # noqa: F401
     from core.plan.events import DrivePlan, EventPlan, load_drive, plan_drive  # noqa: F401
+    from core.plan.long_window import LongPlan, long_plan_rows, long_plan_to_json, make_long_plan  # noqa: F401
     from core.plan.pipeline import (  # noqa: F401
         SUMMARY_COLUMNS,
         Plan,
+        PlanTooLarge,
         PreparedGeometry,
         add_monte_carlo,
         make_plan,

@@ -201,11 +201,20 @@ def prepare_geometry(sc: Scenario, progress: ProgressFn | None = None,
                             _time.perf_counter() - t0)
 
 
+class PlanTooLarge(InputError):
+    """A plan above PLAN_MAX_SATELLITE_STEPS for :func:`make_plan`, which keeps its (S, T)
+    arrays; core.plan.long_window makes it block by block."""
+
+
 def check_plan_size(n_satellites: int, start_unix_s: float, end_unix_s: float, step_s: float) -> None:
     """Refuse, before any array is made, a plan above PLAN_MAX_SATELLITE_STEPS (its memory
-    grows with satellites x time steps; the limit keeps it within about 1 GB)."""
-    check_grid_size(n_satellites, end_unix_s - start_unix_s, step_s, PLAN_MAX_SATELLITE_STEPS,
-                    what="plan's", step_option="a [time] step_s", field="time.step_s")
+    grows with satellites x time steps; the limit keeps it within about 1 GB);
+    :class:`PlanTooLarge`."""
+    try:
+        check_grid_size(n_satellites, end_unix_s - start_unix_s, step_s, PLAN_MAX_SATELLITE_STEPS,
+                        what="plan's", step_option="a [time] step_s", field="time.step_s")
+    except InputError as err:
+        raise PlanTooLarge(err.message, file=err.file, line=err.line, field=err.field) from None
 
 
 def _reuse(g: PreparedGeometry, name: str, key: tuple, make: Callable[[], Any],

@@ -39,11 +39,35 @@ def _for_reading(rows: list[dict]) -> list[dict]:
     return out
 
 
+def _make_plan(scenario, args):
+    """(plan, None) from make_plan within its size limit; above it (None, long plan) made
+    block by block, whose output has no per-step window lists: the JSON then needs
+    --no-windows and --export-dir is refused, each with the step that would fit."""
+    from core.api import InputError, PlanTooLarge, make_long_plan, make_plan
+
+    try:
+        return make_plan(scenario), None
+    except PlanTooLarge as err:
+        if args.export_dir:
+            raise InputError(
+                f"--export-dir writes the window of every satellite at every step in view "
+                f"(STEM_windows.csv) and is limited so: {err.message}; for a longer window "
+                "write the summaries with --format csv -o FILE or --format json --no-windows "
+                "-o FILE", field=err.field) from None
+        if args.format == "json" and not args.no_windows:
+            raise InputError(
+                f"the plan JSON lists the window of every satellite at every step in view "
+                f"and is limited so: {err.message}; or add --no-windows to write it without "
+                "those lists (passes, searches, timeline and TTFF stay)", field=err.field) from None
+    return None, make_long_plan(scenario)
+
+
 def cmd_plan(args) -> int:
     from core.api import (
         SUMMARY_COLUMNS,
         load_scenario,
-        make_plan,
+        long_plan_rows,
+        long_plan_to_json,
         plan_rows,
         plan_to_json,
         timeline_rows,
@@ -53,7 +77,9 @@ def cmd_plan(args) -> int:
     changes = {k: True for k in ("skip_bad_records", "allow_old_data") if getattr(args, k)}
     if changes:
         scenario = scenario.with_changes(orbits=changes)
-    plan = make_plan(scenario)
+    plan, long_plan = _make_plan(scenario, args)
+    if long_plan is not None:
+        plan = long_plan.plan            # its satellites, timeline and TTFF; rows below
     drive = None
     if scenario.route is not None or scenario.events:
         from core.api import plan_drive
@@ -67,8 +93,12 @@ def cmd_plan(args) -> int:
 
         for path in export_all(plan, args.export_dir, args.stem):
             print(f"wrote {path}", file=sys.stderr)
+    rows = plan_rows(plan) if long_plan is None else long_plan_rows(long_plan)
     if args.format == "json":
-        out = plan_to_json(plan)
+        out = plan_to_json(plan) if long_plan is None else long_plan_to_json(long_plan)
+        if args.no_windows:
+            for sat in out["satellites"]:
+                sat["windows"] = None
         if drive is not None:
             out.update(drive.to_json())
         emit(json.dumps(out, indent=1), args.output)
@@ -77,12 +107,12 @@ def cmd_plan(args) -> int:
         if drive is not None:       # one row per drive event
             emit(format_rows(drive.summary_rows(), "csv", DRIVE_COLUMNS), args.output)
             return EXIT_OK
-        emit(format_rows(plan_rows(plan), "csv", SUMMARY_COLUMNS), args.output)
+        emit(format_rows(rows, "csv", SUMMARY_COLUMNS), args.output)
     else:
         parts = [note[:1].upper() + note[1:]] if note else []
         parts += ["Searches (one row per satellite in view; times UTC; in_view: fraction of the\n"
                   "window above the mask; narrowed (narr_*) = after the first acquisition)",
-                  format_rows(_for_reading(plan_rows(plan)), "table", SUMMARY_COLUMNS, TABLE_HEADS),
+                  format_rows(_for_reading(rows), "table", SUMMARY_COLUMNS, TABLE_HEADS),
                   "Channel timeline", format_rows(_for_reading(timeline_rows(plan)), "table"),
                   plan.summary_text()]
         if drive is not None:
@@ -114,6 +144,8 @@ def _drive_parts(drive) -> list[str]:
 
 
 def register(sub) -> None:
+    from core.api import PLAN_MAX_SATELLITE_STEPS
+
     sp = sub.add_parser("plan", help="the full search plan of a scenario file (and of every drive event)")
     sp.add_argument("scenario", metavar="SCENARIO.toml", help="scenario file to plan (TOML)")
     output_options(sp)
@@ -123,4 +155,9 @@ def register(sub) -> None:
                          "satellite per step) and STEM_search.csv (search per satellite) into DIR "
                          "(default: no files)")
     sp.add_argument("--stem", default="plan", help="file name stem for --export-dir (default: plan)")
+    sp.add_argument("--no-windows", action="store_true",
+                    help="leave the per-step window lists out of the JSON (\"windows\": null for "
+                         f"every satellite); needed above {PLAN_MAX_SATELLITE_STEPS:,} satellite-steps (satellites x "
+                         "[time] steps: 96 satellites over 2 h at 1 s), where the plan is made "
+                         "block by block (default: list them)")
     sp.set_defaults(func=cmd_plan)
