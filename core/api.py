@@ -52,6 +52,8 @@ _PUBLIC: dict[str, str] = {
     "check_data_age": "core.orbits.data_age",
     "check_elements": "core.orbits.plausibility",
     "guard_prediction": "core.sky.result_guard",
+    "implausible_satellites": "core.sky.result_guard",
+    "failure_warnings": "core.sky.predict",
     # sky: what the receiver sees
     "Prediction": "core.sky.predict",
     "Pass": "core.sky.predict",
@@ -59,6 +61,7 @@ _PUBLIC: dict[str, str] = {
     "passes": "core.sky.predict",
     "check_grid_size": "core.sky.predict",
     "DOPPLER_MAX_SATELLITE_STEPS": "core.ground.constants",
+    "DOPPLER_STREAM_MAX_SATELLITE_STEPS": "core.ground.constants",
     "PASSES_MAX_SATELLITE_STEPS": "core.ground.constants",
     "PASSES_MAX_WINDOW_DAYS": "core.ground.constants",
     "PLAN_MAX_SATELLITE_STEPS": "core.ground.constants",
@@ -134,6 +137,7 @@ _PUBLIC: dict[str, str] = {
     "export_all": "core.files.plan_export",
     "content_hash": "core.files.plan_export",
     "write_text_atomic": "core.files.atomic",
+    "open_text_atomic": "core.files.atomic",
     "write_bytes_atomic": "core.files.atomic",
     "write_demo": "core.files.demo",
     "file_problem": "core.ground.filecheck",
@@ -157,7 +161,7 @@ def __dir__() -> list[str]:
 
 
 if TYPE_CHECKING:  # the same names, for type checkers and editors
-    from core.files.atomic import write_bytes_atomic, write_text_atomic  # noqa: F401
+    from core.files.atomic import open_text_atomic, write_bytes_atomic, write_text_atomic  # noqa: F401
     from core.files.demo import write_demo  # noqa: F401
     from core.files.plan_export import content_hash, export_all  # noqa: F401
     from core.files.scenario import (  # noqa: F401
@@ -168,6 +172,7 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     )
     from core.ground.constants import (  # noqa: F401
         DOPPLER_MAX_SATELLITE_STEPS,
+        DOPPLER_STREAM_MAX_SATELLITE_STEPS,
         PASSES_MAX_SATELLITE_STEPS,
         PASSES_MAX_WINDOW_DAYS,
         PLAN_MAX_SATELLITE_STEPS,
@@ -240,6 +245,13 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     from core.search.detection import cn0_at_elevation_dbhz  # noqa: F401
     from core.search.motion import MotionUncertainty, RouteMotion, route_motion  # noqa: F401
     from core.search.windows import Uncertainty, doppler_windows  # noqa: F401
-    from core.sky.predict import Pass, Prediction, check_grid_size, passes, predict  # noqa: F401
-    from core.sky.result_guard import guard_prediction  # noqa: F401
+    from core.sky.predict import (  # noqa: F401
+        Pass,
+        Prediction,
+        check_grid_size,
+        failure_warnings,
+        passes,
+        predict,
+    )
+    from core.sky.result_guard import guard_prediction, implausible_satellites  # noqa: F401
     from core.sky.route import Route, RouteFile, read_route_file, route_file_summary, time_route  # noqa: F401

@@ -247,17 +247,20 @@ def test_resource_limits_refuse_up_front(capsys, argv, field, words):
 
 
 def test_plan_above_the_size_limit_is_refused_naming_the_key(tmp_path, capsys):
-    """A 7-day plan at 1 s (96 satellites x 604,800 steps) is refused before any array is
-    made, with the key, the limit and a step that fits."""
+    """The JSON of a 7-day plan at 1 s (96 satellites x 604,800 steps) with its per-step
+    window lists is refused before any array is made, with the key, the limit, a step that
+    fits and the option that leaves the lists out (the plan itself is made block by block:
+    tests/test_long_window.py)."""
     from core.files.demo import write_demo
 
     path = write_demo(tmp_path)
     text = path.read_text().replace('end = "2027-05-18T06:00:00Z"', 'end = "2027-05-25T04:00:00Z"')
     text = text.replace("step_s = 30", "step_s = 1")
     path.write_text(text)
-    code, out, err = run_cli(capsys, "plan", str(path))
+    code, out, err = run_cli(capsys, "plan", str(path), "--format", "json")
     assert code == 2 and len(err.strip().splitlines()) == 1
     assert "time.step_s" in err and "700,000" in err and "at least" in err, err
+    assert "--no-windows" in err, err
 
 
 def test_output_cut_by_a_closed_pipe_is_quiet(tmp_path):

@@ -191,3 +191,44 @@ def test_cli_no_windows_within_the_limit(tmp_path, capsys):
     for s in a["satellites"]:
         s["windows"] = None
     assert a == b
+
+
+# --- acqplan doppler: listings too long to hold are written as they are made ----------------
+
+def _doppler_args(folder: Path, end: str, *extra: str) -> list[str]:
+    return ["doppler", "--orbits", str(folder / "demo_gps.tle"), "--orbits",
+            str(folder / "demo_galileo.tle"), "--site", "49.6,10.1,300",
+            "--start", "2027-05-18T04:00:00Z", "--end", end, "--step", "10", *extra]
+
+
+@pytest.mark.parametrize("fmt", ["csv", "json"])
+@pytest.mark.parametrize("extra", [(), ("--all-elevations",), ("--mask", "60")])
+def test_streamed_doppler_listing_equals_the_listing_held(tmp_path, capsys, monkeypatch, fmt, extra):
+    """The listing written piece by piece (forced here by a limit of 10 satellite-steps for
+    the listing held in memory) is the same text, to a file (atomic) and to stdout."""
+    import core.api
+
+    write_demo(tmp_path)
+    argv = _doppler_args(tmp_path, "2027-05-18T05:00:00Z", "--format", fmt, *extra)
+    code, held, err = _run(capsys, *argv)
+    assert code == 0, err
+    assert _run(capsys, *argv, "-o", str(tmp_path / "held.out"))[0] == 0
+    monkeypatch.setattr(core.api, "DOPPLER_MAX_SATELLITE_STEPS", 10, raising=False)
+    code, streamed, err = _run(capsys, *argv)
+    assert code == 0, err
+    assert streamed == held
+    assert _run(capsys, *argv, "-o", str(tmp_path / "streamed.out"))[0] == 0
+    assert (tmp_path / "streamed.out").read_bytes() == (tmp_path / "held.out").read_bytes()
+    assert not list(tmp_path.glob(".*.part"))
+    if fmt == "json":
+        doc = json.loads(streamed)
+        assert doc["satellites"] and all(s["samples"] for s in doc["satellites"])
+
+
+def test_streamed_doppler_table_is_refused_naming_the_formats(tmp_path, capsys, monkeypatch):
+    import core.api
+
+    write_demo(tmp_path)
+    monkeypatch.setattr(core.api, "DOPPLER_MAX_SATELLITE_STEPS", 10, raising=False)
+    code, out, err = _run(capsys, *_doppler_args(tmp_path, "2027-05-18T05:00:00Z"))
+    assert code == 2 and "--format csv" in err and "--step" in err, err

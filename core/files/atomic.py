@@ -15,13 +15,15 @@ file behind); an existing file keeps its permission bits.
 
 from __future__ import annotations
 
+import contextlib
 import errno
 import os
 import stat
 import tempfile
 import time
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from pathlib import Path
+from typing import TextIO
 
 from ..ground.errors import InputError
 
@@ -134,6 +136,40 @@ def write_bytes_atomic(path: str | os.PathLike[str], data: bytes,
         _unlink_quietly(tmp)
         raise error(f"cannot {what}: {err.strerror or err}", file=str(shown)) from None
     return shown
+
+
+@contextlib.contextmanager
+def open_text_atomic(path: str | os.PathLike[str], error: type[InputError] = InputError,
+                     what: str = "write") -> Iterator[TextIO]:
+    """A text file to write an output as it is produced, for outputs too large to build in
+    memory: the text goes to a temporary file beside ``path``, renamed onto it when the
+    block ends without an exception (removed otherwise), as :func:`write_bytes_atomic`. A
+    named pipe or a device is written directly."""
+    shown = Path(path)
+    target = _real_target(path)
+    if _special(target):
+        try:
+            with open(target, "w", encoding="utf-8", newline="") as f:
+                yield f
+        except OSError as err:
+            raise error(f"cannot {what}: {err.strerror or err}", file=str(shown)) from None
+        return
+    _check_folder(target, shown, error, what)
+    tmp = _stage(target, shown, b"", error, what)
+    mode = os.stat(tmp).st_mode & 0o777
+    try:
+        with open(tmp, "w", encoding="utf-8", newline="") as f:
+            yield f
+            f.flush()
+            os.fsync(f.fileno())
+        os.chmod(tmp, mode)
+        os.replace(tmp, target)
+    except OSError as err:
+        _unlink_quietly(tmp)
+        raise error(f"cannot {what}: {err.strerror or err}", file=str(shown)) from None
+    except BaseException:
+        _unlink_quietly(tmp)
+        raise
 
 
 def write_text_atomic(path: str | os.PathLike[str], text: str,

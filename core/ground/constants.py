@@ -103,13 +103,17 @@ GLONASS_EARTH_ROTATION_RAD_S = 7.292115e-5
 # Every command keeps its memory within about 1 GB whatever the window [calc: peak resident
 # set measured with resource.getrusage on the demo, benchmarks/bench_predict.py and
 # bench_plan.py]: predict works in blocks (57 bytes a satellite-sample of results); the
-# plan holds about 580 bytes a satellite-step and its JSON about 700 more, so a plan is
-# refused above PLAN_MAX_SATELLITE_STEPS (96 satellites: 24 h at 12 s, 2 h at 1 s); the
+# plan holds about 580 bytes a satellite-step and its JSON about 700 more, so make_plan
+# refuses above PLAN_MAX_SATELLITE_STEPS (96 satellites: 24 h at 12 s, 2 h at 1 s) and
+# `acqplan plan` then plans block by block (core.plan.long_window: 7 days at 1 s, 424 MB); the
 # doppler listing holds about 2.1 kB a listed sample until it is written (JSON, every
 # elevation: 4.1 GB for 1.9 M samples), so it is refused above DOPPLER_MAX_SATELLITE_STEPS
 # (24 satellites: 4.6 h at 1 s, a day at 5 s); passes works in blocks and keeps only the
 # passes, so it is limited by window length and by computing time.
 PLAN_MAX_SATELLITE_STEPS = 700_000
 DOPPLER_MAX_SATELLITE_STEPS = 400_000
+# Above it, a CSV or JSON listing is written as it is made (memory bounded; a week at 1 s for
+# 96 satellites is 58 million satellite-steps, several GB of text).
+DOPPLER_STREAM_MAX_SATELLITE_STEPS = 100_000_000
 PASSES_MAX_WINDOW_DAYS = 366.0
 PASSES_MAX_SATELLITE_STEPS = 100_000_000

@@ -82,68 +82,217 @@ def cmd_passes(args) -> int:
     return EXIT_OK
 
 
-def cmd_doppler(args) -> int:
+DOPPLER_COLUMNS = ["time", "id", "signal", "azimuth_deg", "elevation_deg", "range_m",
+                   "range_rate_m_s", "doppler_hz", "doppler_rate_hz_s"]
+
+
+def _samples(pred, k: int, show, iso) -> list[tuple]:
+    """(time, azimuth, elevation, range, range rate, Doppler, Doppler rate) of satellite
+    row k at grid indices ``show``, rounded as listed."""
+    range_rate = -pred.doppler_hz[k] * pred.wavelength_m[k]     # as Prediction.range_rate_m_s
+    cols = [arr[show].tolist() for arr in (pred.azimuth_deg[k], pred.elevation_deg[k],
+                                           pred.range_m[k], range_rate, pred.doppler_hz[k],
+                                           pred.doppler_rate_hz_s[k])]
+    return [(iso[j], round(az, 4), round(el, 4), round(rng, 3), round(rr, 4), round(dop, 3),
+             round(rate, 5)) for j, az, el, rng, rr, dop, rate in zip(show.tolist(), *cols)]
+
+
+def _shown(pred, k: int, args):
     import numpy as np
 
+    above = True if args.all_elevations else pred.elevation_deg[k] >= args.mask
+    return np.nonzero(pred.valid[k] & above)[0]
+
+
+def _select_signal(orbits, args):
+    from core.api import get_signal
+
+    if not args.signal:
+        return orbits
+    sig = get_signal(args.signal)
+    keep = [e.info.sat_id for e in orbits.entries if e.info.system == sig.system]
+    if not keep:
+        raise InputError(f"no satellite of the {sig.description} system in the orbit files",
+                         field="--signal")
+    return orbits.select(keep)
+
+
+def _doppler_head(args, site, grid_start, grid_end, orbits, start) -> dict:
+    from core.api import iso_z
+
+    return {"site": [site.lat_deg, site.lon_deg, site.height_m],
+            "start": iso_z(grid_start), "end": iso_z(grid_end), "step_s": args.step,
+            "mask_deg": None if args.all_elevations else args.mask,
+            "orbit_files": _files_json(orbits, start)}
+
+
+def cmd_doppler(args) -> int:
     from core.api import (
         DOPPLER_MAX_SATELLITE_STEPS,
+        DOPPLER_STREAM_MAX_SATELLITE_STEPS,
         check_grid_size,
-        get_signal,
         guard_prediction,
-        iso_z,
         predict,
         time_grid,
         to_unix_s,
     )
 
     orbits, site, start, end = _load(args)
-    if args.signal:
-        sig = get_signal(args.signal)
-        keep = [e.info.sat_id for e in orbits.entries if e.info.system == sig.system]
-        if not keep:
-            raise InputError(f"no satellite of the {sig.description} system in the orbit files",
-                             field="--signal")
-        orbits = orbits.select(keep)
-    check_grid_size(len(orbits), to_unix_s(end) - to_unix_s(start), args.step,
-                    DOPPLER_MAX_SATELLITE_STEPS, what="doppler table's", step_option="a --step",
-                    field="--step")
+    orbits = _select_signal(orbits, args)
+    span_s = to_unix_s(end) - to_unix_s(start)
+    try:
+        check_grid_size(len(orbits), span_s, args.step, DOPPLER_MAX_SATELLITE_STEPS,
+                        what="doppler table's", step_option="a --step", field="--step")
+    except InputError as err:
+        # Longer listings are written as they are made (CSV, JSON); the aligned table
+        # needs every row first.
+        if args.format == "table":
+            raise InputError(f"{err.message}; --format csv or --format json write longer "
+                             "listings as they are made", field=err.field) from None
+        check_grid_size(len(orbits), span_s, args.step, DOPPLER_STREAM_MAX_SATELLITE_STEPS,
+                        what="doppler listing's", step_option="a --step", field="--step",
+                        memory="bounded, but a listing of tens of GB")
+        return _doppler_streamed(args, orbits, site, start, end)
     grid = time_grid(start, end, args.step)
     orbits, pred, _ = guard_prediction(orbits, predict(orbits, site, grid, signals=args.signal))
     iso = grid.iso()
-    range_rate = pred.range_rate_m_s          # derived from the Doppler: computed once
     sats = []
     for k, sid in enumerate(pred.ids):
-        above = True if args.all_elevations else pred.elevation_deg[k] >= args.mask
-        show = np.nonzero(pred.valid[k] & above)[0]
+        show = _shown(pred, k, args)
         if not show.size:
             continue
-        cols = [arr[k, show].tolist() for arr in (pred.azimuth_deg, pred.elevation_deg,
-                                                  pred.range_m, range_rate, pred.doppler_hz,
-                                                  pred.doppler_rate_hz_s)]
-        samples = [{"time": iso[j], "azimuth_deg": round(az, 4), "elevation_deg": round(el, 4),
-                    "range_m": round(rng, 3), "range_rate_m_s": round(rr, 4),
-                    "doppler_hz": round(dop, 3), "doppler_rate_hz_s": round(rate, 5)}
-                   for j, az, el, rng, rr, dop, rate in zip(show.tolist(), *cols)]
+        samples = [dict(zip(DOPPLER_COLUMNS[:1] + DOPPLER_COLUMNS[3:], row))
+                   for row in _samples(pred, k, show, iso)]
         info = orbits.entries[k].info
         sats.append({"id": sid, "signal": pred.signal_ids[k],
                      "carrier_hz": float(pred.carrier_hz[k]), "healthy": info.healthy,
                      "samples": samples})
     warnings = pred.warnings
     if args.format == "json":
-        emit(json.dumps({"site": [site.lat_deg, site.lon_deg, site.height_m],
-                          "start": iso_z(grid.start_unix_s), "end": iso_z(grid.end_unix_s),
-                          "step_s": args.step,
-                          "mask_deg": None if args.all_elevations else args.mask,
-                          "orbit_files": _files_json(orbits, start),
-                          "satellites": sats, "warnings": warnings}, indent=1), args.output)
+        emit(json.dumps(_doppler_head(args, site, grid.start_unix_s, grid.end_unix_s, orbits, start)
+                        | {"satellites": sats, "warnings": warnings}, indent=1), args.output)
     else:
         print_warnings(warnings)
         rows = [{"id": s["id"], "signal": s["signal"], **smp} for s in sats for smp in s["samples"]]
-        cols = ["time", "id", "signal", "azimuth_deg", "elevation_deg", "range_m",
-                "range_rate_m_s", "doppler_hz", "doppler_rate_hz_s"]
         rows.sort(key=lambda r: (r["time"], r["id"]))
-        emit(format_rows(rows, args.format, cols), args.output)
+        emit(format_rows(rows, args.format, DOPPLER_COLUMNS), args.output)
     return EXIT_OK
+
+
+# Satellite-samples predicted per piece of a streamed listing.
+_STREAM_SAMPLES = 1 << 18
+_MARK = "@@listing@@"
+
+
+def _doppler_streamed(args, orbits, site, start, end) -> int:
+    """The listing of a window too long to hold, written as it is made (to a temporary
+    file renamed at the end with -o FILE, or to stdout): the plausibility guard over
+    every sample first (one pass in pieces), then the kept satellites in pieces, in time
+    order for CSV and satellite by satellite for JSON. Same text as the listing held in
+    memory."""
+    import contextlib
+    import csv
+    import sys
+
+    import numpy as np
+
+    from core.api import (
+        TimeGrid,
+        failure_warnings,
+        implausible_satellites,
+        open_text_atomic,
+        predict,
+        time_grid,
+    )
+
+    grid = time_grid(start, end, args.step)
+    u = grid.unix_s
+    n_s = len(orbits)
+    per = max(2, _STREAM_SAMPLES // max(n_s, 1))
+    failures: dict = {}
+    reasons: dict[int, str] = {}
+    no_position: dict[int, str] = {}
+    ever = np.zeros(n_s, dtype=bool)
+    for a in range(0, u.size, per):
+        pred = predict(orbits, site, u[a:a + per], signals=args.signal, failures=failures)
+        ever |= pred.valid.any(axis=1)
+        for s, why in implausible_satellites(orbits, pred).items():
+            (reasons if pred.valid[s].any() else no_position).setdefault(s, why)
+    bad = dict(reasons)
+    bad.update({s: why for s, why in no_position.items() if not ever[s]})
+    guard = [f"{orbits.entries[s].info.sat_id} ({orbits.entries[s].info.source_file}): {why}; "
+             "satellite dropped (check its orbit record)" for s, why in sorted(bad.items())]
+    warnings = list(orbits.warnings) + failure_warnings(orbits, failures, u.size) + guard
+    if len(bad) == n_s:
+        first = min(bad)
+        raise InputError(f"no satellite with a possible orbit is left: {orbits.entries[first].info.sat_id}"
+                         f" {bad[first]}", file=orbits.entries[first].info.source_file)
+    kept = orbits.select([e.info.sat_id for s, e in enumerate(orbits.entries) if s not in bad])
+    out_cm = open_text_atomic(args.output) if args.output else contextlib.nullcontext(sys.stdout)
+    if args.format == "csv":
+        print_warnings(warnings)
+        per = max(2, _STREAM_SAMPLES // max(len(kept), 1))
+        with out_cm as f:
+            w = csv.writer(f, lineterminator="\n")
+            w.writerow(DOPPLER_COLUMNS)
+            for a in range(0, u.size, per):
+                g = TimeGrid(u[a:a + per])
+                pred = predict(kept, site, g, signals=args.signal, failures={})
+                iso = g.iso()
+                rows = []
+                for k, sid in enumerate(pred.ids):
+                    sig = pred.signal_ids[k]
+                    rows.extend((r[0], sid, sig) + r[1:] for r in _samples(pred, k, _shown(pred, k, args), iso))
+                rows.sort(key=lambda r: (r[0], r[1]))
+                w.writerows(rows)
+        return EXIT_OK
+    head = json.dumps(_doppler_head(args, site, grid.start_unix_s, grid.end_unix_s, kept, start)
+                      | {"satellites": [_MARK], "warnings": warnings}, indent=1)
+    before, after = head.split(f'\n  "{_MARK}"')
+    per = max(2, _STREAM_SAMPLES)
+    with out_cm as f:
+        f.write(before)
+        written = 0
+        for e in kept.entries:
+            one = kept.select([e.info.sat_id])
+            opened = False
+            for a in range(0, u.size, per):
+                g = TimeGrid(u[a:a + per])
+                pred = predict(one, site, g, signals=args.signal, failures={})
+                show = _shown(pred, 0, args)
+                if not show.size:
+                    continue
+                if not opened:
+                    sat = json.dumps({"id": e.info.sat_id, "signal": pred.signal_ids[0],
+                                      "carrier_hz": float(pred.carrier_hz[0]),
+                                      "healthy": e.info.healthy, "samples": [_MARK]}, indent=1)
+                    sat_before = sat.split(f'\n  "{_MARK}"')[0]
+                    f.write(("," if written else "") + "\n" + _indent(sat_before, 2))
+                    opened, first = True, True
+                f.write("".join(_sample_text(r, first and i == 0)
+                                for i, r in enumerate(_samples(pred, 0, show, g.iso()))))
+                first = False
+            if opened:
+                f.write("\n   ]\n  }")
+                written += 1
+        f.write(after if written else "]" + after[len("\n ]"):])
+        if not args.output:
+            f.write("\n")             # as emit() ends a listing on the terminal
+    return EXIT_OK
+
+
+def _indent(text: str, n: int) -> str:
+    pad = " " * n
+    return "\n".join(pad + line for line in text.split("\n"))
+
+
+def _sample_text(r: tuple, first: bool) -> str:
+    """One sample as json.dumps(..., indent=1) lays it out four levels deep."""
+    return ((",\n" if not first else "\n") +
+            f'    {{\n     "time": "{r[0]}",\n     "azimuth_deg": {r[1]!r},\n'
+            f'     "elevation_deg": {r[2]!r},\n     "range_m": {r[3]!r},\n'
+            f'     "range_rate_m_s": {r[4]!r},\n     "doppler_hz": {r[5]!r},\n'
+            f'     "doppler_rate_hz_s": {r[6]!r}\n    }}')
 
 
 def _geometry_options(sp, step_required: bool) -> None:
