@@ -54,17 +54,16 @@ from .pipeline import (
     _check_cancel,
     _dedupe,
     _report,
-    _widen_for_unknown_k,
     acquisition_uncertainty,
     first_windows,
     geometry_key,
+    give_first_windows,
     load_satellites,
     make_plan,
     old_data_warnings,
     orbit_margins,
     plan_rows,
     plan_to_json,
-    unknown_glonass_k,
 )
 from .spec import Scenario
 
@@ -308,10 +307,9 @@ def make_long_plan(sc: Scenario, progress: ProgressFn | None = None,
                          passes_found, red_pred.signal_ids, visible, warnings + red_pred.warnings,
                          _time.perf_counter() - t_start)
     margins_red = orbit_margins(sc.search, g)
-    g.window_cache[(unc, margins_red.doppler_hz.tobytes())] = (
-        w_red, _widen_for_unknown_k(w_red, unknown_glonass_k(g)))
-    # Guard against a stale cache key: first_windows must return the kept windows.
-    assert first_windows(g, unc, margins_red)[0] is w_red
+    give_first_windows(g, unc, margins_red, w_red)
+    if first_windows(g, unc, margins_red)[0] is not w_red:
+        raise ComputationError("internal: the plan would not use the windows of the blocks")
     plan = make_plan(sc, prepared=g, progress=progress, cancel=cancel, monte_carlo=monte_carlo)
     # The old-data warning of the whole window, not of the kept times.
     full_old = old_data_warnings(sc.search, sorted(old & set(kept_orbits.ids)))

@@ -510,6 +510,16 @@ def first_windows(g: PreparedGeometry, unc: Uncertainty, margins: OrbitMargins
     return cached
 
 
+def give_first_windows(g: PreparedGeometry, unc: Uncertainty, margins: OrbitMargins,
+                       w_raw: DopplerWindows) -> None:
+    """Make :func:`first_windows` return ``w_raw`` (and its widening) for ``unc`` and
+    ``margins``: windows computed elsewhere, e.g. block by block over a long window
+    (core.plan.long_window), where the reduced grid cannot give their time derivatives."""
+    g.window_cache.clear()
+    g.window_cache["windows"] = (unc, margins.doppler_hz,
+                                 (w_raw, _widen_for_unknown_k(w_raw, unknown_glonass_k(g))))
+
+
 @dataclass(frozen=True)
 class Integration:
     """Coherent and non-coherent integration per satellite row, with the losses that follow
