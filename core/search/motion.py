@@ -214,22 +214,24 @@ def route_motion(route: Route, unix_s: np.ndarray, unc: MotionUncertainty = Moti
                        s_lo, s_hi, h_lo, h_hi, c - unc.vertical_m_s, c + unc.vertical_m_s, lok)
 
 
-def _cos_range(az_deg: np.ndarray, heading_lo_deg: np.ndarray, heading_hi_deg: np.ndarray
+def _cos_range(cos_u: np.ndarray, abs_sin_u: np.ndarray, cos_half: np.ndarray, sin_half: np.ndarray
                ) -> tuple[np.ndarray, np.ndarray]:
-    """Least and greatest cos(az - h) over headings h in [lo, hi] (deg, hi - lo <= 360):
-    with x the angle from the interval's middle to az (0..180) and w its half-width, the
-    angle to az runs over [x - w, x + w], where cos falls monotonically on 0..180."""
-    mid = 0.5 * (heading_lo_deg + heading_hi_deg)
-    half = 0.5 * (heading_hi_deg - heading_lo_deg)
-    x = np.abs((az_deg - mid + 180.0) % 360.0 - 180.0)
-    cmax = np.cos(np.radians(np.maximum(x - half, 0.0)))
-    cmin = np.cos(np.radians(np.minimum(x + half, 180.0)))
+    """Least and greatest cos(az - h) over headings h in [mid - w, mid + w] (0 <= w <= 180
+    deg), from the cosine and |sine| of u = az - mid and the cosine and sine of w: with x
+    the angle from mid to az (0..180, cos x = cos u, sin x = |sin u|), the angle to az runs
+    over [x - w, x + w], where cos falls monotonically on 0..180, so the greatest is 1 when
+    x <= w (cos x >= cos w), else cos(x - w), and the least -1 when x + w >= 180
+    (cos x <= -cos w), else cos(x + w) [calc: angle-sum formulas]."""
+    a = cos_u * cos_half
+    b = abs_sin_u * sin_half
+    cmax = np.where(cos_u >= cos_half, 1.0, a + b)
+    cmin = np.where(cos_u <= -cos_half, -1.0, a - b)
     return cmin, cmax
 
 
 def motion_terms_hz(motion: RouteMotion, azimuth_deg: np.ndarray, elevation_deg: np.ndarray,
                     gradient_ecef_hz_m: np.ndarray, wavelength_m: np.ndarray,
-                    elevation_spread_rad: np.ndarray | float = 0.0, block_elements: int = 2_000_000):
+                    elevation_spread_rad: np.ndarray | float = 0.0, block_elements: int = 16_384):
     """Per (S, T), over the candidate legs:
 
     * ``slip``: least and greatest g . (p - p_nominal) (Hz) over the positions on the legs
@@ -243,37 +245,58 @@ def motion_terms_hz(motion: RouteMotion, azimuth_deg: np.ndarray, elevation_deg:
     * ``joint``: least and greatest of their sum on the same leg (position and motion on
       one leg go together), never wider than the two separate ranges added.
 
-    Returns (slip_lo, slip_hi, vel_lo, vel_hi, joint_lo, joint_hi)."""
+    Returns (slip_lo, slip_hi, vel_lo, vel_hi, joint_lo, joint_hi).
+
+    The work is (T, S, L) arrays in blocks of about ``block_elements`` (small temporaries
+    stay in the processor's cache and are reused by the allocator: blocks of millions were
+    3x slower); a time's unused leg slots repeat one of its real legs,
+    which leaves every extreme unchanged and needs no masks."""
     n_s, n_t = azimuth_deg.shape
-    out = [np.empty((n_s, n_t)) for _ in range(6)]
-    n_l = motion.leg_ok.shape[1]
+    ok = motion.leg_ok
+    n_l = ok.shape[1]
+    pick = np.where(ok, np.arange(n_l)[None, :], np.argmax(ok, axis=1)[:, None])
+    rows = np.arange(n_t)[:, None]
+
+    def legs(x):                     # (T, L) -> (T, 1, L), unused slots filled
+        return x[rows, pick][:, None, :]
+
+    h_lo, h_hi = legs(motion.leg_heading_lo_deg), legs(motion.leg_heading_hi_deg)
+    mid = np.radians(0.5 * (h_lo + h_hi))
+    half = np.radians(np.clip(0.5 * (h_hi - h_lo), 0.0, 180.0))
+    cos_mid, sin_mid, cos_half, sin_half = np.cos(mid), np.sin(mid), np.cos(half), np.sin(half)
+    s_lo, s_hi = legs(motion.leg_speed_lo_m_s), legs(motion.leg_speed_hi_m_s)
+    c_lo, c_hi = legs(motion.leg_climb_lo_m_s), legs(motion.leg_climb_hi_m_s)
+    disp_a = motion.leg_start_disp_ecef_m[rows, pick].transpose(0, 2, 1)     # (T, 3, L)
+    disp_b = motion.leg_end_disp_ecef_m[rows, pick].transpose(0, 2, 1)
+    # Per (T, S, 1).
+    az = np.radians(azimuth_deg).T[:, :, None]
+    el = np.radians(elevation_deg).T[:, :, None]
+    cos_az, sin_az, ce = np.cos(az), np.sin(az), np.cos(el)
+    spread = np.broadcast_to(np.asarray(elevation_spread_rad, dtype=float), azimuth_deg.shape).T[:, :, None]
+    se1 = np.sin(np.clip(el - spread, -np.pi / 2, np.pi / 2))
+    se2 = np.sin(np.clip(el + spread, -np.pi / 2, np.pi / 2))
+    lam = np.broadcast_to(np.asarray(wavelength_m, dtype=float).reshape(-1), (n_s,))[None, :, None]
+    grad = gradient_ecef_hz_m.transpose(1, 0, 2)                                # (T, S, 3)
+    out = [np.empty((n_t, n_s)) for _ in range(6)]
     step = max(1, block_elements // max(n_s * n_l, 1))
-    lam = np.asarray(wavelength_m, dtype=float).reshape(-1, 1, 1)
     for a in range(0, n_t, step):
         b = min(a + step, n_t)
-        az = azimuth_deg[:, a:b, None]
-        el = np.radians(elevation_deg[:, a:b, None])
-        ce = np.cos(el)
-        cmin, cmax = _cos_range(az, motion.leg_heading_lo_deg[None, a:b], motion.leg_heading_hi_deg[None, a:b])
-        s_lo, s_hi = motion.leg_speed_lo_m_s[None, a:b], motion.leg_speed_hi_m_s[None, a:b]
-        c_lo, c_hi = motion.leg_climb_lo_m_s[None, a:b], motion.leg_climb_hi_m_s[None, a:b]
-        spread = np.broadcast_to(np.asarray(elevation_spread_rad, dtype=float), azimuth_deg.shape)[:, a:b, None]
-        se1 = np.sin(np.clip(el - spread, -np.pi / 2, np.pi / 2))
-        se2 = np.sin(np.clip(el + spread, -np.pi / 2, np.pi / 2))
-        ups = (se1 * c_lo, se1 * c_hi, se2 * c_lo, se2 * c_hi)
+        cu = cos_az[a:b] * cos_mid[a:b] + sin_az[a:b] * sin_mid[a:b]            # cos(az - mid)
+        su = np.abs(sin_az[a:b] * cos_mid[a:b] - cos_az[a:b] * sin_mid[a:b])    # |sin(az - mid)|
+        cmin, cmax = _cos_range(cu, su, cos_half[a:b], sin_half[a:b])
+        ups = (se1[a:b] * c_lo[a:b], se1[a:b] * c_hi[a:b], se2[a:b] * c_lo[a:b], se2[a:b] * c_hi[a:b])
         up_lo = np.minimum(np.minimum(ups[0], ups[1]), np.minimum(ups[2], ups[3]))
         up_hi = np.maximum(np.maximum(ups[0], ups[1]), np.maximum(ups[2], ups[3]))
-        v_hi = (ce * np.maximum(s_lo * cmax, s_hi * cmax) + up_hi) / lam
-        v_lo = (ce * np.minimum(s_lo * cmin, s_hi * cmin) + up_lo) / lam
-        g = gradient_ecef_hz_m[:, a:b]
-        pa = np.einsum("stj,tlj->stl", g, motion.leg_start_disp_ecef_m[a:b])
-        pb = np.einsum("stj,tlj->stl", g, motion.leg_end_disp_ecef_m[a:b])
+        v_hi = (ce[a:b] * np.maximum(s_lo[a:b] * cmax, s_hi[a:b] * cmax) + up_hi) / lam
+        v_lo = (ce[a:b] * np.minimum(s_lo[a:b] * cmin, s_hi[a:b] * cmin) + up_lo) / lam
+        pa = np.matmul(grad[a:b], disp_a[a:b])                                   # (t, S, L)
+        pb = np.matmul(grad[a:b], disp_b[a:b])
         p_lo, p_hi = np.minimum(pa, pb), np.maximum(pa, pb)
-        okb = motion.leg_ok[None, a:b]
-        for i, (vals, hi_side) in enumerate(((p_lo, False), (p_hi, True), (v_lo, False), (v_hi, True),
-                                             (p_lo + v_lo, False), (p_hi + v_hi, True))):
-            if hi_side:
-                out[i][:, a:b] = np.max(np.where(okb, vals, -np.inf), axis=2)
-            else:
-                out[i][:, a:b] = np.min(np.where(okb, vals, np.inf), axis=2)
-    return tuple(out)
+        out[0][a:b] = p_lo.min(axis=2)
+        out[1][a:b] = p_hi.max(axis=2)
+        out[2][a:b] = v_lo.min(axis=2)
+        out[3][a:b] = v_hi.max(axis=2)
+        out[4][a:b] = (p_lo + v_lo).min(axis=2)
+        out[5][a:b] = (p_hi + v_hi).max(axis=2)
+    none = ~ok.any(axis=1)[:, None]            # a time without any leg: empty extremes
+    return tuple(np.where(none, np.inf if i % 2 == 0 else -np.inf, x).T for i, x in enumerate(out))
