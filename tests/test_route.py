@@ -16,7 +16,15 @@ import pytest
 from geographiclib.geodesic import Geodesic
 
 from core.ground.errors import InputError
-from core.sky.route import SpeedStretch, read_route_file, route_file_summary, time_route
+from core.sky.route import (
+    RouteFile,
+    SpeedStretch,
+    geodesic_direct,
+    geodesic_inverse,
+    read_route_file,
+    route_file_summary,
+    time_route,
+)
 
 REPO = Path(__file__).resolve().parents[1]
 GPX = Path(os.environ.get("ACQPLAN_FIELD_DATA", REPO.parent / "shared" / "field-data")) / "gpx"
@@ -138,6 +146,77 @@ def test_positions_on_the_geodesic_against_geographiclib(gpx_dir):
             assert abs((hd[0] - ahead["azi1"] + 180) % 360 - 180) < 1e-6
         # Distance per leg equals the independent Inverse.
         assert abs((r.distance_m[k + 1] - r.distance_m[k]) - leg["s12"]) < 1e-6
+
+
+def test_array_geodesics_against_geographiclib():
+    # [pub: geographiclib's Direct and Inverse, called point by point]: the array forms
+    # the route uses for its legs and positions, over the whole globe (poles, the
+    # dateline, the equator, meridians), from 1 mm to 20,000 km.
+    g = Geodesic.WGS84
+    rng = np.random.default_rng(8)
+    n = 3000
+    lat1 = rng.uniform(-90, 90, n)
+    lat1[:20], lat1[20:40], lat1[40:60] = 90.0, -90.0, 0.0
+    lon1 = rng.uniform(-180, 180, n)
+    lon1[60:80] = 179.9999
+    azi1 = rng.uniform(-180, 180, n)
+    azi1[80:100], azi1[100:120], azi1[120:140] = 0.0, 180.0, 90.0
+    s12 = 10 ** rng.uniform(-3, 7.3, n)
+    mask = Geodesic.LATITUDE | Geodesic.LONGITUDE | Geodesic.AZIMUTH | Geodesic.LONG_UNROLL
+    ref = [g.Direct(a, b, c, d, mask) for a, b, c, d in zip(lat1, lon1, azi1, s12)]
+    lat2, lon2, azi2 = geodesic_direct(lat1, lon1, azi1, s12)
+    assert np.max(np.abs(lat2 - [r["lat2"] for r in ref])) < 1e-12
+    assert np.max(np.abs(lon2 - [r["lon2"] for r in ref])) < 1e-11
+    assert np.max(np.abs((azi2 - [r["azi2"] for r in ref] + 180) % 360 - 180)) < 1e-11
+    # Back to the start by the independent Inverse: the end points lie on the geodesic.
+    back = np.array([g.Inverse(a, b, c, d)["s12"] for a, b, c, d in zip(lat1, lon1, lat2, lon2)])
+    assert np.max(np.abs(back - s12)) < 1e-6
+
+    # Inverse of the same pairs, of coincident points and of route-like short legs.
+    lat2[:10], lon2[:10] = lat1[:10], lon1[:10]
+    lat_a = np.concatenate((lat1, 49.6 + np.cumsum(rng.normal(0, 0.001, 300))))
+    lon_a = np.concatenate((lon1, 10.1 + np.cumsum(rng.normal(0, 0.0015, 300))))
+    lat_b = np.concatenate((lat2, np.roll(lat_a[n:], -1)))
+    lon_b = np.concatenate((lon2, np.roll(lon_a[n:], -1)))
+    s, a1, a2 = geodesic_inverse(lat_a, lon_a, lat_b, lon_b)
+    inv = [g.Inverse(a, b, c, d) for a, b, c, d in zip(lat_a, lon_a, lat_b, lon_b)]
+    ref_s = np.array([r["s12"] for r in inv])
+    assert np.max(np.abs(s - ref_s)) < 1e-6
+    far = ref_s > 5.0                   # azimuths of lines of a few mm are not defined to 1e-6 deg
+    for got, key in ((a1, "azi1"), (a2, "azi2")):
+        want = np.array([r[key] for r in inv])
+        assert np.max(np.abs((got - want + 180) % 360 - 180)[far]) < 1e-6
+
+
+def test_positions_through_dwells_keep_the_heading():
+    # Stops at the middle and at the last point: stopped in the middle the vehicle faces
+    # the leg it drives next, stopped at the end the way it came (the end azimuth of the
+    # last leg) [pub: geographiclib Inverse of each leg, called independently].
+    from core.sky.route import place_waypoints
+
+    g = Geodesic.WGS84
+    p1 = g.Direct(49.0, 10.0, 30.0, 500.0)
+    p2 = g.Direct(p1["lat2"], p1["lon2"], 120.0, 500.0)
+    lat = np.array([49.0, p1["lat2"], p2["lat2"]])
+    lon = np.array([10.0, p1["lon2"], p2["lon2"]])
+    rf = RouteFile("x.csv", "csv", lat, lon, np.zeros(3), np.full(3, np.nan), [(0, 3)], [],
+                   ["line 2", "line 3", "line 4"])
+    rf.waypoints = place_waypoints(rf, [("STOP", lat[1], lon[1]), ("END", lat[2], lon[2])])
+    r = time_route(rf, start_unix_s=0.0, speed_m_s=10.0, dwell_s={"STOP": 60.0, "END": 30.0})
+    # Driving: 0-50 s leg 1, 50-110 s stopped, 110-160 s leg 2, 160-190 s stopped at the end.
+    st = r.state_at(np.array([25.0, 80.0, 150.0, 175.0, 500.0]))
+    leg1 = g.Inverse(lat[0], lon[0], lat[1], lon[1])
+    leg2 = g.Inverse(lat[1], lon[1], lat[2], lon[2])
+    mid1 = g.Inverse(lat[0], lon[0], st.lat_deg[0], st.lon_deg[0])
+    assert abs(mid1["s12"] - 250.0) < 1e-6 and abs(mid1["azi1"] - leg1["azi1"]) < 1e-6
+    assert st.speed_m_s[1] == 0.0 and g.Inverse(st.lat_deg[1], st.lon_deg[1], lat[1], lon[1])["s12"] < 1e-6
+    assert abs(st.heading_deg[1] - leg2["azi1"] % 360) < 1e-6
+    back = g.Inverse(lat[1], lon[1], st.lat_deg[2], st.lon_deg[2])
+    assert abs(back["s12"] - 400.0) < 1e-6 and abs(back["azi1"] - leg2["azi1"]) < 1e-6
+    for k in (3, 4):                     # stopped at the end, and waiting after it
+        assert st.speed_m_s[k] == 0.0
+        assert g.Inverse(st.lat_deg[k], st.lon_deg[k], lat[2], lon[2])["s12"] < 1e-6
+        assert abs(st.heading_deg[k] - leg2["azi2"] % 360) < 1e-6
 
 
 def test_state_speed_and_time_as_recorded(gpx_dir):

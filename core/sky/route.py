@@ -17,9 +17,10 @@ dwell times at named waypoints, and the reason is kept as a note; without a plan
 they are refused with one message naming the file and the point.
 
 Along the route (``Route.state_at``): position, speed, heading and distance at any times,
-on the WGS-84 ellipsoid: the legs between points are geodesics (geographiclib), a point
-between two route points lies on their geodesic at the distance driven (never a chord
-through the Earth). Heights are interpolated linearly in distance.
+on the WGS-84 ellipsoid: the legs between points are geodesics (geographiclib's algorithm,
+solved for all legs or positions at once by ``geodesic_inverse`` / ``geodesic_direct``,
+equal to geographiclib's own calls to 1e-8 m), a point between two route points lies on
+their geodesic at the distance driven (never a chord through the Earth). Heights are interpolated linearly in distance.
 
 Schedule slip (``Route.slip_range_m``): being up to ``slip_s`` early or late means being
 anywhere between the positions the timetable gives at t - slip and t + slip.
@@ -286,16 +287,199 @@ def read_route_file(path: str | Path) -> RouteFile:
 
 # --- geodesics along the polyline --------------------------------------------------------
 
+def _sincosd(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Sine and cosine of degrees, reduced by whole quadrants first (geographiclib's
+    Math.sincosd, elementwise)."""
+    r = np.fmod(x, 360.0)
+    q = np.where(np.isnan(r), 0.0, np.rint(r / 90.0))
+    r = np.radians(r - 90.0 * q)
+    s, c = np.sin(r), np.cos(r)
+    q = np.mod(q, 4.0)
+    s, c = (np.select([q == 1, q == 2, q == 3], [c, -s, -c], s),
+            np.select([q == 1, q == 2, q == 3], [-s, -c, s], c))
+    c = c + 0.0
+    return np.where(s == 0, np.copysign(s, x), s), c
+
+
+def _ang_round(x: np.ndarray) -> np.ndarray:
+    """geographiclib's Math.AngRound: tiny angles underflow to zero, elementwise."""
+    z = 1.0 / 16.0
+    y = np.abs(x)
+    return np.copysign(np.where(y < z, z - (z - y), y), x)
+
+
+def _atan2d(y: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """geographiclib's Math.atan2d (degrees, exact at the quadrant limits), elementwise."""
+    swap = np.abs(y) > np.abs(x)
+    x, y = np.where(swap, y, x), np.where(swap, x, y)
+    neg = x < 0
+    q = np.where(swap, 2, 0) + neg
+    ang = np.degrees(np.arctan2(y, np.where(neg, -x, x)))
+    return np.select([q == 1, q == 2, q == 3], [np.copysign(180.0, y) - ang, 90.0 - ang, -90.0 + ang], ang)
+
+
+# The series C1 and C1' of the geodesic's distance in eps, order 6, as polynomials in
+# eps^2 with their divisors: geographiclib's Geodesic._C1f and _C1pf tables [pub: Karney
+# 2013, "Algorithms for geodesics", J. Geodesy 87, eqs. 18 and 21]. Evaluated here on
+# arrays (geographiclib's own functions update eps in place when given an array).
+_C1_COEFF = (-1, 6, -16, 32, -9, 64, -128, 2048, 9, -16, 768, 3, -5, 512, -7, 1280, -7, 2048)
+_C1P_COEFF = (205, -432, 768, 1536, 4005, -4736, 3840, 12288, -225, 116, 384, -7173, 2695, 7680,
+              3467, 7680, 38081, 61440)
+_SERIES_ORDER = 6
+
+
+def _series(eps: np.ndarray, coeff: tuple) -> list:
+    """c[1..6] of geographiclib's _C1f/_C1pf: eps^l P_l(eps^2) / divisor, c[0] unused."""
+    from geographiclib.geomath import Math
+
+    eps2 = eps * eps
+    c: list = [0.0] * (_SERIES_ORDER + 1)
+    d = eps
+    o = 0
+    for order in range(1, _SERIES_ORDER + 1):
+        m = (_SERIES_ORDER - order) // 2
+        c[order] = d * Math.polyval(m, coeff, o, eps2) / coeff[o + m + 1]
+        o += m + 2
+        d = d * eps
+    return c
+
+
+def geodesic_direct(lat1_deg, lon1_deg, azi1_deg, s12_m) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """WGS-84 geodesic from (lat1, lon1) with azimuth azi1 over s12 metres, on arrays:
+    latitude, longitude (unrolled: lon1 + the longitude travelled) and azimuth at the end
+    (deg). The steps of geographiclib's ``Geodesic.Direct`` (a ``GeodesicLine`` and its
+    ``Position``, series of order 6 in eps, no Newton step since |f| < 0.01), elementwise
+    in numpy, with geographiclib's own A1, A3, C3 and Clenshaw-sum functions (plain
+    arithmetic, called on arrays) and its C1, C1' tables; agrees with it to rounding (tests/test_route.py checks
+    the positions against geographiclib's Inverse)."""
+    g = GEOD
+    lat1 = np.asarray(lat1_deg, dtype=float)
+    lat1 = np.where(np.abs(lat1) > 90.0, np.nan, lat1)
+    lon1 = np.asarray(lon1_deg, dtype=float)
+    s12 = np.asarray(s12_m, dtype=float)
+    salp1, calp1 = _sincosd(_ang_round(np.asarray(azi1_deg, dtype=float)))
+    sbet1, cbet1 = _sincosd(_ang_round(lat1))
+    sbet1 = sbet1 * g._f1
+    r = np.hypot(sbet1, cbet1)
+    sbet1, cbet1 = sbet1 / r, np.maximum(Geodesic.tiny_, cbet1 / r)
+    salp0 = salp1 * cbet1
+    calp0 = np.hypot(calp1, salp1 * sbet1)
+    ssig1, somg1 = sbet1, salp0 * sbet1
+    csig1 = comg1 = np.where((sbet1 != 0) | (calp1 != 0), cbet1 * calp1, 1.0)
+    r = np.hypot(ssig1, csig1)
+    ssig1, csig1 = ssig1 / r, csig1 / r
+    k2 = calp0 * calp0 * g._ep2
+    eps = k2 / (2 * (1 + np.sqrt(1 + k2)) + k2)
+    a1m1 = Geodesic._A1m1f(eps)
+    c1a = _series(eps, _C1_COEFF)
+    b11 = Geodesic._SinCosSeries(True, ssig1, csig1, c1a)
+    s, c = np.sin(b11), np.cos(b11)
+    stau1, ctau1 = ssig1 * c + csig1 * s, csig1 * c - ssig1 * s
+    c1pa = _series(eps, _C1P_COEFF)
+    c3a = [0.0] * Geodesic.nC3_
+    g._C3f(eps, c3a)
+    a3c = -g.f * salp0 * g._A3f(eps)
+    b31 = Geodesic._SinCosSeries(True, ssig1, csig1, c3a)
+    # The position at distance s12.
+    tau12 = s12 / (g._b * (1 + a1m1))
+    s, c = np.sin(tau12), np.cos(tau12)
+    b12 = -Geodesic._SinCosSeries(True, stau1 * c + ctau1 * s, ctau1 * c - stau1 * s, c1pa)
+    sig12 = tau12 - (b12 - b11)
+    ssig12, csig12 = np.sin(sig12), np.cos(sig12)
+    ssig2 = ssig1 * csig12 + csig1 * ssig12
+    csig2 = csig1 * csig12 - ssig1 * ssig12
+    sbet2 = calp0 * ssig2
+    cbet2 = np.hypot(salp0, calp0 * csig2)
+    degenerate = cbet2 == 0
+    cbet2 = np.where(degenerate, Geodesic.tiny_, cbet2)
+    csig2 = np.where(degenerate, Geodesic.tiny_, csig2)
+    somg2, comg2 = salp0 * ssig2, csig2
+    e = np.copysign(1.0, salp0)
+    omg12 = e * (sig12 - (np.arctan2(ssig2, csig2) - np.arctan2(ssig1, csig1))
+                 + (np.arctan2(e * somg2, comg2) - np.arctan2(e * somg1, comg1)))
+    lam12 = omg12 + a3c * (sig12 + (Geodesic._SinCosSeries(True, ssig2, csig2, c3a) - b31))
+    return _atan2d(sbet2, g._f1 * cbet2), lon1 + np.degrees(lam12), _atan2d(salp0, calp0 * csig2)
+
+
 def leg_geodesics(lat_deg: np.ndarray, lon_deg: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Length (m), start azimuth and end azimuth (deg) of the geodesic from each point to
-    the next."""
+    the next: :func:`geodesic_inverse` of every leg at once."""
     n = lat_deg.size
-    out = np.zeros((3, max(n - 1, 0)))
-    for k in range(n - 1):
-        g = GEOD.Inverse(lat_deg[k], lon_deg[k], lat_deg[k + 1], lon_deg[k + 1],
-                         Geodesic.DISTANCE | Geodesic.AZIMUTH)
-        out[:, k] = g["s12"], g["azi1"], g["azi2"]
-    return out[0], out[1], out[2]
+    if n < 2:
+        z = np.zeros(0)
+        return z, z.copy(), z.copy()
+    return geodesic_inverse(lat_deg[:-1], lon_deg[:-1], lat_deg[1:], lon_deg[1:])
+
+
+# Legs the array solution takes (longer ones, legs shorter than 5 m and legs reaching
+# beyond 89 deg of latitude go to geographiclib's Inverse one by one), its iterations and
+# the endpoint miss it must reach (the direct solution's own rounding is about 1e-9 m).
+_NEWTON_MAX_M = 200_000.0
+_NEWTON_MIN_M = 5.0
+_NEWTON_MAX_LAT_DEG = 89.0
+_NEWTON_ITERATIONS = 6
+_NEWTON_MISS_M = 1e-8
+
+
+def geodesic_inverse(lat1_deg, lon1_deg, lat2_deg, lon2_deg) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Length (m), azimuth at the start and at the end (deg) of the WGS-84 geodesic between
+    each pair of points, on arrays.
+
+    Short lines (the legs of a route) are solved together: Newton's method on
+    :func:`geodesic_direct` for the start azimuth and the length, from the local flat
+    solution; a change ds of the length moves the end along its azimuth, a change da of
+    the azimuth moves it sideways by the reduced length m12 da, taken as s12 (m12 = s12
+    (1 - O(s12^2 / R^2)) [calc], so each step gains about 10 digits on a 100 m leg and 3 on
+    200 km). A line whose end is not within 1e-8 m after the iterations, and every line
+    outside the ranges above, is solved by geographiclib's Inverse. Both agree with
+    geographiclib's Inverse to 1e-8 m in length (tests/test_route.py)."""
+    la1, lo1, la2, lo2 = (np.atleast_1d(np.asarray(x, dtype=float)) for x in (lat1_deg, lon1_deg, lat2_deg, lon2_deg))
+    la1, lo1, la2, lo2 = np.broadcast_arrays(la1, lo1, la2, lo2)
+    n = la1.size
+    s12, azi1, azi2 = np.full(n, np.nan), np.full(n, np.nan), np.full(n, np.nan)
+    e2 = GEOD._e2
+    a = GEOD.a
+
+    def radii(lat):                      # metres per radian north and east (times cos lat)
+        sl = np.sin(np.radians(lat))
+        w = np.sqrt(1.0 - e2 * sl * sl)
+        return a * (1.0 - e2) / w**3, a / w * np.cos(np.radians(lat))
+
+    def wrap(dlon):
+        return (dlon + 180.0) % 360.0 - 180.0
+
+    m_n, m_e = radii(0.5 * (la1 + la2))
+    dn = np.radians(la2 - la1) * m_n
+    de = np.radians(wrap(lo2 - lo1)) * m_e
+    s = np.hypot(de, dn)
+    az = np.degrees(np.arctan2(de, dn))
+    fast = ((s >= _NEWTON_MIN_M) & (s <= _NEWTON_MAX_M) & (np.abs(la1) <= _NEWTON_MAX_LAT_DEG)
+            & (np.abs(la2) <= _NEWTON_MAX_LAT_DEG))
+    idx = np.nonzero(fast)[0]
+    if idx.size:
+        la1f, lo1f, la2f, lo2f = la1[idx], lo1[idx], la2[idx], lo2[idx]
+        sf, azf = s[idx], az[idx]
+        r_n, r_e = radii(la2f)
+        for step in range(_NEWTON_ITERATIONS + 1):
+            lat_e, lon_e, az_e = geodesic_direct(la1f, lo1f, azf, sf)
+            en = np.radians(la2f - lat_e) * r_n
+            ee = np.radians(wrap(lo2f - lon_e)) * r_e
+            miss = np.hypot(en, ee)
+            if step == _NEWTON_ITERATIONS or np.all(miss <= _NEWTON_MISS_M):
+                break
+            sa, ca = np.sin(np.radians(az_e)), np.cos(np.radians(az_e))
+            sf = sf + (ee * sa + en * ca)
+            azf = azf + np.degrees((ee * ca - en * sa) / sf)
+        good = miss <= _NEWTON_MISS_M
+        # The length and azimuths of the last direct solution (the one that met the ends).
+        s12[idx[good]] = sf[good]
+        azi1[idx[good]] = (azf[good] + 180.0) % 360.0 - 180.0
+        azi2[idx[good]] = az_e[good]
+        fast[idx[~good]] = False
+    for k in np.nonzero(~fast)[0]:
+        g = GEOD.Inverse(la1[k], lo1[k], la2[k], lo2[k], Geodesic.DISTANCE | Geodesic.AZIMUTH)
+        s12[k], azi1[k], azi2[k] = g["s12"], g["azi1"], g["azi2"]
+    return s12, azi1, azi2
 
 
 def place_waypoints(rf: RouteFile, named: list[tuple[str, float, float]]) -> list[Waypoint]:
@@ -411,32 +595,34 @@ class Route:
             z = np.zeros_like(dq)
             return z + self.lat_deg[0], z + self.lon_deg[0], z + self.height_m[0], z
         k = np.clip(np.searchsorted(d, dq, side="right") - 1, 0, n - 2)
-        # Skip zero-length legs (dwells) backwards to a leg that moves, for the heading.
-        lat = np.empty_like(dq)
-        lon = np.empty_like(dq)
-        hd = np.empty_like(dq)
         leg_len = np.diff(d)
+        on = leg_len[k] > 0
+        lat = self.lat_deg[k].astype(float)
+        lon = self.lon_deg[k].astype(float)
+        hd = np.zeros_like(dq)
+        if on.any():
+            kk = k[on]
+            lat[on], lon[on], hd[on] = geodesic_direct(self.lat_deg[kk], self.lon_deg[kk],
+                                                       self.leg_azimuth_deg[kk], dq[on] - d[kk])
+        # On a zero-length leg (a dwell, or the very end after one) the heading is the one
+        # at the end of the last leg that moves before it (the first moving leg's start
+        # azimuth before any; 0 for a route that never moves).
         moving = np.nonzero(leg_len > 0)[0]
-        for i, (kk, s) in enumerate(zip(k, dq)):
-            s_in = s - d[kk]
-            if leg_len[kk] <= 0:      # at the very end after a dwell, or a route that never moves
-                lat[i], lon[i] = self.lat_deg[kk], self.lon_deg[kk]
-                before = moving[moving < kk]
-                hd[i] = (self._heading_on_leg(int(before[-1]), float(leg_len[before[-1]])) if before.size
-                         else float(self.leg_azimuth_deg[int(moving[0])]) if moving.size else 0.0)
-                continue
-            g = GEOD.Direct(self.lat_deg[kk], self.lon_deg[kk], self.leg_azimuth_deg[kk], s_in,
-                            Geodesic.LATITUDE | Geodesic.LONGITUDE | Geodesic.AZIMUTH
-                            | Geodesic.LONG_UNROLL)
-            lat[i], lon[i], hd[i] = g["lat2"], g["lon2"], g["azi2"]
+        if (~on).any() and moving.size:
+            kk = k[~on]
+            prev = np.searchsorted(moving, kk, side="left") - 1
+            back = np.zeros(kk.size)
+            have = prev >= 0
+            if have.any():
+                b = moving[prev[have]]
+                back[have] = geodesic_direct(self.lat_deg[b], self.lon_deg[b], self.leg_azimuth_deg[b],
+                                             leg_len[b])[2]
+            back[~have] = self.leg_azimuth_deg[int(moving[0])]
+            hd[~on] = back
         lon = (lon + 180.0) % 360.0 - 180.0
         frac = np.where(leg_len[k] > 0, (dq - d[k]) / np.where(leg_len[k] > 0, leg_len[k], 1.0), 1.0)
         h = self.height_m[k] + frac * (self.height_m[k + 1] - self.height_m[k])
         return lat, lon, h, hd % 360.0
-
-    def _heading_on_leg(self, k: int, s_m: float) -> float:
-        g = GEOD.Direct(self.lat_deg[k], self.lon_deg[k], self.leg_azimuth_deg[k], s_m, Geodesic.AZIMUTH)
-        return float(g["azi2"])
 
     def state_at(self, unix_s) -> RouteStates:
         """Position, speed, heading and distance at the given times; before the start the
