@@ -80,14 +80,16 @@ PlanCancelled = Cancelled   # raised inside make_plan when the cancel callback r
 
 def geometry_key(sc: Scenario) -> tuple:
     """Everything the propagation depends on; equal keys allow reuse."""
-    files = tuple(str(p) for p in sc.resolved_orbit_files())
+    paths = sc.resolved_orbit_files()
+    mapping = sc.resolved_mapping()
+    files = tuple(str(p) for p in paths)
     mtimes = []
-    for p in sc.resolved_orbit_files() + ([sc.resolved_mapping()] if sc.resolved_mapping() else []):
+    for p in paths + ([mapping] if mapping else []):
         try:
             mtimes.append(p.stat().st_mtime_ns)
         except OSError:
             mtimes.append(None)
-    return (files, str(sc.resolved_mapping()), tuple(mtimes), sc.site.lat_deg, sc.site.lon_deg,
+    return (files, str(mapping), tuple(mtimes), sc.site.lat_deg, sc.site.lon_deg,
             sc.site.height_m, sc.time.start_unix_s, sc.time.end_unix_s, sc.time.step_s,
             sc.time.uncertainty_s, tuple(sc.receiver.signals), sc.mask.elevation_deg)
 
@@ -444,14 +446,20 @@ def _orbit_margins(search: SearchSpec, g: PreparedGeometry) -> OrbitMargins:
     n_s, n_t = pred.elevation_deg.shape
     age = orbit_data_age_s(orbits, grid.unix_s)                      # (S, T) seconds
     kinds = tuple(e.info.source_kind for e in orbits.entries)
+    # Per source kind, all its satellites at once (the same arithmetic per element).
+    margin_t = np.empty((n_s, n_t))
+    range_margin = np.empty((n_s, n_t))
+    extrapolated = np.zeros(n_s, dtype=bool)
+    kind_arr = np.array(kinds, dtype=object)
+    for k in sorted(set(kinds)):
+        rows = np.nonzero(kind_arr == k)[0]
+        margin_t[rows] = orbit_margin_hz(k, age[rows], pred.carrier_hz[rows, None])
+        range_margin[rows] = orbit_range_margin_m(k, age[rows])
+        extrapolated[rows] = np.any(margin_extrapolated(k, age[rows]), axis=1)
     if search.orbit_margin_hz is not None:
         margin_t = (np.full(n_s, float(search.orbit_margin_hz)) * pred.carrier_hz / L1_HZ)[:, None] \
             * np.ones((1, n_t))
-    else:
-        margin_t = np.stack([orbit_margin_hz(k, a, f) for k, a, f in zip(kinds, age, pred.carrier_hz)])
-    range_margin = np.stack([orbit_range_margin_m(k, a) for k, a in zip(kinds, age)])
-    old = sorted({e.info.sat_id for e, k, a in zip(orbits.entries, kinds, age)
-                  if bool(np.any(margin_extrapolated(k, a)))})
+    old = sorted({e.info.sat_id for e, x in zip(orbits.entries, extrapolated) if x})
     return OrbitMargins(_frozen(margin_t), _frozen(range_margin), _frozen(age), kinds,
                         old_data_warnings(search, old))
 
