@@ -452,6 +452,17 @@ def _chunk_events(pred: Prediction, mask_deg: float):
     return (s_idx, cross, rising, cross_az, cross_el), (cs, culm, culm_el), (el, above)
 
 
+def _first_max(values: list[float]) -> int:
+    """Index of the first largest value, NaN ignored (np.nanargmax on a short list)."""
+    best = -1
+    for i, v in enumerate(values):
+        if v == v and (best < 0 or v > values[best]):
+            best = i
+    if best < 0:
+        raise ValueError("All-NaN slice encountered")
+    return best
+
+
 def passes(orbits: OrbitSet, site: Site, start: datetime | float, end: datetime | float,
            mask_deg: float = 10.0, step_s: float = 60.0,
            prediction: Prediction | None = None) -> list[Pass]:
@@ -529,8 +540,12 @@ class PassFinder:
         out: list[Pass] = []
         order = np.argsort(s_idx, kind="stable")
         starts = np.searchsorted(s_idx[order], np.arange(n_s + 1))
+        c_order = np.argsort(cs, kind="stable")
+        c_starts = np.searchsorted(cs[c_order], np.arange(n_s + 1))
         for s in range(n_s):
             mine = order[starts[s]:starts[s + 1]]
+            c_mine = c_order[c_starts[s]:c_starts[s + 1]]
+            culm_s, culm_el_s = culm[c_mine].tolist(), culm_el[c_mine].tolist()
             events = sorted((float(cross[i]), bool(rising[i]), float(cross_az[i]), float(cross_el[i]))
                             for i in mine)
             intervals = []
@@ -544,10 +559,10 @@ class PassFinder:
             if cur is not None:
                 intervals.append((cur, (float(u_last), float(el1[s]), float(az1[s]))))
             for (r0, r_el, r_az), (s0, s_el, s_az) in intervals:
-                inside = (cs == s) & (culm >= r0) & (culm <= s0)
-                cand_t = list(culm[inside]) + [r0, s0]
-                cand_el = list(culm_el[inside]) + [r_el, s_el]
-                k = int(np.nanargmax(cand_el))
+                inside = [i for i, c in enumerate(culm_s) if r0 <= c <= s0]
+                cand_t = [culm_s[i] for i in inside] + [r0, s0]
+                cand_el = [culm_el_s[i] for i in inside] + [r_el, s_el]
+                k = _first_max(cand_el)
                 out.append(Pass(ids[s], float(r0), float(cand_t[k]), float(s0),
                                 float(cand_el[k]), float(r_az), float(s_az),
                                 rises_in_window=bool(r0 > u_first), sets_in_window=bool(s0 < u_last)))

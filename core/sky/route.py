@@ -488,13 +488,22 @@ def place_waypoints(rf: RouteFile, named: list[tuple[str, float, float]]) -> lis
         return []
     s12 = rf.legs()[0]
     dist = np.concatenate(([0.0], np.cumsum(s12)))
-    out = []
-    for name, la, lo in named:
-        # Coarse nearest by a local flat metric, then exact geodesic on the few best.
+    # Coarse nearest by a local flat metric, then the geodesic distance to the few best
+    # (all waypoints' candidates in one call).
+    best, at = [], []
+    for _name, la, lo in named:
         d2 = (rf.lat_deg - la) ** 2 + ((rf.lon_deg - lo) * math.cos(math.radians(la))) ** 2
-        best = np.argsort(d2)[:5]
-        offs = [GEOD.Inverse(la, lo, rf.lat_deg[b], rf.lon_deg[b], Geodesic.DISTANCE)["s12"] for b in best]
-        off, k = min((round(o, 3), int(b)) for o, b in zip(offs, best))   # ties: the first point
+        best.append(np.argsort(d2)[:5])
+        at.append(np.tile([float(la), float(lo)], (best[-1].size, 1)))
+    cand = np.concatenate(best)
+    here = np.concatenate(at)
+    offs_all = geodesic_inverse(here[:, 0], here[:, 1], rf.lat_deg[cand], rf.lon_deg[cand])[0]
+    out = []
+    first = 0
+    for (name, la, lo), b in zip(named, best):
+        offs = offs_all[first:first + b.size]
+        first += b.size
+        off, k = min((round(float(o), 3), int(j)) for o, j in zip(offs, b))   # ties: the first point
         out.append(Waypoint(name, float(la), float(lo), k, float(dist[k]), float(off)))
     out.sort(key=lambda w: w.distance_m)
     return out
