@@ -173,7 +173,8 @@ def _time_term(pred: Prediction, dt: float, shifted: ShiftSummary | None):
         disc = np.sqrt(np.maximum(b * b - 4 * a * c, 0.0))
         roots = [np.where(a != 0, (-b + disc) / (2 * a), np.where(b != 0, -c / b, 0.0)),
                  np.where(a != 0, (-b - disc) / (2 * a), 0.0)]
-    extra = [np.where(np.abs(r) <= dt, d1 * r + d2 * r**2 / 2 + d3 * r**3 / 6, 0.0) for r in roots]
+    extra = [np.where(np.abs(r) <= dt, d1 * r + d2 * r**2 / 2 + d3 * (r * r * r) / 6, 0.0)   # r*r*r: pow is 200x slower
+             for r in roots]
     allv = np.stack(ends + extra)
     remainder = 2.0 * np.abs(d4) * dt**4 / 24.0 + 1e-4
     return np.minimum(allv.min(axis=0), 0.0) - remainder, np.maximum(allv.max(axis=0), 0.0) + remainder

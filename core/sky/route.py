@@ -295,8 +295,9 @@ def _sincosd(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     r = np.radians(r - 90.0 * q)
     s, c = np.sin(r), np.cos(r)
     q = np.mod(q, 4.0)
-    s, c = (np.select([q == 1, q == 2, q == 3], [c, -s, -c], s),
-            np.select([q == 1, q == 2, q == 3], [-s, -c, s], c))
+    q1, q2, q3 = q == 1, q == 2, q == 3
+    s, c = (np.where(q1, c, np.where(q2, -s, np.where(q3, -c, s))),
+            np.where(q1, -s, np.where(q2, -c, np.where(q3, s, c))))
     c = c + 0.0
     return np.where(s == 0, np.copysign(s, x), s), c
 
@@ -315,7 +316,8 @@ def _atan2d(y: np.ndarray, x: np.ndarray) -> np.ndarray:
     neg = x < 0
     q = np.where(swap, 2, 0) + neg
     ang = np.degrees(np.arctan2(y, np.where(neg, -x, x)))
-    return np.select([q == 1, q == 2, q == 3], [np.copysign(180.0, y) - ang, 90.0 - ang, -90.0 + ang], ang)
+    return np.where(q == 1, np.copysign(180.0, y) - ang,
+                    np.where(q == 2, 90.0 - ang, np.where(q == 3, -90.0 + ang, ang)))
 
 
 # The series C1 and C1' of the geodesic's distance in eps, order 6, as polynomials in
