@@ -250,13 +250,14 @@ def test_search_positions():
     np.testing.assert_array_equal(v.positions, np.array([[4, 512], [25, 2]]) * 11)
 
 
-@pytest.mark.parametrize("parallel", [False, True])
-def test_search_positions_of_large_count_grids_follow_the_formula(parallel):
+@pytest.mark.parametrize("parallel, fewest_cells", [(False, 1), (True, 1), (False, 16)])
+def test_search_positions_of_large_count_grids_follow_the_formula(parallel, fewest_cells):
     """(S, T) grids as the plan passes them (integer cells and bins, > 4096 samples: the
-    integer path and the looked-up Pfa per position), against the docstring's formulas
-    evaluated element by element in plain Python [calc]; float counts give the same."""
+    integer path, the looked-up Pfa per position, and with at least 16 cells everywhere
+    one m for all), against the docstring's formulas evaluated element by element in
+    plain Python [calc]; float counts give the same."""
     rng = np.random.default_rng(5)
-    cells = rng.integers(1, 3000, size=(40, 150))
+    cells = rng.integers(fewest_cells, 3000, size=(40, 150))
     bins = rng.integers(1, 60, size=(40, 150))
     p = det.search_positions(cells, bins, 16, parallel, 3e-5)
     for c, b, q, m, pfa in zip(cells.ravel()[::97], bins.ravel()[::97], p.positions.ravel()[::97],

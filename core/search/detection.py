@@ -359,6 +359,11 @@ def _int_out(x: np.ndarray) -> np.ndarray | int:
     return int(x) if x.ndim == 0 else x
 
 
+def _spread(x: np.ndarray, shape: tuple) -> np.ndarray:
+    """``x`` (a new array) to ``shape``: itself when it has it, else a broadcast copy."""
+    return x if np.shape(x) == shape else np.array(np.broadcast_to(x, shape))
+
+
 def _whole_ints(value: ArrayLike, name: str) -> np.ndarray | None:
     """An integer count (Python int or integer array) as int64, checked >= 1; None for
     anything else (floats go through :func:`_count`)."""
@@ -406,12 +411,22 @@ def search_positions(code_cells: ArrayLike, freq_bins: ArrayLike,
     if all(w is not None for w in whole):
         # Integer counts (the plan's cells and bins): the same numbers in integer
         # arithmetic, no float copies (ceil(c / m) of whole numbers is -(-c // m)).
+        c0, b0, k0 = whole
+        p = None if pfa_cell is None else _probability(pfa_cell, "pfa_cell", zero_ok=True)
+        if not parallel_code_search and k0.ndim == 0 and (p is None or p.ndim == 0) \
+                and (c0.size == 0 or int(k0) <= int(np.min(c0))):
+            # m is the correlator count everywhere: one number to divide by and one Pfa
+            shape = np.broadcast_shapes(c0.shape, b0.shape)
+            k = int(k0)
+            pfa_pos = None if p is None else \
+                _out(np.full(shape, float(-np.expm1(float(k) * np.log1p(-p)))))
+            return SearchPositions(_int_out(_spread(-(-c0 // k) * b0, shape)),
+                                   _int_out(np.full(shape, k, dtype=np.int64)),
+                                   _int_out(_spread(c0 * b0, shape)), pfa_pos)
         cells, bins, corr = np.broadcast_arrays(*whole)
         m = np.array(cells) if parallel_code_search else np.minimum(corr, cells)
         q = np.array(bins) if parallel_code_search else -(-cells // m) * bins
-        pfa_pos = None
-        if pfa_cell is not None:
-            pfa_pos = _out(_at_least_one(m, _probability(pfa_cell, "pfa_cell", zero_ok=True)))
+        pfa_pos = None if p is None else _out(_at_least_one(m, p))
         return SearchPositions(_int_out(q), _int_out(m), _int_out(cells * bins), pfa_pos)
     cells = _count(code_cells, "code_cells")
     bins = _count(freq_bins, "freq_bins")
