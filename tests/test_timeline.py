@@ -626,6 +626,27 @@ def test_inputs_copy_writeable_arrays_and_keep_read_only_ones():
     assert not np.shares_memory(viewed.expected_search_after_s, base)
 
 
+def test_monte_carlo_ranks_follow_each_read_only_priority():
+    """The Monte Carlo keeps the ranks of a read-only priority array between calls: the
+    draws must equal those with a writeable copy (ranks computed afresh), for the same
+    array again and for another read-only array of the same shape."""
+    base = random_inputs(3)
+    f = _fields(base)
+    rng = np.random.default_rng(9)
+    for _ in range(3):
+        prio = rng.uniform(0, 90, base.visible.shape)
+        frozen = prio.copy()
+        frozen.setflags(write=False)
+        shared = TimelineInputs(**{**f, "priority": frozen})
+        fresh = TimelineInputs(**{**f, "priority": prio.copy()})
+        for seed in (1, 2):
+            np.testing.assert_array_equal(monte_carlo_ttff(shared, 200, seed).samples_s,
+                                          monte_carlo_ttff(fresh, 200, seed).samples_s)
+        again = TimelineInputs(**{**f, "priority": frozen})
+        np.testing.assert_array_equal(monte_carlo_ttff(again, 200, 4).samples_s,
+                                      monte_carlo_ttff(fresh, 200, 4).samples_s)
+
+
 def test_to_dict_uses_iso_times():
     n = 5
     inp = TimelineInputs(

@@ -60,6 +60,7 @@ from __future__ import annotations
 import bisect
 import heapq
 import math
+import weakref
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -889,10 +890,51 @@ def monte_carlo_ttff(inputs: TimelineInputs, n_runs: int, seed: int,
     return _stats(inputs, samples, unsearchable)
 
 
-def _with_next(arr: np.ndarray | float, shape: tuple[int, int]) -> np.ndarray:
+def _all_finite(x: np.ndarray) -> bool:
+    if x.dtype.kind in "iub":
+        return True
+    return x.size == 0 or (math.isfinite(float(np.min(x))) and math.isfinite(float(np.max(x))))
+
+
+def _rank_grid(priority: np.ndarray, shape: tuple[int, int]) -> np.ndarray:
+    """(S, T) rank position of each satellite at each grid index: the order of
+    :func:`_rank_order` for every column at once (stable sort of each column, sorted as
+    rows of the transposed grid, where they are contiguous)."""
+    n_s = shape[0]
+    pr = _with_next(priority, shape, copy=False)
+    key = np.ascontiguousarray(np.where(np.isfinite(pr), -pr, np.inf).T)   # (T, S) rows
+    order = np.argsort(key, axis=1, kind="stable")             # (T, S): satellites by rank
+    rank_t = np.empty_like(order)
+    np.put_along_axis(rank_t, order, np.broadcast_to(np.arange(n_s), order.shape), axis=1)
+    return np.ascontiguousarray(rank_t.T)
+
+
+# Rank grids of read-only priority arrays (whose values cannot change), the last two:
+# the inputs of successive re-plans over one geometry share their priority array.
+_RANK_GRIDS: list[tuple[weakref.ref, np.ndarray]] = []
+
+
+def _rank_grid_of(priority: np.ndarray, shape: tuple[int, int]) -> np.ndarray:
+    """:func:`_rank_grid`, kept for a read-only priority array while it lives."""
+    if not (isinstance(priority, np.ndarray) and _read_only(priority)):
+        return _rank_grid(priority, shape)
+    for ref, rank in list(_RANK_GRIDS):
+        if ref() is priority and rank.shape == shape:
+            return rank
+    rank = _rank_grid(priority, shape)
+    rank.setflags(write=False)
+    _RANK_GRIDS[:] = [(weakref.ref(priority), rank)] + [e for e in _RANK_GRIDS if e[0]() is not None][:1]
+    return rank
+
+
+def _with_next(arr: np.ndarray | float, shape: tuple[int, int], copy: bool = True) -> np.ndarray:
     """The (S, T) grid values the simulation looks up: the value at k, or at k + 1 where
-    that is not finite (see :func:`_lookup`)."""
-    a = np.broadcast_to(np.asarray(arr, dtype=float), shape)
+    that is not finite (see :func:`_lookup`). With ``copy=False``, when nothing is to be
+    replaced, the values themselves (read only: a broadcast or the caller's array)."""
+    a = np.broadcast_to(np.asarray(arr, dtype=float) if copy else np.asarray(arr), shape)
+    if not copy and _all_finite(a[:, :-1]):
+        return a
+    a = np.broadcast_to(np.asarray(a, dtype=float), shape)
     out = a.copy()
     bad = ~np.isfinite(out[:, :-1])
     out[:, :-1][bad] = a[:, 1:][bad]
@@ -921,19 +963,25 @@ class _McTables:
         self.busy_until = np.minimum(self.set, self.t_end)
         self.rise_times = unique_values(self.rise[self.rise < self.t_end])
         pfa_after = inp.pfa_position_after if inp.pfa_position_after is not None else inp.pfa_position
-        figs = {}
+        figs: dict[str, tuple] = {}
+        made: dict[tuple, tuple] = {}        # a figure shared by both states is made once
         for state, (q, pd, pfa) in (("first", (inp.q_first, inp.pd_first, inp.pfa_position)),
                                     ("after", (inp.q_after, inp.pd_after, pfa_after))):
-            f = [_with_next(x, shape) for x in (q, pd, pfa, inp.dwell_s)]
-            ok = np.logical_and.reduce([np.isfinite(x) for x in f])
-            figs[state] = (np.where(ok, f[0], 1.0), np.where(ok, f[1], 0.0),
-                           np.where(ok, f[2], 0.0), np.where(ok, f[3], 1.0), ok)
+            key = (id(q), id(pd), id(pfa))
+            if key in made:
+                figs[state] = made[key]
+                continue
+            f = [_with_next(x, shape, copy=False) for x in (q, pd, pfa, inp.dwell_s)]
+            if all(_all_finite(x) for x in f):         # the plan's figures: nothing to mask
+                ok = np.ones(shape, dtype=bool)
+                figs[state] = (f[0], f[1], f[2], f[3], ok)
+            else:
+                ok = np.logical_and.reduce([np.isfinite(x) for x in f])
+                figs[state] = (np.where(ok, f[0], 1.0), np.where(ok, f[1], 0.0),
+                               np.where(ok, f[2], 0.0), np.where(ok, f[3], 1.0), ok)
+            made[key] = figs[state]
         self.figs = figs
-        pr = _with_next(inp.priority, shape)
-        key = np.where(np.isfinite(pr), -pr, np.inf)
-        order = np.argsort(key, axis=0, kind="stable")       # (S, T): satellites by rank
-        self.rank = np.empty((n_s, n_t), dtype=np.int64)      # rank position of s at k
-        np.put_along_axis(self.rank, order, np.arange(n_s)[:, None], axis=0)
+        self.rank = _rank_grid_of(inp.priority, shape)   # rank position of s at k
 
 
 class _Batch:
