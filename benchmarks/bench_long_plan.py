@@ -10,11 +10,13 @@ the same number of repeats, interleaved (round robin); medians and ratios per pa
    propagation of the same grid (``predict`` over the same blocks, results dropped), the
    floor any plan of the window pays;
 3. with ``--cli``: ``acqplan plan WEEK.toml --format json --no-windows -o FILE``, process
-   start to file written.
+   start to file written;
+4. with ``--doppler``: ``acqplan doppler`` over the long window at 1 s for the demo's GPS
+   satellites, CSV written as it is made, against the bare propagation of the same grid.
 
 The machine is shared: the load average is printed before each part; compare the ratios.
 
-Run: python benchmarks/bench_long_plan.py [--repeat N] [--days D] [--cli]
+Run: python benchmarks/bench_long_plan.py [--repeat N] [--days D] [--cli] [--doppler]
 """
 
 from __future__ import annotations
@@ -49,7 +51,7 @@ elif kind == "long_plan":
     lp = make_long_plan(sc)
     extra.update(ttff_median_s=lp.plan.ttff.median_s, blocks=lp.n_blocks, kept=lp.kept_times,
                  times=lp.n_times, satellites=len(lp.plan.satellites))
-elif kind == "propagation":
+elif kind in ("propagation", "propagation_gps"):
     import numpy as np
     from core.ground.geodesy import Site
     from core.ground.timeutil import time_grid
@@ -57,6 +59,8 @@ elif kind == "propagation":
     from core.plan.pipeline import load_satellites
     from core.sky.predict import predict
     orbits, by_system, _ = load_satellites(sc)
+    if kind == "propagation_gps":
+        orbits = orbits.select([e.info.sat_id for e in orbits.entries if e.info.system == "G"])
     site = Site(sc.site.lat_deg, sc.site.lon_deg, sc.site.height_m)
     u = time_grid(sc.time.start, sc.time.end, sc.time.step_s).unix_s
     for a, b in _outer_blocks(len(orbits), u, LONG_PLAN_BLOCK_SAMPLES):
@@ -117,7 +121,10 @@ def main() -> None:
     ap.add_argument("--repeat", type=int, default=1, help="timed repeats per contender (default 1)")
     ap.add_argument("--days", type=float, default=7.0, help="long window in days (default 7)")
     ap.add_argument("--cli", action="store_true", help="also time acqplan plan on the long window")
+    ap.add_argument("--doppler", action="store_true",
+                    help="also time acqplan doppler (GPS, CSV) on the long window")
     ap.add_argument("--skip-small", action="store_true", help="leave part 1 out")
+    ap.add_argument("--skip-plan", action="store_true", help="leave part 2 out")
     args = ap.parse_args()
     sys.path.insert(0, str(REPO))
     from core.files.demo import write_demo
@@ -130,10 +137,11 @@ def main() -> None:
                             for k in ("make_plan", "long_plan")}, args.repeat)
         _report(runs, "make_plan")
     hours = args.days * 24.0
-    print(f"2. demo, {args.days:g} days at 1 s (load average {_load()})")
-    runs = interleaved({k: (lambda k=k: _child(_CHILD, k, scenario, str(hours), "1"))
-                        for k in ("propagation", "long_plan")}, args.repeat)
-    _report(runs, "propagation")
+    if not args.skip_plan:
+        print(f"2. demo, {args.days:g} days at 1 s (load average {_load()})")
+        runs = interleaved({k: (lambda k=k: _child(_CHILD, k, scenario, str(hours), "1"))
+                            for k in ("propagation", "long_plan")}, args.repeat)
+        _report(runs, "propagation")
     if args.cli:
         text = Path(scenario).read_text(encoding="utf-8")
         from datetime import datetime, timedelta
@@ -151,6 +159,20 @@ def main() -> None:
             args.repeat)
         _report(runs, "acqplan plan")
         print(f"  JSON {out.stat().st_size / 1e6:.2f} MB")
+    if args.doppler:
+        from datetime import datetime, timedelta
+
+        end = (datetime(2027, 5, 18, 4) + timedelta(hours=hours)).strftime("%Y-%m-%dT%H:%M:%SZ")
+        out = folder / "doppler.csv"
+        argv = ["doppler", "--orbits", str(Path(scenario).with_name("demo_gps_yuma.txt")),
+                "--site", "49.6183,10.1327,318", "--start", "2027-05-18T04:00:00Z", "--end", end,
+                "--step", "1", "--format", "csv", "-o", str(out)]
+        print(f"4. acqplan doppler, GPS, {args.days:g} days at 1 s, CSV (load average {_load()})")
+        runs = interleaved({
+            "propagation": lambda: _child(_CHILD, "propagation_gps", scenario, str(hours), "1"),
+            "doppler csv": lambda: _child(_CLI_CHILD, *argv)}, args.repeat)
+        _report(runs, "propagation")
+        print(f"  CSV {out.stat().st_size / 1e6:.0f} MB, {sum(1 for _ in out.open()) - 1:,} rows")
 
 
 if __name__ == "__main__":
