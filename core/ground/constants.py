@@ -105,7 +105,7 @@ GLONASS_EARTH_ROTATION_RAD_S = 7.292115e-5
 # bench_plan.py]: predict works in blocks (57 bytes a satellite-sample of results); the
 # plan holds about 580 bytes a satellite-step and its JSON about 700 more, so make_plan
 # refuses above PLAN_MAX_SATELLITE_STEPS (96 satellites: 24 h at 12 s, 2 h at 1 s) and
-# `acqplan plan` then plans block by block (core.plan.long_window: 7 days at 1 s, 424 MB); the
+# `acqplan plan` then plans block by block (core.plan.long_window: 7 days at 1 s, 414 MB); the
 # doppler listing holds about 2.1 kB a listed sample until it is written (JSON, every
 # elevation: 4.1 GB for 1.9 M samples), so it is refused above DOPPLER_MAX_SATELLITE_STEPS
 # (24 satellites: 4.6 h at 1 s, a day at 5 s); passes works in blocks and keeps only the
