@@ -55,7 +55,7 @@ import numpy as np
 from ..ground.errors import Cancelled, ComputationError, InputError
 from ..ground.geodesy import Site
 from ..ground.timeutil import iso_z, time_grid
-from ..search.motion import MotionUncertainty, route_motion
+from ..search.motion import MotionUncertainty, RouteMotion, route_motion
 from ..search.windows import max_doppler_anywhere_hz, shift_summary
 from ..sky.predict import passes, predict
 from ..sky.result_guard import guard_prediction
@@ -445,9 +445,63 @@ def _static_route(sc: Scenario) -> Route:
     return time_route(rf)
 
 
-def plan_drive(sc: Scenario, progress: ProgressFn | None = None, cancel: Callable[[], bool] | None = None,
-               monte_carlo: bool = True) -> DrivePlan:
-    """Plan every event of a drive scenario (see the module docstring)."""
+@dataclass
+class EventGeometry:
+    """One event's geometry: its grid, the drive's motion over it, the prediction through
+    the surroundings with its passes (``prepared``, the pipeline's PreparedGeometry) and
+    the event it was made for (whose time, kind, clock uncertainty and range along the
+    route it depends on)."""
+
+    event: DriveEvent
+    grid_end_unix_s: float
+    start_site: Site
+    motion: RouteMotion
+    prepared: PreparedGeometry
+    stretch: str
+    above: np.ndarray                      # (S, T) above the mask, propagated, healthy
+    blocked: np.ndarray                    # (S, T) behind the surroundings
+    warnings: list[str]
+
+
+@dataclass
+class DriveGeometry:
+    """Everything of a drive that no search setting changes: the route as timed, every
+    event's geometry, the route at every plan step and the drive's warnings. Made once
+    by :func:`drive_geometry`, planned by :func:`plan_drive_search` for any scenario with
+    the same :func:`drive_geometry_key` (core.plan.sweep shares it across the settings
+    of a departure)."""
+
+    key: tuple
+    drive: Drive | None
+    events: list[EventGeometry]
+    samples: RouteSamples | None
+    warnings: list[str]
+    compute_s: float = 0.0
+
+
+def drive_geometry_key(sc: Scenario) -> tuple:
+    """What the drive's geometry depends on: the propagation's inputs (orbit files,
+    site, window, step, time uncertainty, signals, mask), the orbit-file options, the
+    route and its keys, the events and, for events without a route, the receiver's
+    vertical speed. Search, signal and the other receiver keys are not in it."""
+    return (geometry_key(sc), repr(sc.orbits), str(sc.base_dir), repr(sc.route), repr(sc.events),
+            None if sc.route is not None else sc.receiver.max_vertical_speed_m_s)
+
+
+def _geometry_of_event(ev: DriveEvent) -> tuple:
+    """What of an event its geometry depends on."""
+    k = ev.knowledge
+    return (ev.id, ev.kind, ev.unix_s, k.time_uncertainty_s, k.along_route_m)
+
+
+def _part(progress: ProgressFn | None, a: float, b: float) -> ProgressFn | None:
+    return None if progress is None else (lambda f, text: progress(a + (b - a) * f, text))
+
+
+def drive_geometry(sc: Scenario, progress: ProgressFn | None = None,
+                   cancel: Callable[[], bool] | None = None) -> DriveGeometry:
+    """The geometry stage of :func:`plan_drive`: route, orbits, and per event its grid,
+    motion, prediction, surroundings and passes."""
     t_start = _time.perf_counter()
     drive = load_drive(sc) if sc.route is not None else None
     events = drive_events(sc, drive)
@@ -474,12 +528,12 @@ def plan_drive(sc: Scenario, progress: ProgressFn | None = None, cancel: Callabl
     healthy = np.array([e.info.healthy for e in orbits.entries])
     horizon_s = (drive.spec.event_horizon_min if drive is not None else 15.0) * 60.0
     step = sc.time.step_s
-    out: list[EventPlan] = []
+    out: list[EventGeometry] = []
     for n, ev in enumerate(events):
         if cancel is not None and cancel():
             raise Cancelled()
         if progress is not None:
-            progress(n / max(len(events), 1), f"planning {ev.id} ({ev.kind})")
+            progress(n / max(len(events), 1), f"geometry of {ev.id} ({ev.kind})")
         t0 = ev.unix_s
         t1 = min(t0 + horizon_s, sc.time.end_unix_s)
         ev_warn: list[str] = []
@@ -500,7 +554,8 @@ def plan_drive(sc: Scenario, progress: ProgressFn | None = None, cancel: Callabl
         above = pred.valid & (pred.elevation_deg >= sc.mask.elevation_deg) & healthy[:, None]
         visible = above & ~sur.blocked
         start_site = motion.path.at(0)
-        sc_ev = _event_scenario(sc, ev, t0, float(grid.unix_s[-1]), start_site)
+        grid_end = float(grid.unix_s[-1])
+        sc_ev = _event_scenario(sc, ev, t0, grid_end, start_site)
         # Passes through the surroundings: a satellite behind a building or in a tunnel is
         # "down" there (the channel timeline takes rise and set from these).
         seen = replace(pred, elevation_deg=np.where(sur.blocked, -90.0, pred.elevation_deg))
@@ -518,20 +573,8 @@ def plan_drive(sc: Scenario, progress: ProgressFn | None = None, cancel: Callabl
         if not visible.any():
             ev_warn.append(f"{ev.id}: no satellite can be received from {iso_z(t0, 0)} for "
                            f"{(t1 - t0) / 60:.0f} min (outage or surroundings)")
-        try:
-            if drive is not None:
-                sc_ev = replace(sc_ev, search=replace(sc_ev.search,
-                                                      monte_carlo_runs=drive.spec.event_monte_carlo_runs))
-            plan = make_plan(sc_ev, prepared=g, monte_carlo=monte_carlo)
-        except ComputationError as exc:
-            raise ComputationError(f"{ev.id} ({ev.kind} at {iso_z(t0, 0)}): {exc}") from None
-        st0 = motion.nominal
-        ids = pred.ids
-        out.append(EventPlan(ev, float(st0.lat_deg[0]), float(st0.lon_deg[0]), float(st0.height_m[0]),
-                             float(st0.distance_m[0]), float(st0.speed_m_s[0]), float(st0.heading_deg[0]),
-                             sur.stretch_names[0], plan,
-                             [ids[s] for s in np.nonzero(visible[:, 0])[0]],
-                             [ids[s] for s in np.nonzero(above[:, 0] & sur.blocked[:, 0])[0]], ev_warn))
+        out.append(EventGeometry(ev, grid_end, start_site, motion, g, sur.stretch_names[0], above,
+                                 sur.blocked, ev_warn))
     samples = None
     if drive is not None:
         u = sc.time.grid().unix_s
@@ -542,9 +585,64 @@ def plan_drive(sc: Scenario, progress: ProgressFn | None = None, cancel: Callabl
         names = ["open" if i < 0 else (stretches[i].name or stretches[i].kind) for i in idx]
         outage = np.array([i >= 0 and stretches[i].kind == "outage" for i in idx])
         samples = RouteSamples(states, names, outage)
+    return DriveGeometry(drive_geometry_key(sc), drive, out, samples, warnings, _time.perf_counter() - t_start)
+
+
+def plan_drive_search(sc: Scenario, geometry: DriveGeometry, progress: ProgressFn | None = None,
+                      cancel: Callable[[], bool] | None = None, monte_carlo: bool = True) -> DrivePlan:
+    """The search stage of :func:`plan_drive`: every event planned through ``make_plan``
+    on its geometry with what the event knows under ``sc``'s settings. ``geometry`` must
+    come from :func:`drive_geometry` of a scenario with the same
+    :func:`drive_geometry_key` (ValueError otherwise)."""
+    t_start = _time.perf_counter()
+    if geometry.key != drive_geometry_key(sc):
+        raise ValueError("the drive geometry was made for a scenario with other route, events, "
+                         "orbits, site, window, signals or mask")
+    drive = geometry.drive
+    events = drive_events(sc, drive)
+    if [_geometry_of_event(e) for e in events] != [_geometry_of_event(eg.event) for eg in geometry.events]:
+        raise ValueError("the drive geometry was made for other events")
+    out: list[EventPlan] = []
+    for n, (ev, eg) in enumerate(zip(events, geometry.events)):
+        if cancel is not None and cancel():
+            raise Cancelled()
+        if progress is not None:
+            progress(n / max(len(events), 1), f"planning {ev.id} ({ev.kind})")
+        t0 = ev.unix_s
+        g = eg.prepared
+        sc_ev = _event_scenario(sc, ev, t0, eg.grid_end_unix_s, eg.start_site)
+        if geometry_key(sc_ev) != g.key:
+            raise ValueError(f"the geometry of {ev.id} was made for another event scenario")
+        try:
+            if drive is not None:
+                sc_ev = replace(sc_ev, search=replace(sc_ev.search,
+                                                      monte_carlo_runs=drive.spec.event_monte_carlo_runs))
+            plan = make_plan(sc_ev, prepared=g, monte_carlo=monte_carlo)
+        except ComputationError as exc:
+            raise ComputationError(f"{ev.id} ({ev.kind} at {iso_z(t0, 0)}): {exc}") from None
+        st0 = eg.motion.nominal
+        ids = g.prediction.ids
+        visible = g.visible
+        out.append(EventPlan(ev, float(st0.lat_deg[0]), float(st0.lon_deg[0]), float(st0.height_m[0]),
+                             float(st0.distance_m[0]), float(st0.speed_m_s[0]), float(st0.heading_deg[0]),
+                             eg.stretch, plan,
+                             [ids[s] for s in np.nonzero(visible[:, 0])[0]],
+                             [ids[s] for s in np.nonzero(eg.above[:, 0] & eg.blocked[:, 0])[0]],
+                             list(eg.warnings)))
     if progress is not None:
         progress(1.0, "done")
-    return DrivePlan(drive, samples, out, warnings, _time.perf_counter() - t_start)
+    return DrivePlan(drive, geometry.samples, out, list(geometry.warnings), _time.perf_counter() - t_start)
+
+
+def plan_drive(sc: Scenario, progress: ProgressFn | None = None, cancel: Callable[[], bool] | None = None,
+               monte_carlo: bool = True) -> DrivePlan:
+    """Plan every event of a drive scenario (see the module docstring): the geometry
+    stage (:func:`drive_geometry`) then the search stage (:func:`plan_drive_search`)."""
+    t_start = _time.perf_counter()
+    geometry = drive_geometry(sc, _part(progress, 0.0, 0.5), cancel)
+    plan = plan_drive_search(sc, geometry, _part(progress, 0.5, 1.0), cancel, monte_carlo)
+    plan.compute_s = _time.perf_counter() - t_start
+    return plan
 
 
 def single_site_equivalent(route: Route, t0: float, t1: float, speed_uncertainty_m_s: float,
@@ -564,5 +662,6 @@ def single_site_equivalent(route: Route, t0: float, t1: float, speed_uncertainty
             float(np.max(np.abs(st.vertical_m_s))) + climb_uncertainty_m_s)
 
 
-__all__ = ["Drive", "DriveEvent", "DrivePlan", "EventKnowledge", "EventPlan", "RouteSamples", "kind_knowledge",
-           "load_drive", "plan_drive", "reacquire_time_uncertainty_s", "single_site_equivalent"]
+__all__ = ["Drive", "DriveEvent", "DriveGeometry", "DrivePlan", "EventGeometry", "EventKnowledge", "EventPlan",
+           "RouteSamples", "drive_geometry", "drive_geometry_key", "kind_knowledge", "load_drive", "plan_drive",
+           "plan_drive_search", "reacquire_time_uncertainty_s", "single_site_equivalent"]
