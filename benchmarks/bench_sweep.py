@@ -14,7 +14,15 @@ The local pool is created inside each timed sweep (as ``acqplan sweep`` does: it
 is part of the cost); the cluster exists before (as a cluster does), and each timed sweep
 ships the orbit files to its workers again.
 
+With ``--drive``: a small sweep of the demo drive (route, surroundings, 6 events; default
+3 departures every 10 min x 8 settings: coherent_ms {4, 8} x oscillator_uncertainty_ppb
+{200, 500} x channels {8, 12}), in this process, with every drive's geometry made once per
+departure and shared by its settings (core.plan.events.drive_geometry / plan_drive_search,
+what ``acqplan sweep`` does) against the geometry made again for every setting (a plain
+plan_drive each, as before); same warm-up, repeats interleaved, rows compared.
+
 Run: python benchmarks/bench_sweep.py [--departures 288] [--mc-runs N] [--repeats 1]
+     python benchmarks/bench_sweep.py --drive [--departures 3] [--repeats 3]
 """
 
 from __future__ import annotations
@@ -36,6 +44,53 @@ sys.path.insert(0, str(REPO))
 os.environ["PYTHONPATH"] = os.pathsep.join([str(REPO), os.environ.get("PYTHONPATH", "")]).rstrip(os.pathsep)
 
 VARY = {"coherent_ms": [4, 8, 12], "noncoherent": [5, 10], "channels": [8, 12]}
+DRIVE_VARY = {"coherent_ms": [4, 8], "oscillator_uncertainty_ppb": [200, 500], "channels": [8, 12]}
+
+
+def drive_sweep(departures: int, repeats: int) -> int:
+    """Shared drive geometry against the geometry per setting (see the module docstring)."""
+    import statistics
+
+    from core.api import iso_z, load_scenario, sweep_spec, write_demo
+    from core.plan import sweep as sw
+    from core.plan.sweep import departure_times
+
+    tmp = Path(tempfile.mkdtemp(prefix="bench_sweep_drive_"))
+    write_demo(tmp)
+    sc = load_scenario(tmp / "demo_drive_scenario.toml")
+    start = sc.time.start_unix_s
+    deps = departure_times(iso_z(start), iso_z(start + (departures - 1) * 600.0), 600.0)
+    spec = sweep_spec(sc, DRIVE_VARY, deps)
+    warm = sweep_spec(sc, DRIVE_VARY, deps[:1])
+
+    def run(s, share: bool):
+        rows = [r for u in sw.units(sc, s, 1) for r in sw.run_unit(u, share_geometry=share)]
+        return sorted(rows, key=lambda r: (r.departure_unix_s, r.setting))
+
+    contenders = {"geometry per setting (plain plan_drive)": False, "geometry shared per departure": True}
+    print(f"drive sweep of the demo drive: {len(deps)} departures x {len(spec.settings)} settings = "
+          f"{spec.n_combinations} drive plans of {len(sc.events)} scenario events, in this process")
+    for share in contenders.values():
+        run(warm, share)
+    times: dict[str, list[float]] = {k: [] for k in contenders}
+    rows = {}
+    for r in range(repeats):
+        for name, share in contenders.items():
+            load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
+            t0 = time.perf_counter()
+            rows[name] = run(spec, share)
+            times[name].append(time.perf_counter() - t0)
+            print(f"  repeat {r + 1} {name}: {times[name][-1]:.2f} s (load average before: {load:.1f})",
+                  flush=True)
+    names = list(contenders)
+    med = {k: statistics.median(v) for k, v in times.items()}
+    for k in names:
+        print(f"  {k:40s} median {med[k]:7.2f} s   best {min(times[k]):7.2f} s")
+    print(f"  speed-up of sharing: {med[names[0]] / med[names[1]]:.2f}x (medians), "
+          f"{min(times[names[0]]) / min(times[names[1]]):.2f}x (best)")
+    same = rows[names[0]] == rows[names[1]]
+    print(f"  rows equal: {same}")
+    return 0 if same else 1
 
 
 def main() -> int:
@@ -45,7 +100,11 @@ def main() -> int:
                     help="Monte Carlo runs per plan (default: the demo's 500)")
     ap.add_argument("--repeats", type=int, default=1)
     ap.add_argument("--no-dask", action="store_true")
+    ap.add_argument("--drive", action="store_true",
+                    help="a small drive sweep: shared drive geometry against the geometry per setting")
     args = ap.parse_args()
+    if args.drive:
+        return drive_sweep(args.departures if args.departures != 288 else 3, args.repeats)
 
     from core.api import load_scenario, run_sweep, sweep_spec, write_demo
     from core.plan.sweep import departure_times

@@ -12,6 +12,7 @@ import sys
 import time
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from core.api import (
@@ -233,6 +234,77 @@ def test_drive_rows_are_the_worst_event_of_each_plan(drive):
         assert row.ttff_p95_s == max(p95.values()) == dp.worst.ttff_p95_s
         assert math.isfinite(row.ttff_p95_s)
         assert row.ttff_median_s == dp.worst.ttff_median_s
+
+
+def _assert_same_drive_plans(a, b):
+    """Two DrivePlans planned with the same seeds: equal event by event [calc: the same
+    computation on the same inputs]."""
+    assert [e.event.id for e in a.events] == [e.event.id for e in b.events]
+    for ea, eb in zip(a.events, b.events):
+        pa, pb = ea.plan, eb.plan
+        for wa, wb in ((pa.windows_first, pb.windows_first), (pa.windows_after, pb.windows_after)):
+            assert np.array_equal(wa.low_hz, wb.low_hz) and np.array_equal(wa.high_hz, wb.high_hz)
+        for x in ("bins_first", "bins_after", "code_cells_first", "code_cells_after", "pd_first",
+                  "expected_search_first_s", "visible"):
+            assert np.array_equal(getattr(pa, x), getattr(pb, x)), (ea.event.id, x)
+        assert pa.timeline.first_fix_unix_s == pb.timeline.first_fix_unix_s
+        assert (pa.ttff.median_s, pa.ttff.p95_s, pa.ttff.fix_fraction) == \
+            (pb.ttff.median_s, pb.ttff.p95_s, pb.ttff.fix_fraction)
+        assert (ea.visible_ids, ea.blocked_ids, ea.warnings) == (eb.visible_ids, eb.blocked_ids, eb.warnings)
+    assert a.warnings == b.warnings
+
+
+def test_drive_sweep_shares_geometry_and_equals_plain_plans(drive, monkeypatch):
+    # Settings that change the search and what the events know (oscillator, ephemeris
+    # wait), two departures: the geometry is made once per departure, and every row, plan
+    # and Monte Carlo TTFF equals that of a plain plan_drive of the same setting.
+    import core.plan.events as ev
+
+    spec = sw.sweep_spec(drive, {"coherent_ms": [4, 8], "oscillator_uncertainty_ppb": [200, 900],
+                                 "ephemeris_wait_s": [30]},
+                         (drive.time.start_unix_s, drive.time.start_unix_s + 600.0))
+    made = []
+    real = ev.drive_geometry
+    monkeypatch.setattr(ev, "drive_geometry", lambda sc, *a, **kw: made.append(sc.time.start) or real(sc, *a, **kw))
+    shared = sw.run_sweep(drive, spec, workers=1)
+    assert len(made) == 2                                     # one geometry per departure
+    made.clear()
+    plain = [row for u in sw.units(drive, spec, 1) for row in sw.run_unit(u, share_geometry=False)]
+    assert len(made) == spec.n_combinations                   # plan_drive: one per setting
+    assert sorted(plain, key=lambda r: (r.departure_unix_s, r.setting)) == shared.rows
+    # The settings matter (the oscillator changes what the warm start knows).
+    assert len({(r.ttff_p95_s, r.max_bins) for r in shared.rows if r.departure_unix_s == drive.time.start_unix_s}) == 4
+    # Plan by plan, on one departure's shared geometry.
+    sc_dep = sw.departure_scenario(drive, spec, spec.departures_unix_s[1])
+    geometry = real(sw.setting_scenario(sc_dep, spec, 0))
+    for s in range(len(spec.settings)):
+        sc = sw.setting_scenario(sc_dep, spec, s)
+        _assert_same_drive_plans(ev.plan_drive_search(sc, geometry), ev.plan_drive(sc))
+    # A geometry is only planned for the scenario it was made for.
+    with pytest.raises(ValueError, match="geometry"):
+        ev.plan_drive_search(sw.setting_scenario(drive, spec, 0), geometry)   # another window
+
+
+def test_drive_without_route_gets_a_geometry_per_vertical_speed(drive):
+    # Events without a route stand at the site; their motion bound is the receiver's
+    # vertical speed, so a sweep of it makes one geometry per value [calc], equal plans.
+    from dataclasses import replace
+
+    import core.plan.events as ev
+
+    timed = tuple(e for e in drive.events if hasattr(e.at, "tzinfo"))
+    assert timed
+    static = replace(drive, route=None, events=timed).validated()
+    spec = sw.sweep_spec(static, {"max_vertical_speed_m_s": [2, 8], "channels": [8, 12]})
+    rows = sw.run_sweep(static, spec, workers=1).rows
+    plain = [row for u in sw.units(static, spec, 1) for row in sw.run_unit(u, share_geometry=False)]
+    assert plain == rows
+    keys = {ev.drive_geometry_key(sw.setting_scenario(static, spec, s)) for s in range(4)}
+    assert len(keys) == 2
+    sc = sw.setting_scenario(static, spec, 1)
+    _assert_same_drive_plans(ev.plan_drive_search(sc, ev.drive_geometry(sc)), ev.plan_drive(sc))
+    with pytest.raises(ValueError, match="geometry"):
+        ev.plan_drive_search(sw.setting_scenario(static, spec, 2), ev.drive_geometry(sc))
 
 
 # --- the same rows on a process pool and on Dask --------------------------------------------

@@ -13,7 +13,10 @@ How the work is shared out:
   departure (:func:`~core.plan.pipeline.prepare_geometry`: orbits, propagation, passes) is
   computed once per unit and reused by every setting of it through
   ``make_plan(..., prepared=...)``; only search and receiver keys may be varied, so the
-  geometry never depends on the setting.
+  geometry never depends on the setting. A drive's geometry (route, surroundings, every
+  event's propagation and passes) is likewise made once per departure
+  (:func:`core.plan.events.drive_geometry`) and planned per setting
+  (:func:`core.plan.events.plan_drive_search`).
 - Units run in this process (``workers=1``), in a local process pool
   (``concurrent.futures``, default: every core) or on a Dask distributed cluster (a
   ``Client`` or scheduler address). On a cluster the orbit files are read once here and
@@ -515,8 +518,10 @@ def _no_plan_row(departure_unix_s: float, setting: int, why: str) -> SweepRow:
                     math.nan, math.nan, "", 0, 0, 0, (why,))
 
 
-def run_unit(unit: _Unit, cancel: CancelFn | None = None) -> list[SweepRow]:
-    """Plan one departure for some settings, the geometry computed once."""
+def run_unit(unit: _Unit, cancel: CancelFn | None = None, share_geometry: bool = True) -> list[SweepRow]:
+    """Plan one departure for some settings, the geometry computed once (with
+    ``share_geometry=False`` a drive's geometry is made again for every setting, as a
+    plain ``plan_drive`` of each would: the benchmark's baseline)."""
     from .pipeline import make_plan, prepare_geometry
 
     cancel = cancel or _worker_cancel
@@ -528,7 +533,7 @@ def run_unit(unit: _Unit, cancel: CancelFn | None = None) -> list[SweepRow]:
     t = unit.spec.departures_unix_s[unit.departure]
     sc_dep = departure_scenario(base, unit.spec, t)
     if is_drive(sc_dep):
-        return _run_drive_unit(sc_dep, unit, t, cancel)
+        return _run_drive_unit(sc_dep, unit, t, cancel, share_geometry)
     try:
         geometry = prepare_geometry(sc_dep, cancel=cancel)
     except ComputationError as err:      # e.g. nothing above the mask: no fix from here
@@ -540,18 +545,34 @@ def run_unit(unit: _Unit, cancel: CancelFn | None = None) -> list[SweepRow]:
     return rows
 
 
-def _run_drive_unit(sc_dep: Scenario, unit: _Unit, t: float, cancel: CancelFn) -> list[SweepRow]:
-    """A drive: every event planned by core.plan.events.plan_drive, the worst kept.
+def _run_drive_unit(sc_dep: Scenario, unit: _Unit, t: float, cancel: CancelFn,
+                    share_geometry: bool = True) -> list[SweepRow]:
+    """A drive: every event planned by core.plan.events, the worst kept.
 
-    plan_drive prepares each event's geometry itself (along the route, through the
-    surroundings) and takes no prepared geometry, so here the geometry is computed again
-    for every setting."""
-    from .events import plan_drive
+    The drive's geometry (route timing, positions, surroundings, every event's
+    propagation and passes: core.plan.events.drive_geometry) is made once per departure
+    and planned for every setting by plan_drive_search; settings that change it (only
+    the receiver's vertical speed, for events without a route) get their own. The rows
+    equal those of a plain plan_drive per setting (tests/test_sweep.py)."""
+    from .events import drive_geometry, drive_geometry_key, plan_drive, plan_drive_search
 
+    made: dict[tuple, Any] = {}
     rows = []
     for s in unit.settings:
+        sc_s = setting_scenario(sc_dep, unit.spec, s)
         try:
-            drive = plan_drive(setting_scenario(sc_dep, unit.spec, s), cancel=cancel)
+            if share_geometry:
+                key = drive_geometry_key(sc_s)
+                if key not in made:
+                    try:
+                        made[key] = drive_geometry(sc_s, cancel=cancel)
+                    except ComputationError as err:
+                        made[key] = err
+                if isinstance(made[key], ComputationError):
+                    raise made[key]
+                drive = plan_drive_search(sc_s, made[key], cancel=cancel)
+            else:
+                drive = plan_drive(sc_s, cancel=cancel)
         except ComputationError as err:
             rows.append(_no_plan_row(t, s, f"departure {iso_z(t)}: {err}"))
             continue
@@ -563,10 +584,11 @@ def _run_drive_unit(sc_dep: Scenario, unit: _Unit, t: float, cancel: CancelFn) -
 
 
 def units(scenario: Scenario, spec: SweepSpec, workers: int, shipped: str | None = None) -> list[_Unit]:
-    """One unit per departure; with fewer departures than 4 tasks per worker the settings
-    are split too (each piece then recomputes its departure's geometry)."""
+    """One unit per departure; with fewer departures than 4 tasks per worker (and more
+    than one worker) the settings are split too (each piece then recomputes its
+    departure's geometry: worth it only to keep every worker busy)."""
     nd, ns = len(spec.departures_unix_s), len(spec.settings)
-    pieces = 1 if nd >= 4 * workers else min(ns, math.ceil(4 * workers / nd))
+    pieces = 1 if nd >= 4 * workers or workers <= 1 else min(ns, math.ceil(4 * workers / nd))
     size = math.ceil(ns / pieces)
     return [_Unit(scenario, spec, d, tuple(range(a, min(a + size, ns))), shipped)
             for d in range(nd) for a in range(0, ns, size)]
