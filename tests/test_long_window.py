@@ -16,6 +16,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import ORBIT_DATA, requires_orbit_data
 
 from core.files.demo import write_demo
 from core.files.scenario import load_scenario
@@ -101,6 +102,29 @@ def test_blocked_plan_with_a_large_time_uncertainty(demo):
     assert max(abs(full.timeline.acquisition_unix_s[k] - long.plan.timeline.acquisition_unix_s[k])
                for k in full.timeline.acquisition_unix_s) < 1e-3
     assert full.ttff_s == pytest.approx(long.plan.ttff_s, abs=1e-3)
+
+
+@requires_orbit_data
+def test_blocked_plan_on_a_real_navigation_file(demo):
+    """BRDM00DLR (2023-03-14, real broadcast records, README pair 10) over 18 h at 2 s:
+    four blocks; records in force, coverage gaps (failure counts summed over the blocks)
+    and passes as in the whole-grid plan, the JSON equal (NaN azimuths compared as text)."""
+    nav = ORBIT_DATA / "rinex-nav" / "gnsslibpy_BRDM00DLR_S_20230730000_01D_MN.rnx"
+    sc = demo.with_changes(
+        orbits={"files": [str(nav)], "allow_old_data": True, "skip_bad_records": True},
+        time={"start": "2023-03-14T02:00:00Z", "end": "2023-03-14T20:00:00Z", "step_s": 2.0},
+        receiver={"signals": ["GPS-L1CA", "GAL-E1", "GLO-L1OF", "BDS-B1I"]})
+    full, long = _both(sc)
+    assert long.n_blocks >= 4
+    a, b = plan_to_json(full), long_plan_to_json(long)
+    for sat in a["satellites"]:
+        sat["windows"] = None
+    assert json.dumps(a, sort_keys=True) == json.dumps(b, sort_keys=True)
+    assert any("no valid broadcast record" in w for w in full.warnings)
+    assert full.warnings == long.plan.warnings
+    assert [s.broadcast_records for s in full.satellites] == \
+        [s.broadcast_records for s in long.plan.satellites]
+    assert plan_rows(full) == long_plan_rows(long)
 
 
 _MEASURE = """
