@@ -358,6 +358,21 @@ def test_offset_quadrature_converges_and_keeps_the_mean_power():
         assert used.mean_power_loss_db == pytest.approx(exact, abs=1e-9)
 
 
+@pytest.mark.parametrize("tc, bin_hz, step, shape, n_nc, pfa, pd, loss", [
+    (0.001, 1000.0, 0.5, "BPSK", 20, 1e-5, 0.9, 0.0),
+    (0.004, 125.0, 0.25, "BOC11", 3, 1.01e-4, 0.95, 1.0),
+    (0.012, 80.0, 0.5, "BPSK", 3, 1e-3, 0.5, 0.3),
+])
+def test_expected_sensitivity_root_for_other_designs(tc, bin_hz, step, shape, n_nc, pfa, pd, loss):
+    """The root solved to 1e-10 dB: the expected Pd there is the asked one, and a step
+    of 1e-8 dB either side falls short of it / passes it (Pd rises with C/N0)."""
+    off = det.cell_offsets(tc, bin_hz, step, shape)
+    sens = det.expected_sensitivity_dbhz(pfa, pd, n_nc, off, losses_db=loss)
+    at = det.expected_detection_probability_at_cn0
+    assert at(sens, tc, n_nc, pfa, off, loss) == pytest.approx(pd, abs=1e-9)
+    assert at(sens - 1e-8, tc, n_nc, pfa, off, loss) < pd < at(sens + 1e-8, tc, n_nc, pfa, off, loss)
+
+
 def test_expected_sensitivity_reaches_pd_09():
     from core.search.bins import design_bins
 
