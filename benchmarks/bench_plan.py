@@ -14,7 +14,8 @@ in the same run. Parts:
 2. the Monte Carlo TTFF per run: vectorized against the event-by-event reference
    simulator, on the demo's timeline, the same number of runs;
 3. process start to output of ``acqplan plan`` on the demo (fresh interpreter each time,
-   compiled byte code in place as after an install) against ``python -c "import numpy"``;
+   compiled byte code in place as after an install) against ``python -c "import numpy"``,
+   wall time and the CPU time of the child process (less sensitive to a shared machine);
 4. peak memory of a plan at the size limit (demo, 24 h at 12 s) in a fresh subprocess.
 
 Targets (speed issue): 600 s uncertainty <= 2x the 2 s plan; Monte Carlo >= 5x faster per
@@ -30,6 +31,7 @@ import argparse
 import itertools
 import json
 import os
+import resource
 import statistics
 import subprocess
 import sys
@@ -142,13 +144,23 @@ def startup(repeat: int) -> None:
                                               str(DEMO), "-o", os.devnull],
             'python -c "import numpy"': [sys.executable, "-c", "import numpy"]}
 
-    def run(cmd):
-        return lambda: subprocess.run(cmd, cwd=REPO, env=env, check=True, capture_output=True)
+    cpu: dict[str, list[float]] = {k: [] for k in cmds}
 
-    med = interleaved({k: run(c) for k, c in cmds.items()}, repeat)
-    print(f"\nprocess start to output (fresh interpreter, byte code compiled; median of {repeat})")
+    def run(name, cmd):
+        def go():
+            before = resource.getrusage(resource.RUSAGE_CHILDREN)
+            subprocess.run(cmd, cwd=REPO, env=env, check=True, capture_output=True)
+            after = resource.getrusage(resource.RUSAGE_CHILDREN)
+            cpu[name].append((after.ru_utime - before.ru_utime, after.ru_stime - before.ru_stime))
+        return go
+
+    med = interleaved({k: run(k, c) for k, c in cmds.items()}, repeat)
+    print(f"\nprocess start to output (fresh interpreter, byte code compiled; median of {repeat};"
+          f" load average {os.getloadavg()[0]:.1f})")
     for name, t in med.items():
-        print(f"  {name:32s} {t:8.3f} s")
+        user = statistics.median(u for u, _ in cpu[name][1:])     # the warm-up left out
+        system = statistics.median(s for _, s in cpu[name][1:])
+        print(f"  {name:32s} {t:8.3f} s   CPU of the process: user {user:.3f} s, system {system:.3f} s")
     print("  target: acqplan plan <= 0.7 s")
 
 
