@@ -828,8 +828,12 @@ def _build(d: Mapping[str, Any], *, base_dir: Any, path: Any, text: str | None) 
                 f"cn0_zenith_dbhz = {s['cn0_zenith_dbhz']:g} dB-Hz; C/N0 at the mask may not exceed "
                 "the zenith value")
 
-    from .drive import check_drive
-    drive_route, drive_events = check_drive(chk, d.get("route"), d.get("event"))
+    if d.get("route") is None and d.get("event") is None:
+        drive_route, drive_events = None, ()        # a single site: core.plan.drive not needed
+    else:
+        from .drive import check_drive
+
+        drive_route, drive_events = check_drive(chk, d.get("route"), d.get("event"))
 
     if chk.problems:
         raise ScenarioValidationError(chk.problems, file=file)
