@@ -32,12 +32,14 @@ extremes over them.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
-from geographiclib.geodesic import Geodesic
 
 from ..ground.geodesy import SitePath, geodetic_to_ecef
-from ..sky.route import Route, RouteStates
+
+if TYPE_CHECKING:  # a single-site plan loads neither the route module nor geographiclib
+    from ..sky.route import Route, RouteStates
 
 # Defaults of what the plan does not know about the drive [trade: typical drive-test
 # traffic and recording noise; documented in docs/scenario-keys.md].
@@ -95,6 +97,8 @@ class RouteMotion:
 def _leg_end_azimuths(route: Route) -> np.ndarray:
     if route.leg_end_azimuth_deg is not None:
         return np.asarray(route.leg_end_azimuth_deg, dtype=float)
+    from geographiclib.geodesic import Geodesic
+
     n = route.lat_deg.size
     out = np.array(route.leg_azimuth_deg, dtype=float)
     for j in range(n - 1):
