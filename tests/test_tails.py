@@ -133,14 +133,15 @@ def test_sine_integral_series_is_exactly_rounded():
 
 def test_plan_command_imports_neither_scipy_nor_skyfield_api():
     """The plan's start-up: scipy.special (array-API layer, numpy.f2py), skyfield.api
-    (download machinery), importlib.metadata and numpy.ma are not loaded by `acqplan plan`."""
+    (download machinery), importlib.metadata, numpy.ma and, for a single site, the drive's
+    modules are not loaded by `acqplan plan`."""
     from conftest import REPO
 
     code = ("import sys; from planner_gui.cli import main\n"
             "rc = main(['plan', 'sample_almanacs/demo_scenario.toml', '-o', __import__('os').devnull])\n"
             "bad = sorted(m for m in sys.modules if m.split('.')[0] == 'scipy' "
             "or m in ('skyfield.api', 'skyfield.iokit', 'importlib.metadata', 'numpy.f2py', "
-            "'numpy.ma'))\n"
+            "'numpy.ma', 'core.plan.drive', 'core.sky.route', 'geographiclib'))\n"
             "print(rc, bad)")
     out = subprocess.run([sys.executable, "-c", code], cwd=REPO, capture_output=True, text=True,
                          check=True).stdout.strip().splitlines()[-1]
