@@ -15,6 +15,8 @@ from .errors import InputError
 
 @dataclass(frozen=True)
 class Signal:
+    """One GNSS signal: carrier (FDMA step), code and data-symbol timing."""
+
     signal_id: str               # GPS-L1CA, GAL-E1, ...
     system: str                  # RINEX system letter this signal belongs to
     description: str

@@ -55,6 +55,8 @@ class AlmanacRecord:
 
 @dataclass
 class OrbitEntry:
+    """One satellite's orbit data: its description and one of almanac, TLE or broadcast records."""
+
     info: SatelliteInfo
     almanac: AlmanacRecord | None = None
     satrec: Satrec | None = None
@@ -83,6 +85,8 @@ class OrbitFileInfo:
 
 @dataclass
 class OrbitSet:
+    """The satellites of one or more orbit files, with the files' descriptions and warnings."""
+
     entries: list[OrbitEntry] = field(default_factory=list)
     files: list[OrbitFileInfo] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)

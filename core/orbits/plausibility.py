@@ -168,6 +168,8 @@ def _rev_day(a_m: float) -> float:
 
 @dataclass(frozen=True)
 class Limit:
+    """The plausible range of one orbit element, its unit and the source of the bounds."""
+
     low: float
     high: float
     unit: str

@@ -96,6 +96,9 @@ def geometry_key(sc: Scenario) -> tuple:
 
 @dataclass
 class PreparedGeometry:
+    """What a plan computes before any search setting: orbits, grid, prediction, passes
+    and the derived values a re-plan reuses."""
+
     key: tuple
     orbits: OrbitSet
     site: Site
@@ -293,6 +296,8 @@ class SearchSummary:
 
 @dataclass
 class SatellitePlan:
+    """One satellite in the plan: identity, data age, health, passes and its searches."""
+
     sat_id: str
     signal_id: str
     system: str

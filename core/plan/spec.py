@@ -169,6 +169,8 @@ _PER_SIGNAL_RULES = {k: RULES_BY_DOTTED[f"search.{k}"] for k in PER_SIGNAL_KEYS}
 
 @dataclass(frozen=True)
 class OrbitSpec:
+    """[orbits]: the orbit files, GLONASS mapping and what to do with bad or old records."""
+
     files: tuple[str, ...] = ()
     mapping: str | None = None
     skip_bad_records: bool = False
@@ -177,6 +179,8 @@ class OrbitSpec:
 
 @dataclass(frozen=True)
 class SiteSpec:
+    """[site]: where the receiver is, and how well that is known."""
+
     lat_deg: float
     lon_deg: float
     height_m: float = 0.0
@@ -186,6 +190,8 @@ class SiteSpec:
 
 @dataclass(frozen=True)
 class TimeSpec:
+    """[time]: the planning window, its step, the time uncertainty and display zone."""
+
     start: datetime             # timezone-aware, UTC
     end: datetime
     step_s: float = 60.0
@@ -215,6 +221,8 @@ class TimeSpec:
 
 @dataclass(frozen=True)
 class ReceiverSpec:
+    """[receiver]: signals, channels, oscillator, dynamics and correlators."""
+
     signals: tuple[str, ...] = ("GPS-L1CA",)
     channels: int = 12
     oscillator_offset_ppb: float = 0.0
@@ -238,6 +246,8 @@ class SignalOverride:
 
 @dataclass(frozen=True)
 class SearchSpec:
+    """[search]: integration, bin loss, code step, false alarms, fix rules and Monte Carlo."""
+
     coherent_ms: float = 1.0
     noncoherent: int = 5
     max_frequency_loss_db: float = 1.0
@@ -263,6 +273,8 @@ class SearchSpec:
 
 @dataclass(frozen=True)
 class SignalSpec:
+    """[signal]: the C/N0 model (zenith and mask values) and extra losses."""
+
     cn0_zenith_dbhz: float = 45.0
     cn0_at_mask_dbhz: float = 35.0
     extra_loss_db: float = 0.0
@@ -270,6 +282,8 @@ class SignalSpec:
 
 @dataclass(frozen=True)
 class MaskSpec:
+    """[mask]: the elevation mask."""
+
     elevation_deg: float = 5.0
 
 

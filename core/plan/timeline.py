@@ -591,6 +591,8 @@ DurationFn = Callable[[int, int, bool], float | None]
 
 @dataclass
 class _Run:
+    """One simulated run of the timeline: segments, tracks, acquisitions and first fix."""
+
     segments: list[TimelineSegment]
     tracks: list[tuple[int, float, float]]      # (sat, acquisition, usable-until)
     acquisition: dict[int, float]

@@ -51,6 +51,8 @@ _ID_SHAPE = re.compile(r"^[GRECJSI]\d{2}[A-Z]?$")
 
 @dataclass(frozen=True)
 class Identity:
+    """Who a TLE satellite is: its ID, system letter and PRN (or slot), and how it was found."""
+
     sat_id: str
     system: str                  # one RINEX letter, or "X"
     prn: int | None              # see the module docstring

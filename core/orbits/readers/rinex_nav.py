@@ -177,6 +177,8 @@ class GlonassRecord:
 
 @dataclass
 class RinexNavFile:
+    """One RINEX navigation file: its GPS-type and GLONASS records, skipped systems, warnings."""
+
     path: str
     version: float
     records: list[GpsEphemerisRecord]
