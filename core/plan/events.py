@@ -611,8 +611,6 @@ def plan_drive_search(sc: Scenario, geometry: DriveGeometry, progress: ProgressF
         t0 = ev.unix_s
         g = eg.prepared
         sc_ev = _event_scenario(sc, ev, t0, eg.grid_end_unix_s, eg.start_site)
-        if geometry_key(sc_ev) != g.key:
-            raise ValueError(f"the geometry of {ev.id} was made for another event scenario")
         try:
             if drive is not None:
                 sc_ev = replace(sc_ev, search=replace(sc_ev.search,
@@ -620,6 +618,8 @@ def plan_drive_search(sc: Scenario, geometry: DriveGeometry, progress: ProgressF
             plan = make_plan(sc_ev, prepared=g, monte_carlo=monte_carlo)
         except ComputationError as exc:
             raise ComputationError(f"{ev.id} ({ev.kind} at {iso_z(t0, 0)}): {exc}") from None
+        if not plan.reused_geometry:      # make_plan found the key different and propagated anew
+            raise ValueError(f"the geometry of {ev.id} was made for another event scenario")
         st0 = eg.motion.nominal
         ids = g.prediction.ids
         visible = g.visible

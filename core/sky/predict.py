@@ -542,8 +542,11 @@ class PassFinder:
         starts = np.searchsorted(s_idx[order], np.arange(n_s + 1))
         c_order = np.argsort(cs, kind="stable")
         c_starts = np.searchsorted(cs[c_order], np.arange(n_s + 1))
+        above0 = np.asarray(above0, dtype=bool)
         for s in range(n_s):
             mine = order[starts[s]:starts[s + 1]]
+            if mine.size == 0 and not above0[s]:
+                continue                 # never above the mask in the window: no pass
             c_mine = c_order[c_starts[s]:c_starts[s + 1]]
             culm_s, culm_el_s = culm[c_mine].tolist(), culm_el[c_mine].tolist()
             events = sorted((float(cross[i]), bool(rising[i]), float(cross_az[i]), float(cross_el[i]))
