@@ -206,7 +206,7 @@ def test_passes_refined_below_one_second():
 
 @requires_orbit_data
 def test_node_interpolation_equals_direct_sgp4():
-    """predict propagates 12 h / 24 h orbits at 60 s nodes and interpolates; it must equal
+    """predict propagates 12 h / 24 h orbits at nodes up to 600 s apart and interpolates; it must equal
     SGP4 at every sample to 2 cm and 1e-5 m/s (1e-4 Hz at L1). Reference: sgp4 itself."""
     from core.orbits.readers import load_orbit_files
     from core.orbits.sgp4_model import sgp4_ecef

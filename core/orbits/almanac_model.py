@@ -16,7 +16,13 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..ground.constants import EARTH_ROTATION_RAD_S, GPS_MU_M3_S2, HALF_WEEK_S, SECONDS_PER_WEEK
+from .node_interp import NODE_STEPS_S, kink_constants, smooth_error_bounds, widest_step_s
 from .orbit_set import AlmanacRecord
+
+# Above this eccentricity almanac orbits are evaluated at every sample (as for SGP4).
+MAX_INTERPOLATED_ECCENTRICITY = 0.3
+# Rounding noise allowed for the model (fully converged Kepler solution: about 1e-15 a).
+ALMANAC_NOISE_PER_A = 1e-11
 
 
 @dataclass(frozen=True)
@@ -40,6 +46,10 @@ class AlmanacArrays:
         return cls(toa, col("sqrt_a_m05"), col("eccentricity"), col("inclination_rad"),
                    col("omega0_rad"), col("omega_dot_rad_s"), col("arg_perigee_rad"),
                    col("mean_anomaly_rad"))
+
+    def subset(self, idx) -> AlmanacArrays:
+        """The rows ``idx`` (a list of indices)."""
+        return AlmanacArrays(*(getattr(self, f)[idx] for f in self.__dataclass_fields__))
 
 
 def solve_kepler(mean_anomaly, e, iterations: int = 8):
@@ -102,3 +112,28 @@ def almanac_ecef(alm: AlmanacArrays, gps_s: np.ndarray, *, wrap_week: bool = Fal
 def toa_sow(toa_gps_s: np.ndarray) -> np.ndarray:
     """Seconds of week of a continuous GPS time (the ICD's toe term uses time of week)."""
     return np.mod(toa_gps_s, SECONDS_PER_WEEK)
+
+
+def interpolation_bounds(alm: AlmanacArrays, h_s: float) -> tuple[np.ndarray, np.ndarray]:
+    """Bounds (position m, velocity m/s per component), per satellite, of interpolating
+    the model from nodes h apart (core.orbits.node_interp: a Kepler orbit seen from a frame
+    turning at the Earth rate less the node rate; the factor for perturbations is kept
+    although the almanac model has none); inf above MAX_INTERPOLATED_ECCENTRICITY."""
+    with np.errstate(all="ignore"):               # corrupt records: NaN or inf, not used
+        a = alm.sqrt_a ** 2
+        n = np.sqrt(GPS_MU_M3_S2 / a ** 3)
+        frame = (EARTH_ROTATION_RAD_S + np.abs(alm.omega_dot)) * 1.001
+        e = np.clip(alm.e, 0.0, MAX_INTERPOLATED_ECCENTRICITY)
+        pos, vel = smooth_error_bounds(a, e, n, h_s, frame)
+        noise = (1.0 + kink_constants()[2]) * ALMANAC_NOISE_PER_A * a * (1.0 + e)
+        rate = n * (1.0 + e) / (1.0 - e) + frame
+        far = ~(alm.e <= MAX_INTERPOLATED_ECCENTRICITY)
+        return (np.where(far, np.inf, pos + noise), np.where(far, np.inf, vel + noise * rate))
+
+
+def node_steps_s(alm: AlmanacArrays) -> list[float]:
+    """Per satellite, the widest node spacing whose bounds meet the tolerances (0.0: at
+    every sample)."""
+    bounds = {h: interpolation_bounds(alm, h) for h in NODE_STEPS_S}
+    return [widest_step_s(lambda h, k=k: (float(bounds[h][0][k]), float(bounds[h][1][k])))
+            for k in range(alm.e.size)]

@@ -11,14 +11,22 @@ as skyfield does by default.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
+from functools import lru_cache
 
 import numpy as np
 from sgp4.api import SGP4_ERRORS, Satrec, SatrecArray
 
+from ..ground.constants import EARTH_ROTATION_RAD_S
 from ..ground.timeutil import jd_split_utc, ut1_split
 from .node_interp import NODE_STEP_S as NODE_STEP_S  # re-exported: the node spacing
-from .node_interp import interpolated_states, is_dense
+from .node_interp import (
+    grouped_states,
+    kink_constants,
+    smooth_error_bounds,
+    widest_step_s,
+)
 
 
 def gmst82_rad(jd_ut1_whole: np.ndarray, jd_ut1_frac: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -64,42 +72,153 @@ def teme_to_ecef(r_teme_km: np.ndarray, v_teme_km_s: np.ndarray, theta: np.ndarr
     return r, v
 
 
-# Satellites slower than this (rev/day) are propagated at nodes at most NODE_STEP_S apart
-# and interpolated (4-node Lagrange on Earth-fixed position and velocity, see
-# core.orbits.node_interp) onto denser grids. For GNSS orbits (2 rev/day) this changes
-# Doppler by < 1e-4 Hz and position by < 1 mm against propagating every sample [checked in
-# tests/test_geometry.py]; LEO orbits are always propagated at every sample.
+# Satellites slower than this (rev/day) may be propagated at nodes and interpolated onto
+# denser grids (core.orbits.node_interp); faster ones (near-Earth SGP4 with its drag terms)
+# are always propagated at every sample.
 HERMITE_MAX_REV_PER_DAY = 4.0
+# Above this eccentricity an orbit is propagated at every sample (perigee passes need
+# nodes closer than the spacings offered; the bound's series is meant for e <= 0.5).
+MAX_INTERPOLATED_ECCENTRICITY = 0.3
+# SGP4's deep-space branch switches between two formulations of the lunar-solar periodics
+# (the Lyddane modification) where the inclination crosses 0.2 rad [pub: AIAA 2006-6753,
+# sec. on dpper]: the position jumps there (about 1.7 km for the verification case 14128).
+# Orbits within this distance of 0.2 rad are propagated at every sample.
+LYDDANE_SWITCH_RAD = 0.2
+LYDDANE_MARGIN_RAD = 0.02
+# The 24-hour resonance integrator of SGP4 takes steps of 720 min from the epoch [pub:
+# AIAA 2006-6753, dspace]; between steps the mean longitude is a quadratic in time, so
+# at every step its rate jumps by xnddt * 720^2 / 2 and its second derivative by about
+# xnddt * 720, with |xnddt| <= (|del1| + 2 |del2| + 3 |del3|) |xldot|. The rate xldot
+# drifts by at most that coefficient sum per minute; the bound holds RESONANCE_HORIZON_S
+# from the epoch (beyond the 120-day data age limit plus the lead allowed), and resonant
+# orbits are propagated at every sample farther out.
+RESONANCE_STEP_MIN = 720.0
+RESONANCE_HORIZON_S = 150 * 86400.0
+# SGP4's own rounding noise: its Kepler iteration stops below 1e-12 rad [pub: AIAA
+# 2006-6753, sgp4 Kepler loop], i.e. about 1e-12 a along the track; allowed: 1e-11 a.
+SGP4_NOISE_PER_A = 1e-11
+# The frame rotation the bound sees: GMST rate (IAU 1982) plus a margin for the nodal
+# and apsidal drifts (about 1e-4 of it for GNSS orbits).
+_FRAME_RATE_RAD_S = EARTH_ROTATION_RAD_S * 1.001
 
 
-def sgp4_ecef_planes(satrecs: Sequence[Satrec], unix_s: np.ndarray, *, interpolate: bool = True
+def resonance_kinks(satrec: Satrec) -> tuple[float, float]:
+    """(J1 m/s, J2 m/s^2): bounds of the jumps of SGP4's position slope and second
+    derivative at the 720-min steps of its resonance integrator (0, 0 without one).
+
+    The resonance coefficients come from python-sgp4's own initialisation (its pure
+    Python ``sgp4init``, the same code the compiled one mirrors; WGS-72 constants, as the
+    TLE reader uses)."""
+    return _resonance_kinks(*_elements(satrec))
+
+
+def _elements(s: Satrec) -> tuple:
+    return (s.operationmode, int(s.satnum), float(s.jdsatepoch + s.jdsatepochF - 2433281.5),
+            float(s.bstar), float(s.ndot), float(s.nddot), float(s.ecco), float(s.argpo),
+            float(s.inclo), float(s.mo), float(s.no_kozai), float(s.nodeo))
+
+
+@lru_cache(maxsize=4096)
+def _resonance_kinks(*elements) -> tuple[float, float]:
+    from sgp4.api import WGS72
+    from sgp4.model import Satrec as PythonSatrec
+
+    p = PythonSatrec()
+    p.sgp4init(WGS72, *elements)
+    if not getattr(p, "irez", 0):
+        return 0.0, 0.0
+    if p.irez != 1:
+        return math.inf, math.inf            # 12-hour resonance: eccentric, never interpolated
+    coef = abs(p.del1) + 2.0 * abs(p.del2) + 3.0 * abs(p.del3)           # rad/min^2
+    xldot = abs(p.no_unkozai + p.xfact) + coef * RESONANCE_HORIZON_S / 60.0   # rad/min
+    xnddt = coef * xldot                                                  # rad/min^3
+    a_m = p.a * p.radiusearthkm * 1000.0 * (1.0 + p.ecco)
+    j1 = a_m * xnddt * RESONANCE_STEP_MIN ** 2 / 2.0 / 60.0
+    j2 = a_m * xnddt * RESONANCE_STEP_MIN / 3600.0
+    return j1, j2
+
+
+def interpolation_bounds(satrec: Satrec, h_s: float) -> tuple[float, float]:
+    """Bounds (position m, velocity m/s per component) of interpolating this SGP4 orbit
+    from nodes h apart against SGP4 at every sample (core.orbits.node_interp, with the
+    resonance kinks and SGP4's noise added); inf where the orbit is not interpolated."""
+    rev_day = satrec.no_kozai * 1440.0 / (2 * math.pi)
+    deep = rev_day < 1440.0 / 225.0                  # SGP4's deep-space branch
+    if (rev_day >= HERMITE_MAX_REV_PER_DAY or satrec.ecco > MAX_INTERPOLATED_ECCENTRICITY
+            or (deep and abs(satrec.inclo - LYDDANE_SWITCH_RAD) < LYDDANE_MARGIN_RAD)):
+        return math.inf, math.inf
+    n = satrec.no_kozai / 60.0
+    a = satrec.a * satrec.radiusearthkm * 1000.0
+    r_b, v_b = smooth_error_bounds(a, satrec.ecco, n, h_s, _FRAME_RATE_RAD_S)
+    k1, k2, lebesgue = kink_constants()
+    j1, j2 = resonance_kinks(satrec)
+    noise = (1.0 + lebesgue) * SGP4_NOISE_PER_A * a * (1.0 + satrec.ecco)
+    speed_rate = n * (1.0 + satrec.ecco) / (1.0 - satrec.ecco) + _FRAME_RATE_RAD_S
+    pos = float(r_b) + k1 * j1 * h_s + k2 * j2 * h_s ** 2 + noise
+    # The velocity is computed from the same elements: its slope jumps by at most the
+    # position's slope jump times the angular rate (d v / d angle = speed).
+    vel = float(v_b) + speed_rate * (k1 * j1 * h_s + k2 * j2 * h_s ** 2) + noise * speed_rate
+    return pos, vel
+
+
+def node_step_s(satrec: Satrec) -> float:
+    """The widest spacing of NODE_STEPS_S whose bound meets both tolerances, or 0.0 when
+    the orbit is to be propagated at every sample (cached per set of elements)."""
+    key = _elements(satrec)
+    h = _NODE_STEP_CACHE.get(key)
+    if h is None:
+        if len(_NODE_STEP_CACHE) >= 4096:
+            _NODE_STEP_CACHE.clear()
+        h = _NODE_STEP_CACHE[key] = widest_step_s(lambda h: interpolation_bounds(satrec, h))
+    return h
+
+
+_NODE_STEP_CACHE: dict[tuple, float] = {}
+_LAST_SET: list = [(), ()]          # the last satellite list (held) and its node spacings
+
+
+def _steps_of(sats: list[Satrec]) -> tuple[tuple[float, ...], dict[int, float]]:
+    """node_step_s of each satellite, and the epochs (UTC POSIX s) of the interpolated
+    ones with a resonance integrator by index; predict's blocks ask for the same list
+    again and again, so the last list's answer is kept (the list itself is held, so
+    identities cannot be reused while it is)."""
+    held, answer = _LAST_SET
+    if len(held) == len(sats) and all(a is b for a, b in zip(held, sats)):
+        return answer
+    steps = tuple(node_step_s(s) for s in sats)
+    resonant = {k: (s.jdsatepoch + s.jdsatepochF - 2440587.5) * 86400.0
+                for k, s in enumerate(sats) if steps[k] and resonance_kinks(s)[0]}
+    _LAST_SET[:] = [tuple(sats), (steps, resonant)]
+    return steps, resonant
+
+
+def sgp4_ecef_planes(satrecs: Sequence[Satrec], unix_s: np.ndarray, *, interpolate: bool = True,
+                     anchor_s: float | None = None
                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Earth-fixed position (m) and velocity (m/s), component-first (3, S, T) each, and
     error codes (S, T).
 
-    Samples with a nonzero SGP4 error code are NaN. With ``interpolate`` (default), slow
-    orbits on grids denser than NODE_STEP_S are propagated at the nodes only and
-    interpolated (see HERMITE_MAX_REV_PER_DAY).
+    Samples with a nonzero SGP4 error code are NaN. With ``interpolate`` (default), each
+    orbit whose error bound allows it (:func:`node_step_s`) is propagated at nodes only on
+    grids at least two samples per node interval dense, and interpolated within the stated
+    tolerances; ``anchor_s`` is a time on the node lattice (predict's blocks pass the
+    grid's first sample; default the first of ``unix_s``).
     """
     u = np.asarray(unix_s, dtype=float)
     sats = list(satrecs)
-    n_s, n_t = len(sats), u.size
-    slow = np.array([s.no_kozai * 1440.0 / (2 * np.pi) < HERMITE_MAX_REV_PER_DAY for s in sats],
-                    dtype=bool)
-    if not (interpolate and is_dense(u) and slow.any()):
+    if not (interpolate and u.size >= 2):
         return _sgp4_direct(sats, u)
-    if slow.all():
-        return interpolated_states(lambda t: _sgp4_direct(sats, t), u)
-    r_out = np.empty((3, n_s, n_t))
-    v_out = np.empty((3, n_s, n_t))
-    e_out = np.zeros((n_s, n_t), dtype=np.uint8)
-    fast = np.nonzero(~slow)[0]
-    r, v, e = _sgp4_direct([sats[k] for k in fast], u)
-    r_out[:, fast], v_out[:, fast], e_out[fast] = r, v, e
-    idx = np.nonzero(slow)[0]
-    r, v, e = interpolated_states(lambda t: _sgp4_direct([sats[k] for k in idx], t), u)
-    r_out[:, idx], v_out[:, idx], e_out[idx] = r, v, e
-    return r_out, v_out, e_out
+    steps, resonant_epochs = _steps_of(sats)
+    if resonant_epochs:
+        steps = list(steps)
+        span = float(u.min()), float(u.max())
+        for k, epoch in resonant_epochs.items():
+            if max(abs(span[0] - epoch), abs(span[1] - epoch)) > RESONANCE_HORIZON_S:
+                steps[k] = 0.0
+    if not any(steps):
+        return _sgp4_direct(sats, u)
+    return grouped_states(lambda idx, t: _sgp4_direct([sats[k] for k in idx], t), steps, u,
+                          anchor_s=anchor_s)
 
 
 def sgp4_ecef(satrecs: Sequence[Satrec], unix_s: np.ndarray, *, interpolate: bool = True

@@ -32,8 +32,9 @@ from ..ground.geodesy import Site, SitePath
 from ..ground.signals import DEFAULT_SIGNAL_FOR_SYSTEM, SIGNALS, get_signal
 from ..ground.timeutil import TimeGrid, as_time_grid, iso_z, to_unix_s, unix_to_gps_s
 from ..orbits.almanac_model import AlmanacArrays, almanac_ecef
+from ..orbits.almanac_model import node_steps_s as almanac_node_steps_s
 from ..orbits.broadcast import broadcast_ecef, coverage_warning
-from ..orbits.node_interp import interpolated_states, is_dense, samples_per_node, uniform_step_s
+from ..orbits.node_interp import grouped_states, uniform_step_s
 from ..orbits.orbit_set import OrbitSet
 from ..orbits.sgp4_model import sgp4_ecef_planes, sgp4_error_text
 
@@ -124,27 +125,37 @@ BLOCK_SAMPLES = 1 << 16
 
 def _almanac_planes(arrays: AlmanacArrays, u: np.ndarray):
     p, v = almanac_ecef(arrays, unix_to_gps_s(u))
-    return p.transpose(2, 0, 1), v.transpose(2, 0, 1), np.zeros(p.shape[:2], dtype=np.uint8)
+    return (np.ascontiguousarray(p.transpose(2, 0, 1)), np.ascontiguousarray(v.transpose(2, 0, 1)),
+            np.zeros(p.shape[:2], dtype=np.uint8))
 
 
-def propagate_ecef(orbits: OrbitSet, unix_s: np.ndarray, *, failures: dict | None = None
+def propagate_ecef(orbits: OrbitSet, unix_s: np.ndarray, *, failures: dict | None = None,
+                   anchor_s: float | None = None
                    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, list[str]]:
     """Earth-fixed position (m), velocity (m/s), each (S, T, 3), a validity mask (S, T)
     and warnings, for every entry of the set at every instant.
 
-    The arrays are views of component-first (3, S, T) storage, so ``pos[..., 0]`` is a
-    contiguous plane. ``failures`` (predict's blocks): a dict entry index ->
+    The arrays are views of component-first (3, S, T) storage, so ``pos[..., 0]`` is one
+    (S, T) plane with contiguous rows. ``failures`` (predict's blocks): a dict entry index ->
     [samples failed, first failed time, set of SGP4 codes] that collects the failures
-    across calls; the warnings are then left to :func:`failure_warnings`.
+    across calls; the warnings are then left to :func:`failure_warnings`. ``anchor_s``:
+    a time on the interpolation node lattice (predict's blocks pass their grid's first
+    sample, so that every block sees the same nodes).
     """
     u = np.asarray(unix_s, dtype=float)
     n_s, n_t = len(orbits.entries), u.size
-    pos = np.full((3, n_s, n_t), np.nan)
-    vel = np.full((3, n_s, n_t), np.nan)
     alm_idx = [i for i, e in enumerate(orbits.entries) if e.almanac is not None]
     tle_idx = [i for i, e in enumerate(orbits.entries) if e.satrec is not None]
     bc_idx = [i for i, e in enumerate(orbits.entries) if e.broadcast is not None]
     own = {} if failures is None else failures
+    if len(tle_idx) == n_s or len(alm_idx) == n_s:
+        pos = vel = None                     # one model for all: its planes are the result
+    else:
+        pos = np.empty((3, n_s, n_t))
+        vel = np.empty((3, n_s, n_t))
+        rest = sorted(set(range(n_s)) - set(alm_idx) - set(tle_idx) - set(bc_idx))
+        pos[:, rest] = np.nan
+        vel[:, rest] = np.nan
     if bc_idx:
         # Broadcast records: evaluated directly (the record changes within a pass, so no
         # node interpolation); instants no record covers stay NaN and are reported.
@@ -157,17 +168,24 @@ def propagate_ecef(orbits: OrbitSet, unix_s: np.ndarray, *, failures: dict | Non
             rec[0] += int(bad.sum())
     if alm_idx:
         arrays = AlmanacArrays.from_records([orbits.entries[i].almanac for i in alm_idx])
-        # Interpolated only on grids of 4 or more samples per node (direct below that).
-        if is_dense(u, min_samples_per_node=4.0):
-            p, v, _ = interpolated_states(lambda t: _almanac_planes(arrays, t), u)
+        # Each satellite at the node spacing its bound allows, on grids of 4 or more
+        # samples per node interval (direct below that: the model is cheap).
+        p, v, _ = grouped_states(lambda idx, t: _almanac_planes(arrays.subset(idx), t),
+                                 almanac_node_steps_s(arrays), u, anchor_s=anchor_s,
+                                 min_samples_per_node=4.0)
+        if pos is None:
+            pos, vel = p, v
         else:
-            p, v, _ = _almanac_planes(arrays, u)
-        pos[:, alm_idx] = p
-        vel[:, alm_idx] = v
+            pos[:, alm_idx] = p
+            vel[:, alm_idx] = v
     if tle_idx:
-        p, v, err = sgp4_ecef_planes([orbits.entries[i].satrec for i in tle_idx], u)
-        pos[:, tle_idx] = p
-        vel[:, tle_idx] = v
+        p, v, err = sgp4_ecef_planes([orbits.entries[i].satrec for i in tle_idx], u,
+                                     anchor_s=anchor_s)
+        if pos is None:
+            pos, vel = p, v
+        else:
+            pos[:, tle_idx] = p
+            vel[:, tle_idx] = v
         for row in np.nonzero(err.any(axis=1))[0]:
             bad = err[row] != 0
             rec = own.setdefault(tle_idx[row], [0, float(u[np.argmax(bad)]), set()])
@@ -278,15 +296,13 @@ _KEPT = ("azimuth_deg", "elevation_deg", "range_m", "doppler_hz", "doppler_rate_
 
 
 def blocks(n_satellites: int, unix_s: np.ndarray) -> list[tuple[int, int]]:
-    """Index ranges [a, b) of the grid's blocks: about BLOCK_SAMPLES satellite-samples each
-    and a whole number of node intervals, so that every block sees the same node lattice
-    (a grid's last sample off the step, as time_grid appends, is a block of its own)."""
+    """Index ranges [a, b) of the grid's blocks, about BLOCK_SAMPLES satellite-samples
+    each (every block interpolates from the node lattice anchored at the grid's first
+    sample; a grid's last sample off the step, as time_grid appends, is a block of its own)."""
     n_t = unix_s.size
     body = n_t - 1 if (n_t > 2 and uniform_step_s(unix_s) is None
                        and uniform_step_s(unix_s[:-1]) is not None) else n_t
-    m = max(1, samples_per_node(unix_s[:body]))
-    n = max(1, BLOCK_SAMPLES // max(n_satellites, 1))
-    step = max(m, n // m * m)
+    step = max(1, BLOCK_SAMPLES // max(n_satellites, 1))
     out = [(a, min(a + step, body)) for a in range(0, body, step)]
     if body < n_t:
         out.append((body, n_t))
@@ -349,7 +365,7 @@ def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] |
     own = failures is None
     failures = {} if failures is None else failures
     for a, b in blocks(n_s, u):
-        pos, vel, ok, _ = propagate_ecef(orbits, u[a:b], failures=failures)
+        pos, vel, ok, _ = propagate_ecef(orbits, u[a:b], failures=failures, anchor_s=float(u[0]))
         here = site.take(slice(a, b)) if isinstance(site, SitePath) else site   # a moving receiver
         _geometry(pos, vel, mu, here, lam, out={name: v[:, a:b] for name, v in out.items()})
         valid[:, a:b] = ok
