@@ -1096,7 +1096,7 @@ def _grid_index_at(grid: TimeGrid, visible: np.ndarray, s: int, unix_s: float) -
     before it, or the next one when the satellite is not yet above the mask there (the
     rule of core.plan.timeline for a search that starts at a rise)."""
     u = grid.unix_s
-    k = int(np.clip(np.searchsorted(u, unix_s, side="right") - 1, 0, u.size - 1))
+    k = min(max(int(np.searchsorted(u, unix_s, side="right")) - 1, 0), u.size - 1)
     if not visible[s, k] and k + 1 < u.size:
         k += 1
     return k

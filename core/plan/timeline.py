@@ -681,10 +681,11 @@ def _simulate(inp: TimelineInputs, duration: DurationFn, record: bool,
             continue
         k = bisect.bisect_right(times_list, t) - 1
         after = first_acq <= t
-        ranked = [s for s in _rank_order(inp, k) if s in waiting]
-        for s in ranked:
+        for s in _rank_order(inp, k):          # waiting satellites in rank order
             if not free:
                 break
+            if s not in waiting:
+                continue
             d = duration(s, k, after)
             if d is None:
                 unsearchable.setdefault(s, t)
