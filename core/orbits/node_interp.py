@@ -207,20 +207,12 @@ def _interp_general(node_vals: np.ndarray, i: np.ndarray, x: np.ndarray) -> np.n
     return out
 
 
-def interpolated_states(propagate: PlanarPropagator, unix_s: np.ndarray,
-                        node_step_s: float = NODE_STEP_S, anchor_s: float | None = None
-                        ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """States (3, S, T) at ``unix_s`` from ``propagate`` called at nodes only, and error
-    codes (S, T): a sample takes the largest code of its N nodes.
-
-    ``anchor_s``: a time on the node lattice of a uniform grid (default its first sample);
-    the blocks of one grid pass the grid's first sample, so they share one lattice.
-    """
-    u = np.asarray(unix_s, dtype=float)
+def _node_request(u: np.ndarray, node_step_s: float, anchor_s: float | None):
+    """The node times a grid needs and the function that interpolates the grid from the
+    propagated nodes: ``finish(r, v, e) -> (ri, vi, err)`` (see :func:`interpolated_states`)."""
     n_t = u.size
     m = samples_per_node(u, node_step_s)
     half = NODES // 2 - 1
-    first = None
     if m:
         step = float(u[1] - u[0])
         anchor = float(u[0]) if anchor_s is None else float(anchor_s)
@@ -230,20 +222,25 @@ def interpolated_states(propagate: PlanarPropagator, unix_s: np.ndarray,
             h = m * step
             j0, j1 = k0 // m, (k0 + n_t - 1) // m
             nodes = anchor + h * np.arange(j0 - half, j1 + NODES - half)
-            r, v, e = propagate(nodes)
             first = k0 - j0 * m
-            ri = _interp_periodic(r, m, first, n_t)
-            vi = _interp_periodic(v, m, first, n_t)
-            j = (first + np.arange(n_t)) // m
-    if first is None:
-        h = float(node_step_s)
-        n0 = (np.floor(u.min() / h) - half) * h
-        nodes = n0 + h * np.arange(int(np.floor((u.max() - n0) / h)) + NODES - half)
-        r, v, e = propagate(nodes)
+
+            def periodic(r, v, e):
+                j = (first + np.arange(n_t)) // m
+                return _finish(_interp_periodic(r, m, first, n_t), _interp_periodic(v, m, first, n_t), e, j)
+            return nodes, periodic
+    h = float(node_step_s)
+    n0 = (np.floor(u.min() / h) - half) * h
+    nodes = n0 + h * np.arange(int(np.floor((u.max() - n0) / h)) + NODES - half)
+
+    def general(r, v, e):
         j, x = _general_index(nodes, u, h)
-        ri = _interp_general(r, j, x)
-        vi = _interp_general(v, j, x)
+        return _finish(_interp_general(r, j, x), _interp_general(v, j, x), e, j)
+    return nodes, general
+
+
+def _finish(ri: np.ndarray, vi: np.ndarray, e, j: np.ndarray):
     e = np.asarray(e)
+    n_t = j.size
     if not e.any():                                       # the usual case: no node failed
         return ri, vi, np.zeros((e.shape[0], n_t), dtype=e.dtype)
     n_first = e.shape[1] - (NODES - 1)                    # stencils, by their first node
@@ -255,6 +252,19 @@ def interpolated_states(propagate: PlanarPropagator, unix_s: np.ndarray,
     return ri, vi, err
 
 
+def interpolated_states(propagate: PlanarPropagator, unix_s: np.ndarray,
+                        node_step_s: float = NODE_STEP_S, anchor_s: float | None = None
+                        ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """States (3, S, T) at ``unix_s`` from ``propagate`` called at nodes only, and error
+    codes (S, T): a sample takes the largest code of its N nodes.
+
+    ``anchor_s``: a time on the node lattice of a uniform grid (default its first sample);
+    the blocks of one grid pass the grid's first sample, so they share one lattice.
+    """
+    nodes, finish = _node_request(np.asarray(unix_s, dtype=float), node_step_s, anchor_s)
+    return finish(*propagate(nodes))
+
+
 def grouped_states(propagate: Callable[[list[int], np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]],
                    steps_s: list[float], unix_s: np.ndarray, anchor_s: float | None = None,
                    min_samples_per_node: float = 2.0
@@ -262,31 +272,62 @@ def grouped_states(propagate: Callable[[list[int], np.ndarray], tuple[np.ndarray
     """States (3, S, T) and error codes (S, T) of S satellites, each interpolated from
     nodes ``steps_s[i]`` apart where the grid is dense enough for it, else propagated at
     every sample; ``propagate(indices, unix_s)`` gives the planes of a subset."""
-    u = np.asarray(unix_s, dtype=float)
-    n_s, n_t = len(steps_s), u.size
-    groups: dict[float, list[int]] = {}
-    dense: dict[float, bool] = {0.0: False}
-    for k, h in enumerate(steps_s):
-        h = float(h)
-        if h not in dense:
-            dense[h] = is_dense(u, h, min_samples_per_node=min_samples_per_node)
-        groups.setdefault(h if dense[h] else 0.0, []).append(k)
-    if len(groups) == 1:
-        (h, idx), = groups.items()
-        if not h:
-            return propagate(idx, u)
-        return interpolated_states(lambda t: propagate(idx, t), u, h, anchor_s=anchor_s)
-    r_out = np.empty((3, n_s, n_t))
-    v_out = np.empty((3, n_s, n_t))
-    e_out = np.zeros((n_s, n_t), dtype=np.uint8)
-    for h, idx in groups.items():
-        if h:
-            r, v, e = interpolated_states(lambda t, idx=idx: propagate(idx, t), u, h,
-                                          anchor_s=anchor_s)
-        else:
-            r, v, e = propagate(idx, u)
-        r_out[:, idx], v_out[:, idx], e_out[idx] = r, v, e
-    return r_out, v_out, e_out
+    return grouped_states_many(propagate, [steps_s], [unix_s], [anchor_s], min_samples_per_node)[0]
+
+
+def grouped_states_many(propagate: Callable[[list[int], np.ndarray], tuple[np.ndarray, np.ndarray, np.ndarray]],
+                        steps_s: list[list[float]], grids: list[np.ndarray], anchors_s: list[float | None],
+                        min_samples_per_node: float = 2.0
+                        ) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """:func:`grouped_states` of several grids (each with its satellites' node spacings and
+    its anchor) at once: the node times (or samples) every grid needs from one subset of
+    satellites are propagated in one call, then each grid is interpolated from its own
+    nodes. The models are evaluated time by time, so each grid gets exactly what
+    :func:`grouped_states` gives it alone; the calls' fixed costs are paid once."""
+    plans = []                 # per grid: (satellites, times, [(indices, finish or None)])
+    batches: dict[tuple[int, ...], list[np.ndarray]] = {}
+    for steps, grid, anchor in zip(steps_s, grids, anchors_s):
+        u = np.asarray(grid, dtype=float)
+        groups: dict[float, list[int]] = {}
+        dense: dict[float, bool] = {0.0: False}
+        for k, h in enumerate(steps):
+            h = float(h)
+            if h not in dense:
+                dense[h] = is_dense(u, h, min_samples_per_node=min_samples_per_node)
+            groups.setdefault(h if dense[h] else 0.0, []).append(k)
+        parts = []
+        for h, idx in groups.items():
+            times, finish = (u, None) if not h else _node_request(u, h, anchor)
+            batches.setdefault(tuple(idx), []).append(times)
+            parts.append((idx, finish))
+        plans.append((len(steps), u.size, parts))
+    results: dict[tuple[int, ...], list] = {}
+    for idx, times in batches.items():
+        if len(times) == 1:
+            results[idx] = [propagate(list(idx), times[0])]
+            continue
+        r, v, e = propagate(list(idx), np.concatenate(times))
+        cuts = np.cumsum([t.size for t in times])[:-1]
+        results[idx] = list(zip(np.split(r, cuts, axis=-1), np.split(v, cuts, axis=-1), np.split(e, cuts, axis=-1)))
+    taken = {idx: 0 for idx in results}
+    out = []
+    for n_s, n_t, parts in plans:
+        done = []
+        for idx, finish in parts:
+            key = tuple(idx)
+            got = results[key][taken[key]]
+            taken[key] += 1
+            done.append((idx, got if finish is None else finish(*got)))
+        if len(done) == 1:
+            out.append(done[0][1])
+            continue
+        r_out = np.empty((3, n_s, n_t))
+        v_out = np.empty((3, n_s, n_t))
+        e_out = np.zeros((n_s, n_t), dtype=np.uint8)
+        for idx, (r, v, e) in done:
+            r_out[:, idx], v_out[:, idx], e_out[idx] = r, v, e
+        out.append((r_out, v_out, e_out))
+    return out
 
 
 def widest_step_s(pos_bound_m: Callable[[float], tuple[float, float]]) -> float:

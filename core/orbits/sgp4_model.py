@@ -22,7 +22,7 @@ from ..ground.constants import EARTH_ROTATION_RAD_S
 from ..ground.timeutil import jd_split_utc, ut1_split
 from .node_interp import NODE_STEP_S as NODE_STEP_S  # re-exported: the node spacing
 from .node_interp import (
-    grouped_states,
+    grouped_states_many,
     kink_constants,
     smooth_error_bounds,
     widest_step_s,
@@ -204,21 +204,34 @@ def sgp4_ecef_planes(satrecs: Sequence[Satrec], unix_s: np.ndarray, *, interpola
     tolerances; ``anchor_s`` is a time on the node lattice (predict's blocks pass the
     grid's first sample; default the first of ``unix_s``).
     """
-    u = np.asarray(unix_s, dtype=float)
+    return sgp4_ecef_planes_many(satrecs, [unix_s], [anchor_s], interpolate=interpolate)[0]
+
+
+def sgp4_ecef_planes_many(satrecs: Sequence[Satrec], grids: Sequence[np.ndarray],
+                          anchors_s: Sequence[float | None], *, interpolate: bool = True
+                          ) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """:func:`sgp4_ecef_planes` of several grids at once (each with its anchor): SGP4 runs
+    once over the nodes and samples of all (core.orbits.node_interp.grouped_states_many),
+    each grid getting exactly what it gets alone."""
     sats = list(satrecs)
-    if not (interpolate and u.size >= 2):
-        return _sgp4_direct(sats, u)
-    steps, resonant_epochs = _steps_of(sats)
-    if resonant_epochs:
-        steps = list(steps)
-        span = float(u.min()), float(u.max())
-        for k, epoch in resonant_epochs.items():
-            if max(abs(span[0] - epoch), abs(span[1] - epoch)) > RESONANCE_HORIZON_S:
-                steps[k] = 0.0
-    if not any(steps):
-        return _sgp4_direct(sats, u)
-    return grouped_states(lambda idx, t: _sgp4_direct([sats[k] for k in idx], t), steps, u,
-                          anchor_s=anchor_s)
+    grids = [np.asarray(u, dtype=float) for u in grids]
+    all_steps = []
+    for u in grids:
+        if not (interpolate and u.size >= 2):
+            all_steps.append([0.0] * len(sats))
+            continue
+        steps, resonant_epochs = _steps_of(sats)
+        if resonant_epochs:
+            steps = list(steps)
+            span = float(u.min()), float(u.max())
+            for k, epoch in resonant_epochs.items():
+                if max(abs(span[0] - epoch), abs(span[1] - epoch)) > RESONANCE_HORIZON_S:
+                    steps[k] = 0.0
+        all_steps.append(list(steps))
+
+    def direct(idx, t):
+        return _sgp4_direct(sats if len(idx) == len(sats) else [sats[k] for k in idx], t)
+    return grouped_states_many(direct, all_steps, grids, list(anchors_s))
 
 
 def sgp4_ecef(satrecs: Sequence[Satrec], unix_s: np.ndarray, *, interpolate: bool = True

@@ -34,9 +34,9 @@ from ..ground.timeutil import TimeGrid, as_time_grid, iso_z, to_unix_s, unix_to_
 from ..orbits.almanac_model import AlmanacArrays, almanac_ecef
 from ..orbits.almanac_model import node_steps_s as almanac_node_steps_s
 from ..orbits.broadcast import broadcast_ecef, coverage_warning
-from ..orbits.node_interp import grouped_states, uniform_step_s
+from ..orbits.node_interp import grouped_states_many, uniform_step_s
 from ..orbits.orbit_set import OrbitSet
-from ..orbits.sgp4_model import sgp4_ecef_planes, sgp4_error_text
+from ..orbits.sgp4_model import sgp4_ecef_planes_many, sgp4_error_text
 
 SignalChoice = str | Sequence[str] | Mapping[str, str] | None
 
@@ -143,57 +143,78 @@ def propagate_ecef(orbits: OrbitSet, unix_s: np.ndarray, *, failures: dict | Non
     sample, so that every block sees the same nodes).
     """
     u = np.asarray(unix_s, dtype=float)
-    n_s, n_t = len(orbits.entries), u.size
+    own = {} if failures is None else failures
+    pos, vel, valid = propagate_ecef_many(orbits, [(u, anchor_s)], [own])[0]
+    warnings = [] if failures is not None else failure_warnings(orbits, own, u.size)
+    return pos, vel, valid, warnings
+
+
+def propagate_ecef_many(orbits: OrbitSet, requests: Sequence[tuple[np.ndarray, float | None]],
+                        failures: Sequence[dict]
+                        ) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """:func:`propagate_ecef` of several (times, anchor) requests at once, the failures of
+    each collected in its own dict: almanac and SGP4 orbits are evaluated in one call per
+    model and node group over the nodes and samples of every request, and what depends
+    on the orbits only (node spacings, stacked elements) is made once. Each request gets
+    exactly what :func:`propagate_ecef` gives it alone (the models are evaluated time by
+    time); broadcast records are evaluated per request."""
+    grids = [np.asarray(u, dtype=float) for u, _ in requests]
+    anchors = [a for _, a in requests]
+    n_s = len(orbits.entries)
     alm_idx = [i for i, e in enumerate(orbits.entries) if e.almanac is not None]
     tle_idx = [i for i, e in enumerate(orbits.entries) if e.satrec is not None]
     bc_idx = [i for i, e in enumerate(orbits.entries) if e.broadcast is not None]
-    own = {} if failures is None else failures
-    if len(tle_idx) == n_s or len(alm_idx) == n_s:
-        pos = vel = None                     # one model for all: its planes are the result
-    else:
-        pos = np.empty((3, n_s, n_t))
-        vel = np.empty((3, n_s, n_t))
-        rest = sorted(set(range(n_s)) - set(alm_idx) - set(tle_idx) - set(bc_idx))
+    one_model = len(tle_idx) == n_s or len(alm_idx) == n_s
+    rest = sorted(set(range(n_s)) - set(alm_idx) - set(tle_idx) - set(bc_idx))
+    out: list[list] = []
+    for u in grids:
+        if one_model:
+            out.append([None, None])             # one model for all: its planes are the result
+            continue
+        pos = np.empty((3, n_s, u.size))
+        vel = np.empty((3, n_s, u.size))
         pos[:, rest] = np.nan
         vel[:, rest] = np.nan
+        out.append([pos, vel])
     if bc_idx:
         # Broadcast records: evaluated directly (the record changes within a pass, so no
         # node interpolation); instants no record covers stay NaN and are reported.
-        p, v, used = broadcast_ecef([orbits.entries[i] for i in bc_idx], u)
-        pos[:, bc_idx] = p.transpose(2, 0, 1)
-        vel[:, bc_idx] = v.transpose(2, 0, 1)
-        for row in np.nonzero((used < 0).any(axis=1))[0]:
-            bad = used[row] < 0
-            rec = own.setdefault(bc_idx[row], [0, float(u[np.argmax(bad)]), set()])
-            rec[0] += int(bad.sum())
+        entries = [orbits.entries[i] for i in bc_idx]
+        for (pos, vel), u, own in zip(out, grids, failures):
+            p, v, used = broadcast_ecef(entries, u)
+            pos[:, bc_idx] = p.transpose(2, 0, 1)
+            vel[:, bc_idx] = v.transpose(2, 0, 1)
+            for row in np.nonzero((used < 0).any(axis=1))[0]:
+                bad = used[row] < 0
+                rec = own.setdefault(bc_idx[row], [0, float(u[np.argmax(bad)]), set()])
+                rec[0] += int(bad.sum())
     if alm_idx:
         arrays = AlmanacArrays.from_records([orbits.entries[i].almanac for i in alm_idx])
         # Each satellite at the node spacing its bound allows, on grids of 4 or more
         # samples per node interval (direct below that: the model is cheap).
-        p, v, _ = grouped_states(lambda idx, t: _almanac_planes(arrays.subset(idx), t),
-                                 almanac_node_steps_s(arrays), u, anchor_s=anchor_s,
-                                 min_samples_per_node=4.0)
-        if pos is None:
-            pos, vel = p, v
-        else:
-            pos[:, alm_idx] = p
-            vel[:, alm_idx] = v
+        steps = almanac_node_steps_s(arrays)
+        got = grouped_states_many(lambda idx, t: _almanac_planes(arrays.subset(idx), t),
+                                  [steps] * len(grids), grids, anchors, min_samples_per_node=4.0)
+        for slot, (p, v, _) in zip(out, got):
+            if slot[0] is None:
+                slot[:] = [p, v]
+            else:
+                slot[0][:, alm_idx] = p
+                slot[1][:, alm_idx] = v
     if tle_idx:
-        p, v, err = sgp4_ecef_planes([orbits.entries[i].satrec for i in tle_idx], u,
-                                     anchor_s=anchor_s)
-        if pos is None:
-            pos, vel = p, v
-        else:
-            pos[:, tle_idx] = p
-            vel[:, tle_idx] = v
-        for row in np.nonzero(err.any(axis=1))[0]:
-            bad = err[row] != 0
-            rec = own.setdefault(tle_idx[row], [0, float(u[np.argmax(bad)]), set()])
-            rec[0] += int(bad.sum())
-            rec[2].update(int(c) for c in np.unique(err[row][bad]))
-    valid = np.isfinite(pos[0])
-    warnings = [] if failures is not None else failure_warnings(orbits, own, n_t)
-    return pos.transpose(1, 2, 0), vel.transpose(1, 2, 0), valid, warnings
+        got = sgp4_ecef_planes_many([orbits.entries[i].satrec for i in tle_idx], grids, anchors)
+        for slot, u, own, (p, v, err) in zip(out, grids, failures, got):
+            if slot[0] is None:
+                slot[:] = [p, v]
+            else:
+                slot[0][:, tle_idx] = p
+                slot[1][:, tle_idx] = v
+            for row in np.nonzero(err.any(axis=1))[0]:
+                bad = err[row] != 0
+                rec = own.setdefault(tle_idx[row], [0, float(u[np.argmax(bad)]), set()])
+                rec[0] += int(bad.sum())
+                rec[2].update(int(c) for c in np.unique(err[row][bad]))
+    return [(pos.transpose(1, 2, 0), vel.transpose(1, 2, 0), np.isfinite(pos[0])) for pos, vel in out]
 
 
 def failure_warnings(orbits: OrbitSet, failures: dict, n_t: int) -> list[str]:
@@ -332,9 +353,47 @@ def check_grid_size(n_satellites: int, span_s: float, step_s: float, limit: int,
         field=field)
 
 
+@dataclass
+class EarthFixedStates:
+    """Earth-fixed states of every satellite of a set over one grid, as :func:`predict`
+    propagates them for that grid (block by block, from its own node lattice), with the
+    propagation failures (see :func:`propagate_ecef`)."""
+
+    unix_s: np.ndarray
+    pos_ecef_m: np.ndarray            # (S, T, 3)
+    vel_ecef_m_s: np.ndarray          # (S, T, 3)
+    valid: np.ndarray                 # (S, T)
+    failures: dict
+
+
+def earth_fixed_states(orbits: OrbitSet, grids: Sequence[TimeGrid | np.ndarray]) -> list[EarthFixedStates]:
+    """The states :func:`predict` propagates for each grid, for all grids at once: the
+    satellites' Earth-fixed states do not depend on the receiver, so receivers at several
+    places or times (a drive's events) share one propagation
+    (:func:`propagate_ecef_many`); ``predict(..., states=)`` then takes them."""
+    us = [np.asarray(g.unix_s if isinstance(g, TimeGrid) else g, dtype=float) for g in grids]
+    n_s = len(orbits.entries)
+    requests, owner = [], []
+    for k, u in enumerate(us):
+        for a, b in blocks(n_s, u):
+            requests.append((u[a:b], float(u[0])))
+            owner.append((k, a, b))
+    failures = [{} for _ in us]
+    got = propagate_ecef_many(orbits, requests, [failures[k] for k, _, _ in owner])
+    # Component-first storage, as propagate_ecef's (the geometry reads contiguous planes).
+    out = [EarthFixedStates(u, np.empty((3, n_s, u.size)).transpose(1, 2, 0),
+                            np.empty((3, n_s, u.size)).transpose(1, 2, 0),
+                            np.empty((n_s, u.size), dtype=bool), f) for u, f in zip(us, failures)]
+    for (k, a, b), (pos, vel, ok) in zip(owner, got):
+        out[k].pos_ecef_m[:, a:b] = pos
+        out[k].vel_ecef_m_s[:, a:b] = vel
+        out[k].valid[:, a:b] = ok
+    return out
+
+
 def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] | np.ndarray,
             signals: SignalChoice = None, *, keep_states: bool = False,
-            failures: dict | None = None) -> Prediction:
+            failures: dict | None = None, states: EarthFixedStates | None = None) -> Prediction:
     """Azimuth, elevation, range, range rate, Doppler and Doppler rate of every satellite
     of ``orbits`` seen from ``site`` at ``times`` (TimeGrid, aware datetimes, or UTC POSIX s).
 
@@ -346,6 +405,8 @@ def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] |
     ``failures``: a caller that predicts a long window in pieces collects the propagation
     failures of every piece in one dict (see :func:`propagate_ecef`); the pieces then
     carry no failure warnings and the caller makes them once with :func:`failure_warnings`.
+    ``states``: the satellites' states over this very grid from :func:`earth_fixed_states`
+    (shared with other receivers), used instead of propagating.
     """
     if not len(orbits.entries):
         raise ComputationError("the orbit data holds no satellites")
@@ -359,24 +420,34 @@ def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] |
     n_s, n_t = len(orbits.entries), u.size
     out = {name: np.empty((n_s, n_t)) for name in _KEPT}
     valid = np.empty((n_s, n_t), dtype=bool)
-    states = (np.empty((n_s, n_t, 3)), np.empty((n_s, n_t, 3))) if keep_states else None
+    kept = (np.empty((n_s, n_t, 3)), np.empty((n_s, n_t, 3))) if keep_states else None
     mu = _mu_for(orbits)
     lam = SPEED_OF_LIGHT_M_S / carrier
     own = failures is None
     failures = {} if failures is None else failures
+    if states is not None:
+        if states.pos_ecef_m.shape[0] != n_s or not np.array_equal(states.unix_s, u):
+            raise ValueError("the shared states were made for other satellites or times")
+        for i, rec in states.failures.items():
+            mine = failures.setdefault(i, [0, rec[1], set()])
+            mine[0] += rec[0]
+            mine[2].update(rec[2])
     for a, b in blocks(n_s, u):
-        pos, vel, ok, _ = propagate_ecef(orbits, u[a:b], failures=failures, anchor_s=float(u[0]))
+        if states is None:
+            pos, vel, ok, _ = propagate_ecef(orbits, u[a:b], failures=failures, anchor_s=float(u[0]))
+        else:
+            pos, vel, ok = states.pos_ecef_m[:, a:b], states.vel_ecef_m_s[:, a:b], states.valid[:, a:b]
         here = site.take(slice(a, b)) if isinstance(site, SitePath) else site   # a moving receiver
         _geometry(pos, vel, mu, here, lam, out={name: v[:, a:b] for name, v in out.items()})
         valid[:, a:b] = ok
-        if states is not None:
-            states[0][:, a:b] = pos
-            states[1][:, a:b] = vel
+        if kept is not None:
+            kept[0][:, a:b] = pos
+            kept[1][:, a:b] = vel
     warnings = failure_warnings(orbits, failures, n_t) if own else []
     return Prediction(ids=orbits.ids, signal_ids=sig_ids, carrier_hz=carrier, times=grid,
                       site=site, valid=valid, warnings=list(orbits.warnings) + warnings,
-                      sat_pos_ecef_m=None if states is None else states[0],
-                      sat_vel_ecef_m_s=None if states is None else states[1], **out)
+                      sat_pos_ecef_m=None if kept is None else kept[0],
+                      sat_vel_ecef_m_s=None if kept is None else kept[1], **out)
 
 
 @dataclass(frozen=True)
