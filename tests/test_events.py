@@ -10,15 +10,17 @@ import pytest
 from core.files.demo import write_demo
 from core.files.scenario import load_scenario
 from core.ground.errors import InputError
+from core.ground.geodesy import Site
 from core.plan.events import (
     HOT_OSCILLATOR_UNCERTAINTY_PPB,
+    drive_geometry,
     plan_drive,
     reacquire_time_uncertainty_s,
     single_site_equivalent,
 )
-from core.plan.pipeline import make_plan, plan_to_json
+from core.plan.pipeline import load_satellites, make_plan, plan_to_json
 from core.search.windows import Uncertainty, doppler_windows
-from core.sky.predict import predict
+from core.sky.predict import earth_fixed_states, predict
 
 
 @pytest.fixture(scope="module")
@@ -52,6 +54,50 @@ def test_demo_loop_and_events(drive):
     hot = [e for e in dp.events if e.event.kind in ("hot", "reacquire")]
     warm = [e for e in dp.events if e.event.kind == "warm"]
     assert max(e.ttff_median_s for e in hot) < min(e.ttff_median_s for e in warm)
+
+
+PREDICTED = ("azimuth_deg", "elevation_deg", "range_m", "doppler_hz", "doppler_rate_hz_s",
+             "elevation_rate_deg_s", "sat_speed_m_s", "valid", "sat_pos_ecef_m", "sat_vel_ecef_m_s")
+
+
+def test_shared_propagation_is_each_events_own_prediction(demo_dir):
+    # The drive propagates the satellites once for all its events; each event's prediction
+    # must be bit for bit what predict gives for that event alone (its own grid, its own
+    # node lattice, the vehicle's path), warnings included.
+    sc = load_scenario(demo_dir / "demo_drive_scenario.toml")
+    geo = drive_geometry(sc)
+    _, by_system, _ = load_satellites(sc)
+    assert len(geo.events) >= 5
+    offsets = {round((eg.prepared.grid.unix_s[0] - sc.time.start_unix_s) % sc.time.step_s, 3)
+               for eg in geo.events}
+    assert len(offsets) >= 3          # events off the plan's lattice and off each other's
+    for eg in geo.events:
+        g = eg.prepared
+        own = predict(g.orbits, eg.motion.path, g.grid, signals=by_system, keep_states=True)
+        for name in PREDICTED:
+            assert np.array_equal(getattr(g.prediction, name), getattr(own, name), equal_nan=True), \
+                (eg.event.id, name)
+        assert g.prediction.warnings == own.warnings
+
+
+def test_shared_states_on_mixed_grids(demo_dir):
+    # Several grids at once (on and off the node lattice, non-uniform, one of several
+    # blocks): each gets exactly what predict propagates for it alone.
+    sc = load_scenario(demo_dir / "demo_drive_scenario.toml")
+    orbits, by_system, _ = load_satellites(sc)
+    s0 = sc.time.start_unix_s
+    grids = [s0 + 30.0 * np.arange(41), s0 + 748.27 + 30.0 * np.arange(41), s0 + 17.0 + 10.0 * np.arange(200),
+             s0 + np.array([0.0, 17.0, 200.0, 201.0, 5000.0]), s0 + np.arange(0.0, 7201.0, 2.0), np.array([s0 + 9.5])]
+    site = Site(sc.site.lat_deg, sc.site.lon_deg, sc.site.height_m)
+    shared = earth_fixed_states(orbits, grids)
+    for u, states in zip(grids, shared):
+        own = predict(orbits, site, u, signals=by_system, keep_states=True)
+        via = predict(orbits, site, u, signals=by_system, keep_states=True, states=states)
+        for name in PREDICTED:
+            assert np.array_equal(getattr(via, name), getattr(own, name), equal_nan=True), (u.size, name)
+        assert via.warnings == own.warnings
+    with pytest.raises(ValueError):
+        predict(orbits, site, grids[1], signals=by_system, states=shared[0])
 
 
 def test_canyon_blocks_satellites_across_the_street(drive):

@@ -57,7 +57,7 @@ from ..ground.geodesy import Site
 from ..ground.timeutil import iso_z, time_grid
 from ..search.motion import MotionUncertainty, RouteMotion, route_motion
 from ..search.windows import max_doppler_anywhere_hz, shift_summary
-from ..sky.predict import passes, predict
+from ..sky.predict import earth_fixed_states, passes, predict
 from ..sky.result_guard import guard_prediction
 from ..sky.route import Route, RouteStates, SpeedStretch, read_route_file, time_route
 from ..sky.surroundings import (
@@ -528,12 +528,11 @@ def drive_geometry(sc: Scenario, progress: ProgressFn | None = None,
     healthy = np.array([e.info.healthy for e in orbits.entries])
     horizon_s = (drive.spec.event_horizon_min if drive is not None else 15.0) * 60.0
     step = sc.time.step_s
-    out: list[EventGeometry] = []
-    for n, ev in enumerate(events):
-        if cancel is not None and cancel():
-            raise Cancelled()
-        if progress is not None:
-            progress(n / max(len(events), 1), f"geometry of {ev.id} ({ev.kind})")
+    # Every event's grid first: the satellites' Earth-fixed states do not depend on the
+    # receiver, so all events share one propagation (core.sky.predict.earth_fixed_states:
+    # each event gets exactly what its own prediction would propagate).
+    grids, grid_warn = [], []
+    for ev in events:
         t0 = ev.unix_s
         t1 = min(t0 + horizon_s, sc.time.end_unix_s)
         ev_warn: list[str] = []
@@ -541,10 +540,21 @@ def drive_geometry(sc: Scenario, progress: ProgressFn | None = None,
             t1 = t0 + 2 * step
             ev_warn.append(f"{ev.id} is less than two plan steps before the window's end; planned "
                            f"over {2 * step:g} s")
-        grid = time_grid(datetime.fromtimestamp(t0, UTC), datetime.fromtimestamp(t1, UTC), step)
-        tp = _time.perf_counter()
+        grids.append(time_grid(datetime.fromtimestamp(t0, UTC), datetime.fromtimestamp(t1, UTC), step))
+        grid_warn.append((t1, ev_warn))
+    tp = _time.perf_counter()
+    shared = earth_fixed_states(orbits, grids) if events else []
+    shared_s = (_time.perf_counter() - tp) / max(len(events), 1)
+    out: list[EventGeometry] = []
+    for n, (ev, grid, (t1, ev_warn), states) in enumerate(zip(events, grids, grid_warn, shared)):
+        if cancel is not None and cancel():
+            raise Cancelled()
+        if progress is not None:
+            progress(n / max(len(events), 1), f"geometry of {ev.id} ({ev.kind})")
+        t0 = ev.unix_s
+        tp = _time.perf_counter() - shared_s
         motion = route_motion(route, grid.unix_s, replace(mu, along_m=ev.knowledge.along_route_m))
-        pred = predict(orbits, motion.path, grid, signals=by_system, keep_states=True)
+        pred = predict(orbits, motion.path, grid, signals=by_system, keep_states=True, states=states)
         k = ev.knowledge
         cold = ev.kind == "cold"
         dt = 0.0 if k.time_uncertainty_s is None else k.time_uncertainty_s
