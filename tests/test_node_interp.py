@@ -297,3 +297,29 @@ def test_almanac_interpolation_within_its_bound_on_every_real_almanac():
             assert dr <= br and dv <= bv, (path.name, k, h, dr, br, dv, bv)
         assert ok.all()
     assert used > 200
+
+
+@requires_orbit_data
+def test_a_piece_on_the_whole_grids_lattice_equals_the_whole_grid():
+    """A caller predicting a window piece by piece (core.plan.long_window, acqplan doppler)
+    passes the whole grid's first time as node_anchor_s: a piece starting inside a node
+    interval then equals the whole grid's columns to rounding; on its own lattice it
+    differs by the interpolation error (sub-millimetre, above rounding) [calc]."""
+    from core.ground.geodesy import Site
+    from core.ground.timeutil import time_grid
+    from core.orbits.readers import load_orbit_files
+    from core.sky.predict import predict
+
+    orbits = load_orbit_files([ORBIT_DATA / "tle" / n for n in
+                               ("perylune_gps-ops_2020-04-01.txt", "perylune_beidou_2020-04-01.txt")])
+    site = Site(47.37, 8.54, 420.0)
+    grid = time_grid(datetime(2020, 4, 1, tzinfo=UTC), datetime(2020, 4, 1, 6, tzinfo=UTC), 30.0)
+    u = grid.unix_s
+    whole = predict(orbits, site, grid)
+    a, b = 7, 500                                     # 600 s nodes: 20 samples an interval
+    same = predict(orbits, site, u[a:b], node_anchor_s=float(u[0]))
+    own = predict(orbits, site, u[a:b])
+    assert np.allclose(same.range_m, whole.range_m[:, a:b], rtol=1e-13, atol=1e-7)
+    assert np.allclose(same.doppler_hz, whole.doppler_hz[:, a:b], rtol=1e-12, atol=1e-9)
+    d = np.max(np.abs(own.range_m - whole.range_m[:, a:b]))
+    assert 1e-7 < d < POSITION_TOLERANCE_M * 2

@@ -5,8 +5,9 @@ window (several hundred bytes a satellite-step), so it is limited to
 PLAN_MAX_SATELLITE_STEPS. :func:`make_long_plan` gives the same plan for any length:
 
 1. The scenario's grid is cut into blocks of about LONG_PLAN_BLOCK_SAMPLES satellite-samples,
-   each a whole number of :func:`core.sky.predict.predict`'s own blocks, so that every
-   sample is predicted exactly as by one call over the whole grid. Each block is joined
+   each a whole number of :func:`core.sky.predict.predict`'s own blocks and predicted on
+   the whole grid's node lattice (``node_anchor_s``), so that every sample is predicted
+   exactly as by one call over the whole grid. Each block is joined
    with the last three samples of the block before and the first three of the block after
    (the windows' time derivatives are central differences three deep), so its windows
    equal the whole grid's.
@@ -195,7 +196,8 @@ def make_long_plan(sc: Scenario, progress: ProgressFn | None = None,
     def pred_of(j: int) -> Prediction:
         if j not in cache:
             a, b = outer[j]
-            cache[j] = predict(orbits, site, u[a:b], signals=by_system, failures=failures)
+            cache[j] = predict(orbits, site, u[a:b], signals=by_system, failures=failures,
+                               node_anchor_s=float(u[0]))
         return cache[j]
 
     finder = PassFinder(orbits.ids, mask)

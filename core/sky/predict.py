@@ -393,7 +393,8 @@ def earth_fixed_states(orbits: OrbitSet, grids: Sequence[TimeGrid | np.ndarray])
 
 def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] | np.ndarray,
             signals: SignalChoice = None, *, keep_states: bool = False,
-            failures: dict | None = None, states: EarthFixedStates | None = None) -> Prediction:
+            failures: dict | None = None, states: EarthFixedStates | None = None,
+            node_anchor_s: float | None = None) -> Prediction:
     """Azimuth, elevation, range, range rate, Doppler and Doppler rate of every satellite
     of ``orbits`` seen from ``site`` at ``times`` (TimeGrid, aware datetimes, or UTC POSIX s).
 
@@ -407,6 +408,9 @@ def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] |
     carry no failure warnings and the caller makes them once with :func:`failure_warnings`.
     ``states``: the satellites' states over this very grid from :func:`earth_fixed_states`
     (shared with other receivers), used instead of propagating.
+    ``node_anchor_s``: a time on the node interpolation lattice (default the first of
+    ``times``); a caller predicting a window in pieces passes its whole grid's first time,
+    so that every piece interpolates from the nodes one call over the whole grid would use.
     """
     if not len(orbits.entries):
         raise ComputationError("the orbit data holds no satellites")
@@ -432,9 +436,10 @@ def predict(orbits: OrbitSet, site: Site, times: TimeGrid | Sequence[datetime] |
             mine = failures.setdefault(i, [0, rec[1], set()])
             mine[0] += rec[0]
             mine[2].update(rec[2])
+    anchor = float(u[0]) if node_anchor_s is None else float(node_anchor_s)
     for a, b in blocks(n_s, u):
         if states is None:
-            pos, vel, ok, _ = propagate_ecef(orbits, u[a:b], failures=failures, anchor_s=float(u[0]))
+            pos, vel, ok, _ = propagate_ecef(orbits, u[a:b], failures=failures, anchor_s=anchor)
         else:
             pos, vel, ok = states.pos_ecef_m[:, a:b], states.vel_ecef_m_s[:, a:b], states.valid[:, a:b]
         here = site.take(slice(a, b)) if isinstance(site, SitePath) else site   # a moving receiver

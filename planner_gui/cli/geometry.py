@@ -214,7 +214,8 @@ def _doppler_streamed(args, orbits, site, start, end) -> int:
     no_position: dict[int, str] = {}
     ever = np.zeros(n_s, dtype=bool)
     for a in range(0, u.size, per):
-        pred = predict(orbits, site, u[a:a + per], signals=args.signal, failures=failures)
+        pred = predict(orbits, site, u[a:a + per], signals=args.signal, failures=failures,
+                       node_anchor_s=float(u[0]))
         ever |= pred.valid.any(axis=1)
         for s, why in implausible_satellites(orbits, pred).items():
             (reasons if pred.valid[s].any() else no_position).setdefault(s, why)
@@ -237,7 +238,8 @@ def _doppler_streamed(args, orbits, site, start, end) -> int:
             w.writerow(DOPPLER_COLUMNS)
             for a in range(0, u.size, per):
                 g = TimeGrid(u[a:a + per])
-                pred = predict(kept, site, g, signals=args.signal, failures={})
+                pred = predict(kept, site, g, signals=args.signal, failures={},
+                               node_anchor_s=float(u[0]))
                 iso = g.iso()
                 rows = []
                 for k, sid in enumerate(pred.ids):
@@ -258,7 +260,8 @@ def _doppler_streamed(args, orbits, site, start, end) -> int:
             opened = False
             for a in range(0, u.size, per):
                 g = TimeGrid(u[a:a + per])
-                pred = predict(one, site, g, signals=args.signal, failures={})
+                pred = predict(one, site, g, signals=args.signal, failures={},
+                               node_anchor_s=float(u[0]))
                 show = _shown(pred, 0, args)
                 if not show.size:
                     continue
