@@ -78,18 +78,22 @@ PlanCancelled = Cancelled   # raised inside make_plan when the cancel callback r
 
 # --- geometry, computed once per orbit/site/time/signal/mask set ---------------------
 
-def geometry_key(sc: Scenario) -> tuple:
-    """Everything the propagation depends on; equal keys allow reuse."""
-    paths = sc.resolved_orbit_files()
-    mapping = sc.resolved_mapping()
-    files = tuple(str(p) for p in paths)
-    mtimes = []
-    for p in paths + ([mapping] if mapping else []):
-        try:
-            mtimes.append(p.stat().st_mtime_ns)
-        except OSError:
-            mtimes.append(None)
-    return (files, str(mapping), tuple(mtimes), sc.site.lat_deg, sc.site.lon_deg,
+def geometry_key(sc: Scenario, files: tuple | None = None) -> tuple:
+    """Everything the propagation depends on; equal keys allow reuse. ``files``: the
+    first three items (orbit files, mapping, their times) of a key just made for a
+    scenario with the same orbit files and base directory (a drive's events), so that
+    the files are not looked up again."""
+    if files is None:
+        paths = sc.resolved_orbit_files()
+        mapping = sc.resolved_mapping()
+        mtimes = []
+        for p in paths + ([mapping] if mapping else []):
+            try:
+                mtimes.append(p.stat().st_mtime_ns)
+            except OSError:
+                mtimes.append(None)
+        files = (tuple(str(p) for p in paths), str(mapping), tuple(mtimes))
+    return (*files, sc.site.lat_deg, sc.site.lon_deg,
             sc.site.height_m, sc.time.start_unix_s, sc.time.end_unix_s, sc.time.step_s,
             sc.time.uncertainty_s, tuple(sc.receiver.signals), sc.mask.elevation_deg)
 
