@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -20,7 +21,7 @@ from core.plan.events import (
 )
 from core.plan.pipeline import load_satellites, make_plan, plan_to_json
 from core.search.windows import Uncertainty, doppler_windows
-from core.sky.predict import earth_fixed_states, predict
+from core.sky.predict import earth_fixed_states, passes, predict
 
 
 @pytest.fixture(scope="module")
@@ -78,6 +79,11 @@ def test_shared_propagation_is_each_events_own_prediction(demo_dir):
             assert np.array_equal(getattr(g.prediction, name), getattr(own, name), equal_nan=True), \
                 (eg.event.id, name)
         assert g.prediction.warnings == own.warnings
+        # The passes, refined for all events in one bisection, are each event's own.
+        seen = replace(own, elevation_deg=np.where(eg.blocked, -90.0, own.elevation_deg))
+        alone = passes(g.orbits, eg.start_site, g.grid.start_unix_s, g.grid.end_unix_s,
+                       mask_deg=sc.mask.elevation_deg, prediction=seen)
+        assert alone and g.passes == alone, eg.event.id
 
 
 def test_shared_states_on_mixed_grids(demo_dir):

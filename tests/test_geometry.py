@@ -349,3 +349,42 @@ def test_builtin_timescale_equals_skyfields_public_one():
         assert np.array_equal(t_ref.dut1, t_ours.dut1)
         assert np.array_equal(t_ref.tt, t_ours.tt)
         assert np.array_equal(t_ref.ut1, t_ours.ut1)
+
+
+def test_hermite_roots_of_both_kinds_in_one_bisection():
+    """Crossings (value = level) and culminations (slope = 0) refined together must give
+    bit for bit what each kind gives alone, and roots of the cubic Hermite interpolant
+    [reference: numpy.polynomial's roots of the same cubic in monomial form]."""
+    from numpy.polynomial import Polynomial
+
+    from core.sky.predict import _hermite_roots
+
+    rng = np.random.default_rng(8)
+    n, level = 300, 10.0
+    t0 = rng.uniform(1.7e9, 1.8e9, n)
+    t1 = t0 + rng.uniform(10.0, 600.0, n)
+    h = t1 - t0
+    deriv = rng.random(n) < 0.4
+    # Crossings: the level between the end values; culminations: rising then falling.
+    f0 = np.where(deriv, rng.uniform(0, 80, n), level + rng.uniform(-5, -0.1, n))
+    f1 = np.where(deriv, rng.uniform(0, 80, n), level + rng.uniform(0.1, 5, n))
+    d0 = np.where(deriv, rng.uniform(1e-4, 1e-2, n), rng.uniform(0, 1e-2, n))
+    d1 = np.where(deriv, -rng.uniform(1e-4, 1e-2, n), rng.uniform(0, 1e-2, n))
+    t_mix, v_mix = _hermite_roots(t0, t1, f0, f1, d0, d1, level=level, derivative=deriv)
+    t_c, v_c = _hermite_roots(t0[~deriv], t1[~deriv], f0[~deriv], f1[~deriv], d0[~deriv], d1[~deriv],
+                              level=level)
+    t_d, v_d = _hermite_roots(t0[deriv], t1[deriv], f0[deriv], f1[deriv], d0[deriv], d1[deriv],
+                              derivative=True)
+    assert np.array_equal(t_mix[~deriv], t_c) and np.array_equal(v_mix[~deriv], v_c)
+    assert np.array_equal(t_mix[deriv], t_d) and np.array_equal(v_mix[deriv], v_d)
+    for k in range(n):
+        # The cubic in x = (t - t0) / h: Hermite basis with slopes scaled by h.
+        a0, a1 = f0[k], h[k] * d0[k]
+        a2 = 3 * (f1[k] - f0[k]) - h[k] * (2 * d0[k] + d1[k])
+        a3 = 2 * (f0[k] - f1[k]) + h[k] * (d0[k] + d1[k])
+        p = Polynomial([a0 - (0.0 if deriv[k] else level), a1, a2, a3])
+        r = (p.deriv() if deriv[k] else p).roots()
+        r = r[np.abs(r.imag) < 1e-9].real
+        x = (t_mix[k] - t0[k]) / h[k]
+        assert np.min(np.abs(r - x)) * h[k] < 1e-6, k           # root time within 1 us
+        assert v_mix[k] == pytest.approx(Polynomial([a0, a1, a2, a3])(x), abs=1e-6)   # t rounding at 1.8e9 s

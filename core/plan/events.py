@@ -57,7 +57,7 @@ from ..ground.geodesy import Site
 from ..ground.timeutil import iso_z, time_grid
 from ..search.motion import MotionUncertainty, RouteMotion, route_motion
 from ..search.windows import max_doppler_anywhere_hz, shift_summary
-from ..sky.predict import earth_fixed_states, passes, predict
+from ..sky.predict import earth_fixed_states, passes_of_predictions, predict
 from ..sky.result_guard import guard_prediction
 from ..sky.route import Route, RouteStates, SpeedStretch, read_route_file, time_route
 from ..sky.surroundings import (
@@ -545,14 +545,14 @@ def drive_geometry(sc: Scenario, progress: ProgressFn | None = None,
     tp = _time.perf_counter()
     shared = earth_fixed_states(orbits, grids) if events else []
     shared_s = (_time.perf_counter() - tp) / max(len(events), 1)
-    out: list[EventGeometry] = []
-    for n, (ev, grid, (t1, ev_warn), states) in enumerate(zip(events, grids, grid_warn, shared)):
+    files_key = geometry_key(sc)[:3]          # the events' scenarios read the same orbit files
+    made, seen_all = [], []
+    for n, (ev, grid, states) in enumerate(zip(events, grids, shared)):
         if cancel is not None and cancel():
             raise Cancelled()
         if progress is not None:
             progress(n / max(len(events), 1), f"geometry of {ev.id} ({ev.kind})")
-        t0 = ev.unix_s
-        tp = _time.perf_counter() - shared_s
+        tp = _time.perf_counter()
         motion = route_motion(route, grid.unix_s, replace(mu, along_m=ev.knowledge.along_route_m))
         pred = predict(orbits, motion.path, grid, signals=by_system, keep_states=True, states=states)
         k = ev.knowledge
@@ -561,18 +561,28 @@ def drive_geometry(sc: Scenario, progress: ProgressFn | None = None,
         shifted = None if cold else shift_summary(orbits, motion.path, grid, dt, by_system)
         sur = surroundings_at(motion.nominal.distance_m, motion.nominal.heading_deg, pred.azimuth_deg,
                               pred.elevation_deg, stretches, horizon)
+        # Passes through the surroundings: a satellite behind a building or in a tunnel is
+        # "down" there (the channel timeline takes rise and set from these); found for all
+        # events at once below.
+        seen_all.append(replace(pred, elevation_deg=np.where(sur.blocked, -90.0, pred.elevation_deg)))
+        made.append((motion, pred, shifted, sur, _time.perf_counter() - tp))
+    tp = _time.perf_counter()
+    found_all = passes_of_predictions(seen_all, sc.mask.elevation_deg)
+    shared_s += (_time.perf_counter() - tp) / max(len(events), 1)
+    out: list[EventGeometry] = []
+    for ev, grid, (t1, ev_warn), (motion, pred, shifted, sur, spent_s), found in zip(
+            events, grids, grid_warn, made, found_all):
+        tp = _time.perf_counter()
+        t0 = ev.unix_s
+        cold = ev.kind == "cold"
         above = pred.valid & (pred.elevation_deg >= sc.mask.elevation_deg) & healthy[:, None]
         visible = above & ~sur.blocked
         start_site = motion.path.at(0)
         grid_end = float(grid.unix_s[-1])
         sc_ev = _event_scenario(sc, ev, t0, grid_end, start_site)
-        # Passes through the surroundings: a satellite behind a building or in a tunnel is
-        # "down" there (the channel timeline takes rise and set from these).
-        seen = replace(pred, elevation_deg=np.where(sur.blocked, -90.0, pred.elevation_deg))
-        found = passes(orbits, start_site, grid.start_unix_s, grid.end_unix_s, mask_deg=sc.mask.elevation_deg,
-                       prediction=seen)
-        g = PreparedGeometry(geometry_key(sc_ev), orbits, start_site, grid, pred, shifted, found,
-                             pred.signal_ids, visible, list(pred.warnings), _time.perf_counter() - tp,
+        g = PreparedGeometry(geometry_key(sc_ev, files=files_key), orbits, start_site, grid, pred, shifted,
+                             found, pred.signal_ids, visible, list(pred.warnings),
+                             shared_s + spent_s + _time.perf_counter() - tp,
                              motion=motion, extra_loss_db=sur.extra_loss_db)
         if cold:
             # A cold receiver knows no satellite's orbit: each searches its system's widest range.

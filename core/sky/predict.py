@@ -494,13 +494,20 @@ def _hermite_roots(t0, t1, f0, f1, d0, d1, level=0.0, derivative=False, iteratio
     """Root in [t0, t1] of the cubic Hermite interpolant of f (values f0, f1 and slopes
     d0, d1 per second at the ends) minus ``level``, or of its derivative; returns the
     root times and the interpolant's value there. Vectorized bisection on the cubic
-    (the grid test that selected the interval guarantees the sign change)."""
+    (the grid test that selected the interval guarantees the sign change).
+    ``derivative`` may be an array, one flag per root (both kinds in one bisection, each
+    root exactly as alone)."""
     h = t1 - t0
+    deriv = np.asarray(derivative, dtype=bool)
+    if deriv.ndim and deriv.size and (deriv.all() or not deriv.any()):
+        deriv = np.asarray(bool(deriv[0]))
 
     def g(x):
-        if derivative:
-            return _hermite_slope(x, h, f0, f1, d0, d1)
-        return _hermite_value(x, h, f0, f1, d0, d1) - level
+        if deriv.ndim == 0:
+            if deriv:
+                return _hermite_slope(x, h, f0, f1, d0, d1)
+            return _hermite_value(x, h, f0, f1, d0, d1) - level
+        return np.where(deriv, _hermite_slope(x, h, f0, f1, d0, d1), _hermite_value(x, h, f0, f1, d0, d1) - level)
 
     lo, hi = np.zeros_like(t0), np.ones_like(t0)
     s_lo = np.sign(g(lo))
@@ -521,27 +528,44 @@ PASSES_CHUNK_SAMPLES = 1 << 20
 def _chunk_events(pred: Prediction, mask_deg: float):
     """Crossings of the mask and culminations on one prediction's grid (see passes):
     (sat, time, rising, azimuth) per crossing and (sat, time, elevation) per culmination."""
-    u = pred.times.unix_s
-    el = np.where(pred.valid, pred.elevation_deg, -90.0)
-    above = el >= mask_deg
-    r_ok = np.where(pred.valid, pred.elevation_rate_deg_s, 0.0)
-    # Mask crossings between grid points (both ends propagated).
-    both = pred.valid[:, 1:] & pred.valid[:, :-1]
-    s_idx, t_idx = np.nonzero((above[:, 1:] != above[:, :-1]) & both)
-    cross, cross_el = _hermite_roots(u[t_idx], u[t_idx + 1], el[s_idx, t_idx],
-                                     el[s_idx, t_idx + 1], r_ok[s_idx, t_idx],
-                                     r_ok[s_idx, t_idx + 1], level=mask_deg)
-    rising = ~above[s_idx, t_idx]
-    # Azimuth at the crossing: linear between the grid points, the short way round.
-    f0, f1 = pred.azimuth_deg[s_idx, t_idx], pred.azimuth_deg[s_idx, t_idx + 1]
-    x = (cross - u[t_idx]) / (u[t_idx + 1] - u[t_idx])
-    f1 = f0 + ((f1 - f0 + 180.0) % 360.0 - 180.0)
-    cross_az = (f0 + x * (f1 - f0)) % 360.0
-    # Culminations: elevation rate changes from + to -.
-    cs, ct = np.nonzero((r_ok[:, :-1] > 0) & (r_ok[:, 1:] <= 0) & both)
-    culm, culm_el = _hermite_roots(u[ct], u[ct + 1], el[cs, ct], el[cs, ct + 1], r_ok[cs, ct],
-                                   r_ok[cs, ct + 1], derivative=True)
-    return (s_idx, cross, rising, cross_az, cross_el), (cs, culm, culm_el), (el, above)
+    return _chunk_events_many([pred], mask_deg)[0]
+
+
+def _chunk_events_many(preds: Sequence[Prediction], mask_deg: float):
+    """:func:`_chunk_events` of several predictions, their roots found in one bisection
+    (each root exactly as alone)."""
+    found, args = [], []
+    for pred in preds:
+        u = pred.times.unix_s
+        el = np.where(pred.valid, pred.elevation_deg, -90.0)
+        above = el >= mask_deg
+        r_ok = np.where(pred.valid, pred.elevation_rate_deg_s, 0.0)
+        # Mask crossings between grid points (both ends propagated), and culminations:
+        # elevation rate changes from + to -.
+        both = pred.valid[:, 1:] & pred.valid[:, :-1]
+        s_idx, t_idx = np.nonzero((above[:, 1:] != above[:, :-1]) & both)
+        cs, ct = np.nonzero((r_ok[:, :-1] > 0) & (r_ok[:, 1:] <= 0) & both)
+        rs, rt = np.concatenate((s_idx, cs)), np.concatenate((t_idx, ct))
+        args.append((u[rt], u[rt + 1], el[rs, rt], el[rs, rt + 1], r_ok[rs, rt], r_ok[rs, rt + 1],
+                     np.arange(rs.size) >= s_idx.size))
+        found.append((pred, u, el, above, s_idx, t_idx, cs))
+    *ends, deriv = (np.concatenate(x) for x in zip(*args))
+    roots, root_el = _hermite_roots(*ends, level=mask_deg, derivative=deriv)
+    out = []
+    at = 0
+    for pred, u, el, above, s_idx, t_idx, cs in found:
+        n_c, n_r = s_idx.size, s_idx.size + cs.size
+        cross, cross_el = roots[at:at + n_c], root_el[at:at + n_c]
+        culm, culm_el = roots[at + n_c:at + n_r], root_el[at + n_c:at + n_r]
+        at += n_r
+        rising = ~above[s_idx, t_idx]
+        # Azimuth at the crossing: linear between the grid points, the short way round.
+        f0, f1 = pred.azimuth_deg[s_idx, t_idx], pred.azimuth_deg[s_idx, t_idx + 1]
+        x = (cross - u[t_idx]) / (u[t_idx + 1] - u[t_idx])
+        f1 = f0 + ((f1 - f0 + 180.0) % 360.0 - 180.0)
+        cross_az = (f0 + x * (f1 - f0)) % 360.0
+        out.append(((s_idx, cross, rising, cross_az, cross_el), (cs, culm, culm_el), (el, above)))
+    return out
 
 
 def _first_max(values: list[float]) -> int:
@@ -597,6 +621,18 @@ def passes(orbits: OrbitSet, site: Site, start: datetime | float, end: datetime 
     return finder.passes()
 
 
+def passes_of_predictions(predictions: Sequence[Prediction], mask_deg: float = 10.0) -> list[list[Pass]]:
+    """``passes(..., prediction=p)`` of every prediction (each over its own grid), for all
+    at once: the crossings and culminations of all are refined in one bisection, each
+    exactly as alone (several receivers, such as a drive's events)."""
+    out = []
+    for pred, events in zip(predictions, _chunk_events_many(predictions, mask_deg)):
+        finder = PassFinder(pred.ids, mask_deg)
+        finder.add(pred, events)
+        out.append(finder.passes())
+    return out
+
+
 class PassFinder:
     """The passes of :func:`passes` from a window's predictions given piece by piece, in
     time order, each piece starting at the last time of the one before (so that every grid
@@ -609,9 +645,9 @@ class PassFinder:
         self.culminations: list = []
         self.u_first = self.u_last = None
 
-    def add(self, pred: Prediction) -> tuple[np.ndarray, np.ndarray]:
+    def add(self, pred: Prediction, _events=None) -> tuple[np.ndarray, np.ndarray]:
         """Take the next piece; returns its mask crossings (satellite index, time)."""
-        cross_, culm_, (el, above) = _chunk_events(pred, self.mask_deg)
+        cross_, culm_, (el, above) = _chunk_events(pred, self.mask_deg) if _events is None else _events
         self.crossings.append(cross_)
         self.culminations.append(culm_)
         if self.u_first is None:
