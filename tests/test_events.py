@@ -86,6 +86,37 @@ def test_shared_propagation_is_each_events_own_prediction(demo_dir):
         assert alone and g.passes == alone, eg.event.id
 
 
+def test_shared_propagation_when_the_guard_drops_a_satellite(demo_dir, monkeypatch):
+    # A record corrupted after reading (the readers refuse it; the guard is the second
+    # line, tests/test_result_guard.py): the coarse look drops it, and the events are
+    # predicted, exactly as alone, over the satellites kept.
+    import core.plan.events as events_mod
+
+    real = events_mod.load_satellites
+
+    def corrupted(sc):
+        orbits, by_system, warnings = real(sc)
+        k = next(i for i, e in enumerate(orbits.entries) if e.almanac is not None)
+        e = orbits.entries[k]
+        orbits.entries[k] = replace(e, almanac=replace(e.almanac, omega_dot_rad_s=1.570796327))
+        return orbits, by_system, warnings
+
+    monkeypatch.setattr(events_mod, "load_satellites", corrupted)
+    sc = load_scenario(demo_dir / "demo_drive_scenario.toml")
+    geo = drive_geometry(sc)
+    dropped = [w for w in geo.warnings if "satellite dropped" in w]
+    assert len(dropped) == 1
+    gone = dropped[0].split(" ")[0]
+    _, by_system, _ = real(sc)
+    for eg in geo.events:
+        g = eg.prepared
+        assert gone not in g.orbits.ids
+        own = predict(g.orbits, eg.motion.path, g.grid, signals=by_system, keep_states=True)
+        for name in PREDICTED:
+            assert np.array_equal(getattr(g.prediction, name), getattr(own, name), equal_nan=True), \
+                (eg.event.id, name)
+
+
 def test_shared_states_on_mixed_grids(demo_dir):
     # Several grids at once (on and off the node lattice, non-uniform, one of several
     # blocks): each gets exactly what predict propagates for it alone.

@@ -518,19 +518,8 @@ def drive_geometry(sc: Scenario, progress: ProgressFn | None = None,
         warnings.append("the drive has no events: add [[event]] entries or an outage stretch")
     orbits, by_system, sel_warn = load_satellites(sc)
     warnings += sel_warn
-    # Satellites whose geometry no orbit of their system allows are dropped once, from a
-    # coarse look over the whole window (core.sky.result_guard).
-    coarse = time_grid(sc.time.start, sc.time.end, max(sc.time.step_s, 600.0))
-    orbits, _, guard_warn = guard_prediction(
-        orbits, predict(orbits, Site(sc.site.lat_deg, sc.site.lon_deg, sc.site.height_m), coarse,
-                        signals=by_system))
-    warnings += guard_warn
-    healthy = np.array([e.info.healthy for e in orbits.entries])
     horizon_s = (drive.spec.event_horizon_min if drive is not None else 15.0) * 60.0
     step = sc.time.step_s
-    # Every event's grid first: the satellites' Earth-fixed states do not depend on the
-    # receiver, so all events share one propagation (core.sky.predict.earth_fixed_states:
-    # each event gets exactly what its own prediction would propagate).
     grids, grid_warn = [], []
     for ev in events:
         t0 = ev.unix_s
@@ -542,9 +531,22 @@ def drive_geometry(sc: Scenario, progress: ProgressFn | None = None,
                            f"over {2 * step:g} s")
         grids.append(time_grid(datetime.fromtimestamp(t0, UTC), datetime.fromtimestamp(t1, UTC), step))
         grid_warn.append((t1, ev_warn))
+    # The satellites' Earth-fixed states do not depend on the receiver: the coarse look
+    # below and all events share one propagation (core.sky.predict.earth_fixed_states:
+    # each grid gets exactly what its own prediction would propagate).
     tp = _time.perf_counter()
-    shared = earth_fixed_states(orbits, grids) if events else []
+    coarse = time_grid(sc.time.start, sc.time.end, max(sc.time.step_s, 600.0))
+    shared = earth_fixed_states(orbits, [coarse] + grids)
+    # Satellites whose geometry no orbit of their system allows are dropped once, from a
+    # coarse look over the whole window (core.sky.result_guard).
+    kept, _, guard_warn = guard_prediction(
+        orbits, predict(orbits, Site(sc.site.lat_deg, sc.site.lon_deg, sc.site.height_m), coarse,
+                        signals=by_system, states=shared[0]))
+    warnings += guard_warn
+    shared = shared[1:] if kept is orbits else earth_fixed_states(kept, grids)
+    orbits = kept
     shared_s = (_time.perf_counter() - tp) / max(len(events), 1)
+    healthy = np.array([e.info.healthy for e in orbits.entries])
     files_key = geometry_key(sc)[:3]          # the events' scenarios read the same orbit files
     made, seen_all = [], []
     for n, (ev, grid, states) in enumerate(zip(events, grids, shared)):
