@@ -68,6 +68,18 @@ def test_threshold_matches_scipy_gammainccinv():
     assert _rel(special.gammaincc(n, tails.upper_gamma_inv(n, p)), p) < 1e-12
 
 
+def test_threshold_of_equal_elements_and_of_an_exact_root():
+    # An array whose elements are all alike took the path where one Newton step lands on
+    # the root exactly (g == 0) for every element at once; each element must still equal
+    # scipy's gammainccinv [reference library], as must a lone element that lands exactly.
+    for n in (1, 2, 5, 37, 1000):
+        for p in (1e-12, 1e-8, 1e-3, 0.3, 0.9):
+            got = tails.upper_gamma_inv(np.full(3, float(n)), np.full(3, p))
+            assert _rel(got, np.full(3, special.gammainccinv(n, p))) < 1e-14, (n, p)
+    got = tails.upper_gamma_inv(np.array([1.0, 2.0, 1.0]), np.full(3, 1e-8))
+    assert _rel(got, special.gammainccinv([1, 2, 1], 1e-8)) < 1e-14
+
+
 def test_threshold_n1_and_shapes():
     # N = 1: Q(1, t) = exp(-t) [standard result]
     for p in (0.5, 1e-3, 1e-12):

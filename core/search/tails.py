@@ -234,9 +234,11 @@ def upper_gamma_inv(n, p) -> np.ndarray:
         new = t + step
         bad = ~np.isfinite(new) | (new <= lo) | (new >= hi)
         new = np.where(bad, 0.5 * (lo + hi), new)
-        done = np.abs(new - t) <= 4e-16 * np.abs(new)
+        exact = g == 0                   # t is the root itself: keep it (a bisection would leave it)
+        new = np.where(exact, t, new)
+        done = exact | (np.abs(new - t) <= 4e-16 * np.abs(new))
         t = new
-        if np.all(done | (g == 0)):
+        if np.all(done):
             break
     return t.reshape(shape)
 
