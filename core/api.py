@@ -32,6 +32,7 @@ _PUBLIC: dict[str, str] = {
     "iso_utc": "core.ground.display",
     "hz_text": "core.ground.display",
     "hz_range_text": "core.ground.display",
+    "duration_text": "core.ground.display",
     "state_word": "core.ground.display",
     "STATE_MEANING": "core.ground.display",
     "gps_week_tow": "core.ground.display",
@@ -180,6 +181,7 @@ if TYPE_CHECKING:  # the same names, for type checkers and editors
     from core.ground.display import (  # noqa: F401
         STATE_MEANING,
         clock_text,
+        duration_text,
         gps_text,
         gps_week_tow,
         hz_range_text,

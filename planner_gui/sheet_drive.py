@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import math
 
+from core.api import duration_text
 from core.files.plan_export import SearchEntry, search_entries
 from planner_gui.sheet_layout import INK_FAINT, INK_SOFT, PANEL, PANEL_DARK, Page
 
@@ -170,7 +171,7 @@ def event_facts(ctx, ev) -> list[tuple[str, str]]:
         when += f" · {c.local_hms(t)}"
     when += f" · {c.gps(t)}"
     knows = []
-    knows.append("time: nothing" if k.time_uncertainty_s is None else f"time ±{k.time_uncertainty_s:g} s")
+    knows.append("time: nothing" if k.time_uncertainty_s is None else f"time ±{duration_text(k.time_uncertainty_s)}")
     knows.append("position: nothing" if k.horizontal_uncertainty_km is None
                  else f"position ±{k.horizontal_uncertainty_km:g} km, ±{k.vertical_uncertainty_m:g} m up"
                  + (f", ±{k.along_route_m / 1000.0:.2f} km along the route" if k.along_route_m else ""))

@@ -262,3 +262,13 @@ def test_doppler_view_keeps_galileo_beidou_glonass_apart_without_red_green(demo_
     w.model.select(sat)
     assert w.doppler.selected_label.isVisible() and w.doppler.selected_label.toPlainText() == sat
     assert np.isfinite(w.doppler.selected_line.yData).any()
+
+
+def test_duration_text_picks_a_readable_unit():
+    # common practice: SI prefixes, three significant digits; never an exponent
+    assert display.duration_text(2.9584e-06) == "2.96 µs"
+    assert display.duration_text(0.04) == "40 ms"
+    assert display.duration_text(2.0) == "2 s"
+    assert display.duration_text(600.0) == "600 s"
+    assert display.duration_text(0.0) == "0 s"
+    assert "e" not in display.duration_text(1.234e-7)

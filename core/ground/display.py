@@ -91,6 +91,21 @@ def hz_text(v: float, signed: bool = False, unicode_minus: bool = True) -> str:
     return text.replace("-", "−") if unicode_minus else text
 
 
+def duration_text(seconds: float) -> str:
+    """A short duration in the unit that reads best, three significant digits:
+    '2.5 s', '40 ms', '2.96 µs' (never '2.9584e-06 s')."""
+    v = float(seconds)
+    if not math.isfinite(v):
+        return "∞ s" if v > 0 else "—"
+    a = abs(v)
+    for scale, unit in ((1.0, "s"), (1e-3, "ms"), (1e-6, "µs")):
+        if a >= scale or unit == "µs":
+            if a == 0.0:
+                return "0 s"
+            return f"{v / scale:.3g} {unit}"
+    raise AssertionError("unreachable")
+
+
 def hz_range_text(low_hz: float, high_hz: float) -> str:
     """'−256 … +925 Hz'."""
     return f"{hz_text(low_hz, signed=True)} … {hz_text(high_hz, signed=True)} Hz"
