@@ -96,10 +96,9 @@ def route_rows(ctx, drive) -> list[list[str]]:
     c = ctx.clock
 
     def when(distance_m: float) -> float:
-        import numpy as np
-
-        k = int(np.searchsorted(st.distance_m, distance_m - 1e-6))
-        return float(st.unix_s[min(k, st.unix_s.size - 1)])
+        # the route's own timetable, not the nearest plan step (a stretch of 72 s
+        # would otherwise print as 60 s or 90 s at a 30 s step)
+        return drive.drive.route.time_at_distance(distance_m)
 
     items: list[tuple[float, float, list[str]]] = []
     for s in drive.drive.stretches:

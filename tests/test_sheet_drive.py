@@ -116,3 +116,26 @@ def test_each_event_page_holds_its_searches_and_give_up(drive_sheets):
 def test_window_sheets_without_route_are_unchanged(drive_sheets):
     _plan, _drive, _out, plain = drive_sheets
     assert not [p for p in plain if p.tags.get("kind") in ("route", "event")]
+
+
+def test_route_page_times_follow_the_timetable_not_the_plan_step(drive_sheets):
+    # The tunnel's re-acquisition comes when the outage ends: its event time is the
+    # end of the outage stretch, and begin + outage length = that time (the event's own
+    # outage_s). The route page prints the same instants (HH:MM:SS), not plan-step times.
+    from datetime import UTC, datetime
+
+    _plan, drive, out, _ = drive_sheets
+    pages, texts = out["a4"]
+    route_text = " ".join(t for p, t in zip(pages, texts) if p.tags.get("kind") == "route")
+    reacq = [e for e in drive.events if e.event.kind == "reacquire"]
+    assert reacq
+    for e in reacq:
+        end_t = e.event.unix_s
+        begin_t = end_t - e.event.outage_s
+
+        def hms(t):
+            return datetime.fromtimestamp(round(t), UTC).strftime("%H:%M:%S")
+
+        stretch = next(s for s in drive.drive.stretches if s.kind == "outage")
+        assert f"{hms(begin_t)} {stretch.from_m / 1000:.2f} {stretch.name}" in route_text
+        assert f"{hms(end_t)} {stretch.to_m / 1000:.2f} {stretch.name}" in route_text
