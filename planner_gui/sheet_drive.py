@@ -92,7 +92,6 @@ def _fit_rows(ctx, page: Page, rows: list[list[str]], weights: list[float], w: f
 def route_rows(ctx, drive) -> list[list[str]]:
     """Everything the crew meets along the route, in the order of driving: stretch
     starts and ends and test events, by distance (then time)."""
-    st = drive.samples.states
     c = ctx.clock
 
     def when(distance_m: float) -> float:
