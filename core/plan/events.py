@@ -557,6 +557,7 @@ def drive_geometry(sc: Scenario, progress: ProgressFn | None = None,
         tp = _time.perf_counter()
         motion = route_motion(route, grid.unix_s, replace(mu, along_m=ev.knowledge.along_route_m))
         pred = predict(orbits, motion.path, grid, signals=by_system, keep_states=True, states=states)
+        shared[n] = None                  # the prediction keeps its own copy of the states
         k = ev.knowledge
         cold = ev.kind == "cold"
         dt = 0.0 if k.time_uncertainty_s is None else k.time_uncertainty_s
