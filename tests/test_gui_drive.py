@@ -101,6 +101,13 @@ def test_choosing_an_event_drives_every_view(qtbot, window, drive_scenario):
     assert float(shown.times.unix_s[0]) == pytest.approx(ev.event.unix_s, abs=shown.scenario.time.step_s)
     table_ids = {r["id"] for r in window.model.cursor_rows()}
     assert table_ids <= set(shown.ids)
+    # the channel timeline and the Doppler windows show the event's own span: the
+    # timeline's first minutes start at the event, the Doppler plot covers its grid
+    (x0, x1), _ = window.channels.vb.viewRange()
+    assert x0 <= ev.event.unix_s + shown.scenario.time.step_s and x1 > ev.event.unix_s
+    (d0, d1), _ = window.doppler._pi.viewRange()
+    t = shown.times.unix_s
+    assert d0 <= t[0] and d1 >= t[-1] and (d1 - d0) < 1.2 * (t[-1] - t[0])
     # back to the whole window
     with qtbot.waitSignal(window.model.planChanged, timeout=WAIT_MS):
         window.model.show_event(None)

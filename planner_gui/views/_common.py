@@ -39,6 +39,14 @@ def utc_text(unix_s: float, seconds: bool = True) -> str:
     return clock_text(unix_s)
 
 
+def grid_key(plan) -> tuple[float, float, int]:
+    """What tells one plan grid from another (first and last time, count): the views keep
+    the user's zoom over search-only changes on the same grid and fit anew on another
+    (a drive event's plan reuses its geometry but starts at the event)."""
+    t = plan.times.unix_s
+    return (float(t[0]), float(t[-1]), int(t.size))
+
+
 def colour(system: str, alpha: int = 255) -> QColor:
     c = QColor(style_for(system).colour)
     c.setAlpha(alpha)

@@ -24,6 +24,7 @@ from ._common import (
     brush,
     configure_pyqtgraph,
     cosmetic_pen,
+    grid_key,
     small_font,
     utc_text,
 )
@@ -105,7 +106,7 @@ class ChannelView(ViewFrame):
         self._label_spans: list[tuple[float, float]] = []
         self._font = small_font(7.5)
         self._segments = []
-        self._zoomed_once = False
+        self._zoomed_grid = None        # (first, last, count) of the grid last zoomed to
         self._grow_labels(48)           # made now, so the first plan does not wait for them
         vb.sigXRangeChanged.connect(self._update_labels)
         vb.sigResized.connect(self._update_labels)
@@ -197,8 +198,10 @@ class ChannelView(ViewFrame):
             mc = "Monte Carlo TTFF: computing…"
         fix = "no first fix in the window · " if ff is None else f"first fix {utc_text(ff)} UTC · "
         self.info.setText(f"hatched: search, solid: track · {fix}{mc}")
-        if not plan.reused_geometry or not self._zoomed_once:
-            self._zoomed_once = True
+        grid = grid_key(plan)
+        if not plan.reused_geometry or grid != self._zoomed_grid:
+            # a new plan, or the same geometry on another grid (a drive event chosen)
+            self._zoomed_grid = grid
             self.show_start()
         else:
             self._update_labels()

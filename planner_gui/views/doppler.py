@@ -27,6 +27,7 @@ from ._common import (
     brush,
     configure_pyqtgraph,
     cosmetic_pen,
+    grid_key,
     pen,
     small_font,
     system_curves,
@@ -118,7 +119,7 @@ class DopplerView(ViewFrame):
         self.plot.scene().sigMouseMoved.connect(self._mouse_moved)
         self.plot.scene().sigMouseClicked.connect(self._mouse_clicked)
         self._systems: list[str] = []
-        self._fitted = False
+        self._fitted_grid = None        # (first, last, count) of the grid last fitted to
         model.planChanged.connect(self._on_plan)
         model.cursorChanged.connect(self._on_cursor)
         model.selectionChanged.connect(self._on_selection)
@@ -159,9 +160,10 @@ class DopplerView(ViewFrame):
             self.first_acq_label.hide()
         self._draw_all_windows()
         self._place_label()
-        if plan.reused_geometry and self._fitted:
-            return
-        self._fitted = True
+        grid = grid_key(plan)
+        if plan.reused_geometry and grid == self._fitted_grid:
+            return                       # a search-only change: keep the user's zoom
+        self._fitted_grid = grid
         lo = np.nanmin(np.where(plan.visible, w.low_hz, np.nan)) if plan.visible.any() else -5000.0
         hi = np.nanmax(np.where(plan.visible, w.high_hz, np.nan)) if plan.visible.any() else 5000.0
         self._pi.setXRange(float(t[0]), float(t[-1]), padding=0.01)
