@@ -77,8 +77,10 @@ def test_plan_and_doppler_drop_the_satellite(monkeypatch, tmp_path, capsys):
     def fake(paths, reference_time=None, mapping=None, strict=True):
         return _corrupt(_orbits(), 1, omega_dot_rad_s=1.570796327)
 
-    monkeypatch.setattr(readers, "load_orbit_files", fake)
+    # the facade first: reading its attribute resolves (and keeps) the real function,
+    # which monkeypatch then restores; patched second it would keep the fake for good
     monkeypatch.setattr(core.api, "load_orbit_files", fake, raising=False)
+    monkeypatch.setattr(readers, "load_orbit_files", fake)
     p = tmp_path / "inv.alm"
     p.write_text("placeholder")
     code = main(["doppler", "--orbits", str(p), "--site", "47,8,400", "--start",
