@@ -80,9 +80,10 @@ def test_rinex_nav_is_an_orbit_file_kind(tmp_path):
     text = BRDC1180.read_text()
     assert detect_format(text) == "RINEX-NAV"
     orbits = load_orbits(BRDC1180, reference_time=1_619_636_400.0)   # 2021-04-28 19:00 UTC
-    # README: 32 GPS, whole day 2021-04-28.
-    assert len(orbits) == 32 and all(e.info.source_kind == "broadcast" for e in orbits.entries)
-    assert orbits.files[0].format.startswith("RINEX") and orbits.files[0].n_satellites == 32
+    # README: 32 GPS, whole day 2021-04-28; G11's one record repeats G10's orbit exactly
+    # (tests/test_readers_realdata.py checks it on the file's text) and is dropped: 31.
+    assert len(orbits) == 31 and all(e.info.source_kind == "broadcast" for e in orbits.entries)
+    assert orbits.files[0].format.startswith("RINEX") and orbits.files[0].n_satellites == 31
     assert orbits.entries[0].broadcast and orbits.entries[0].sat_id == "G01"
     # gzip as downloaded: the same set.
     gz = tmp_path / "brdc1180.21n.gz"
@@ -96,11 +97,12 @@ def test_rinex_nav_is_an_orbit_file_kind(tmp_path):
 def test_every_real_navigation_file_loads():
     # Satellite counts from the data README "Files" table (GLONASS .12g: 24, one record of
     # R13 with the impossible channel 254 is dropped with a warning, R13 keeps its others),
-    # except 07590920.05n: 28 PRNs counted in the file (2005: no G12, G17, G31, G32).
+    # except 07590920.05n: 28 PRNs counted in the file (2005: no G12, G17, G31, G32), and
+    # brdc1180.21n: 31 (G11's one record repeats G10's orbit exactly and is dropped).
     counts = {"rtklib_brdc3050.12n": 32, "rtklib_brdc3050.12g": 24, "rtklib_brdc3050.12q": 1,
               "rtklib_brdc1820.10n": 32, "gpstk_test_input_rinex3_76193040.14n": 9,
               "gpstk_test_input_rinex_nav_TestInput1.16n": 1, "gnsslibpy_brdc1190.21n": 32,
-              "gnsslibpy_brdc1180.21n": 32, "rtklib_07590920.05n": 28}
+              "gnsslibpy_brdc1180.21n": 31, "rtklib_07590920.05n": 28}
     for name, n in counts.items():
         s = load_orbits(NAV / name)
         assert len(s) == n, name

@@ -329,3 +329,23 @@ def test_merge_of_real_files(orbit_data):
     # G13, G11, G20 are in both: the TLE copies get '#2' [OrbitSet.merge rule].
     assert {"G13#2", "G11#2", "G20#2"} <= set(s.ids)
     assert s.files[1].age_s == pytest.approx(ref.timestamp() - s.files[1].epoch_unix_s)
+
+
+def test_a_record_repeating_another_satellites_orbit_is_dropped(orbit_data):
+    # The real 2021-04-28 GPS broadcast file (orbit-data README) holds, at line 385, a G11
+    # record whose toe and orbital elements equal the G10 record at line 377 (checked
+    # here on the file's text itself: only the transmission time differs). Two
+    # satellites cannot share one orbit: G11 is not planned on G10's orbit, and the
+    # warning names both lines.
+    path = orbit_data / "rinex-nav" / "gnsslibpy_brdc1180.21n"
+    lines = path.read_text().splitlines()
+    g10, g11 = lines[376:384], lines[384:392]
+    assert g10[0].startswith("10 ") and g11[0].startswith("11 ")
+    assert g10[0][3:] == g11[0][3:] and g10[1:7] == g11[1:7] and g10[7] != g11[7]
+    orbits = load_orbit_files([str(path)], strict=True)
+    ids = {e.info.sat_id for e in orbits.entries}
+    assert "G10" in ids
+    g11_lines = {r.line for e in orbits.entries if e.info.sat_id == "G11" for r in e.broadcast}
+    assert 385 not in g11_lines
+    [msg] = [w for w in orbits.warnings if "line 385" in w]
+    assert "G11" in msg and "G10" in msg and "line 377" in msg and str(path) in msg

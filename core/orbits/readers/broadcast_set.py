@@ -24,10 +24,35 @@ from .rinex_nav import SYSTEM_NAMES, RinexNavFile, parse_rinex_nav
 _ORDER = {s: k for k, s in enumerate("GERCJ")}
 
 
+def drop_shared_orbits(records: list) -> tuple[list, list[str]]:
+    """Records of one satellite that repeat another satellite's orbit exactly.
+
+    Two satellites cannot fly one orbit: a record whose reference time and orbital
+    elements (semi-major axis, eccentricity, mean anomaly, node, inclination, perigee)
+    equal those of another satellite's record is mislabelled. The satellite whose record
+    comes first in the file keeps it; the later copy is dropped, with a warning naming
+    both lines, rather than planned as a second satellite on the first one's orbit."""
+    first: dict[tuple, object] = {}
+    kept, msgs = [], []
+    for r in sorted(records, key=lambda r: r.line):
+        key = (r.system, r.toe_week, r.toe_sow_s, r.sqrt_a_m05, r.eccentricity, r.m0_rad,
+               r.omega0_rad, r.i0_rad, r.arg_perigee_rad)
+        owner = first.setdefault(key, r)
+        if owner is not r and owner.sat_id != r.sat_id:
+            msgs.append(f"line {r.line}: the {r.sat_id} record repeats the orbit of the {owner.sat_id} "
+                        f"record at line {owner.line} exactly (same reference time and elements); "
+                        f"two satellites cannot share one orbit, so it is dropped")
+            continue
+        kept.append(r)
+    return kept, msgs
+
+
 def nav_orbit_set(nav: RinexNavFile, reference_unix_s: float | None = None) -> OrbitSet:
     """The entries of a parsed navigation file; ``reference_unix_s`` sets the data age."""
     source = nav.path
     kept, screen_msgs = screen_records(nav.records)
+    kept, dupe_msgs = drop_shared_orbits(kept)
+    screen_msgs = [*screen_msgs, *dupe_msgs]
     glonass, glo_msgs = screen_glonass(nav.glonass)
     warnings = [*nav.warnings, *(f"{source}: {m}" for m in [*screen_msgs, *glo_msgs])]
     others = {k: v for k, v in nav.skipped.items() if v}
